@@ -1,0 +1,39 @@
+# Two commands on a fresh machine: `make run` and `make test`.
+PYTHON ?= python3
+VENV ?= .venv
+BIN := $(VENV)/bin
+HOST ?= 127.0.0.1
+PORT ?= 8000
+export HOST PORT
+
+.PHONY: run test lint spec bench clean
+
+$(BIN)/activate:
+	$(PYTHON) -m venv $(VENV)
+
+# Reinstalled whenever pyproject.toml changes.
+$(VENV)/.installed: pyproject.toml | $(BIN)/activate
+	$(BIN)/python -m pip install --quiet --upgrade pip
+	$(BIN)/python -m pip install --quiet -e '.[dev]'
+	touch $@
+
+run: $(VENV)/.installed
+	$(BIN)/gunicorn --config docker/gunicorn.conf.py service.wsgi:app
+
+lint: $(VENV)/.installed
+	$(BIN)/ruff check .
+	$(BIN)/mypy
+
+test: lint
+	$(BIN)/python -m pytest
+
+spec: $(VENV)/.installed
+	$(BIN)/python -m service.openapi > openapi.yaml
+
+bench: $(VENV)/.installed
+	$(BIN)/python bench/bench_sizing.py
+	$(BIN)/python bench/bench_selection.py
+	$(BIN)/python bench/bench_estimation.py
+
+clean:
+	rm -rf $(VENV) .pytest_cache .mypy_cache .ruff_cache .hypothesis .coverage

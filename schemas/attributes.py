@@ -1,0 +1,276 @@
+"""Contract of the test-of-controls endpoints: sample size and evaluation."""
+
+from __future__ import annotations
+
+from typing import Any
+
+from marshmallow import (
+    Schema,
+    ValidationError,
+    fields,
+    post_dump,
+    post_load,
+    validate,
+    validates_schema,
+)
+
+from schemas.common import IntervalSchema, PopulationSchema, StrictSchema, without_absent
+from schemas.fields import Rate, StrictFloat, StrictInteger, StrictString
+from service.sampling.distributions import MODELS
+from service.sampling.wording import evaluation_summary, plan_summary
+
+METHOD_NAMES = sorted(MODELS)
+
+_METHOD: dict[str, Any] = {
+    "validate": validate.OneOf(METHOD_NAMES, error="must be one of {choices}"),
+    "metadata": {
+        "description": "Distribution used: hypergeometric (finite population, without "
+        "replacement), binomial, or poisson. Default: hypergeometric when population.size "
+        "is given, else binomial."
+    },
+}
+
+
+def _confidence() -> StrictFloat:
+    return Rate(
+        load_default=0.95,
+        metadata={
+            "description": "Confidence, one minus the risk of overreliance, as a fraction.",
+            "example": 0.95,
+        },
+    )
+
+
+def _flatten_population(data: dict[str, Any]) -> dict[str, Any]:
+    population = data.pop("population", None) or {}
+    data["population_size"] = population.get("size")
+    data["population_label"] = population.get("label")
+    return data
+
+
+class SampleSizeRequest(StrictSchema):
+    """Sample size for a test of controls."""
+
+    population = fields.Nested(
+        PopulationSchema,
+        metadata={"description": "Absent for a population large enough to ignore its size."},
+    )
+    tolerable_rate = Rate(
+        required=True,
+        metadata={"description": "Tolerable deviation rate, as a fraction.", "example": 0.05},
+    )
+    expected_rate = Rate(
+        allow_zero=True,
+        load_default=0.0,
+        metadata={
+            "description": "Expected population deviation rate, as a fraction, below "
+            "tolerable_rate.",
+            "example": 0.01,
+        },
+    )
+    confidence = _confidence()
+    method = StrictString(**_METHOD)
+
+    @validates_schema
+    def _expected_below_tolerable(self, data: dict[str, Any], **kwargs: Any) -> None:
+        tolerable, expected = data.get("tolerable_rate"), data.get("expected_rate")
+        if tolerable is not None and expected is not None and expected >= tolerable:
+            raise ValidationError(
+                f"expected_rate {expected!r} must be below tolerable_rate {tolerable!r}",
+                "expected_rate",
+            )
+
+    @post_load
+    def _to_core(self, data: dict[str, Any], **kwargs: Any) -> dict[str, Any]:
+        return _flatten_population(data)
+
+
+class SampleSizePlanSchema(Schema):
+    """A sample size plan.
+
+    ``curve_request`` is the body to POST, as it is, to ``links.curve``
+    (``/v1/plans/curve``) for the operating characteristic of this plan: it names the
+    sample size, the allowed deviations, the method and the population of the plan and the
+    two rates it was sized for, so the curve's risk of overreliance and risk of
+    underreliance are this plan's. Send it with ``Accept: image/svg+xml`` for the chart.
+    """
+
+    sample_size = fields.Integer(required=True, metadata={"description": "Items to test."})
+    allowed_deviations = fields.Integer(
+        required=True,
+        metadata={"description": "Most deviations the sample may show and still support reliance."},
+    )
+    method = fields.String(required=True)
+    tolerable_rate = fields.Float(required=True)
+    expected_rate = fields.Float(required=True)
+    confidence = fields.Float(required=True)
+    achieved_confidence = fields.Float(
+        required=True,
+        metadata={"description": "Exact confidence of the plan at the tolerable rate."},
+    )
+    risk_of_overreliance = fields.Float(
+        required=True,
+        metadata={
+            "description": "Probability of allowed_deviations or fewer when the true rate is "
+            "the tolerable rate (1 − achieved_confidence)."
+        },
+    )
+    risk_of_underreliance = fields.Float(
+        required=True,
+        metadata={
+            "description": "Probability of more than allowed_deviations when the true rate is "
+            "the expected rate."
+        },
+    )
+    population_size = fields.Integer(required=True, allow_none=True)
+    population_label = fields.String()
+    summary = fields.Function(
+        plan_summary,
+        required=True,
+        metadata={"type": "string", "description": "Plain-English paragraph."},
+    )
+    warnings = fields.List(fields.String(), required=True)
+    curve_request = fields.Method(
+        "_curve_request",
+        required=True,
+        metadata={
+            "allOf": [{"$ref": "#/components/schemas/CurveRequest"}],
+            "description": "Body to POST, unchanged, to links.curve for the operating "
+            "characteristic of this plan.",
+        },
+    )
+    links = fields.Method(
+        "_links",
+        required=True,
+        metadata={
+            "type": "object",
+            "properties": {
+                "curve": {
+                    "type": "string",
+                    "description": "Path of the operating characteristic endpoint.",
+                    "example": "/v1/plans/curve",
+                }
+            },
+            "required": ["curve"],
+            "additionalProperties": False,
+        },
+    )
+
+    def _curve_request(self, plan: Any) -> dict[str, Any]:
+        from schemas.curves import curve_request_body
+
+        return curve_request_body(plan)
+
+    def _links(self, plan: Any) -> dict[str, str]:
+        from schemas.curves import CURVE_PATH
+
+        return {"curve": CURVE_PATH}
+
+    @post_dump
+    def _drop_absent(self, data: dict[str, Any], **kwargs: Any) -> dict[str, Any]:
+        return without_absent(data, ("population_label",))
+
+
+class EvaluationRequest(StrictSchema):
+    """Evaluation of a finished test of controls."""
+
+    population = fields.Nested(PopulationSchema)
+    sample_size = StrictInteger(
+        required=True,
+        validate=validate.Range(min=1, error="must be at least {min}"),
+        metadata={"description": "Items tested.", "example": 60},
+    )
+    deviations = StrictInteger(
+        required=True,
+        validate=validate.Range(min=0, error="must be at least {min}"),
+        metadata={"description": "Deviations found.", "example": 1},
+    )
+    confidence = _confidence()
+    tolerable_rate = Rate(
+        metadata={
+            "description": "When given, the response says whether the sample supports reliance.",
+            "example": 0.05,
+        },
+    )
+    method = StrictString(**_METHOD)
+
+    @validates_schema
+    def _consistent(self, data: dict[str, Any], **kwargs: Any) -> None:
+        n, d = data.get("sample_size"), data.get("deviations")
+        errors: dict[str, list[str]] = {}
+        if n is not None and d is not None and d > n:
+            errors["deviations"] = [f"deviations {d} must not exceed sample_size {n}"]
+        size = (data.get("population") or {}).get("size")
+        if n is not None and size is not None and n > size:
+            errors["sample_size"] = [f"sample_size {n} must not exceed population.size {size}"]
+        if errors:
+            raise ValidationError(errors)
+
+    @post_load
+    def _to_core(self, data: dict[str, Any], **kwargs: Any) -> dict[str, Any]:
+        return _flatten_population(data)
+
+
+class EvaluationSchema(Schema):
+    """The evaluation of a test of controls."""
+
+    method = fields.String(required=True)
+    sample_size = fields.Integer(required=True)
+    deviations = fields.Integer(required=True)
+    confidence = fields.Float(required=True)
+    tolerable_rate = fields.Float()
+    population_size = fields.Integer(required=True, allow_none=True)
+    population_label = fields.String()
+    sample_deviation_rate = fields.Float(required=True)
+    upper_deviation_limit = fields.Float(
+        required=True,
+        metadata={"description": "Exact one-sided upper confidence bound for the deviation rate."},
+    )
+    upper_deviation_count = fields.Integer(
+        metadata={"description": "Hypergeometric method: the upper bound on deviant items."}
+    )
+    allowance_for_sampling_risk = fields.Float(
+        required=True, metadata={"description": "upper_deviation_limit − sample_deviation_rate."}
+    )
+    interval = fields.Nested(
+        IntervalSchema,
+        required=True,
+        metadata={"description": "Two-sided exact interval at the same confidence."},
+    )
+    risk_at_tolerable_rate = fields.Float(
+        metadata={
+            "description": "Probability of this many deviations or fewer if the true rate were "
+            "the tolerable rate; reliance is supported when it is at most 1 − confidence."
+        }
+    )
+    conclusion = fields.Function(
+        lambda result: (
+            None
+            if result.supports_reliance is None
+            else ("supports_reliance" if result.supports_reliance else "does_not_support_reliance")
+        ),
+        metadata={
+            "type": "string",
+            "enum": ["supports_reliance", "does_not_support_reliance"],
+            "description": "Present only when tolerable_rate is given.",
+        },
+    )
+    summary = fields.Function(
+        evaluation_summary,
+        required=True,
+        metadata={"type": "string", "description": "Plain-English paragraph."},
+    )
+    warnings = fields.List(fields.String(), required=True)
+
+    @post_dump
+    def _drop_absent(self, data: dict[str, Any], **kwargs: Any) -> dict[str, Any]:
+        return without_absent(
+            data,
+            (
+                "tolerable_rate",
+                "population_label",
+                "upper_deviation_count",
+                "risk_at_tolerable_rate",
+                "conclusion",
+            ),
+        )

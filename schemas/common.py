@@ -1,0 +1,77 @@
+"""Shared pieces of the contract: the strict base schema, the population, problem details."""
+
+from __future__ import annotations
+
+from typing import Any
+
+from marshmallow import RAISE, Schema, fields, validate
+
+from schemas.fields import StrictInteger, StrictString
+
+
+class StrictSchema(Schema):
+    """Base of every request schema: unknown fields are refused, not ignored."""
+
+    class Meta:
+        unknown = RAISE
+
+    error_messages = {  # noqa: RUF012 - marshmallow's documented extension point
+        "unknown": "is not a field of this request",
+        "type": "the body must be a JSON object",
+    }
+
+
+class PopulationSchema(StrictSchema):
+    """The population the sample is drawn from."""
+
+    size = StrictInteger(
+        required=True,
+        validate=validate.Range(min=1, error="must be at least {min}"),
+        metadata={"description": "Number of items in the population.", "example": 4200},
+    )
+    label = StrictString(
+        validate=validate.Length(max=200, error="must be at most {max} characters"),
+        metadata={
+            "description": "Free text naming the population, repeated in the summary.",
+            "example": "Purchase orders over 10,000, Northwind Trading, Q3 2026",
+        },
+    )
+
+
+class IntervalSchema(Schema):
+    """A closed interval of deviation rates."""
+
+    low = fields.Float(required=True)
+    high = fields.Float(required=True)
+
+
+class ProblemSchema(Schema):
+    """Problem details for HTTP APIs (RFC 9457), as every error of this service is reported."""
+
+    type = fields.String(
+        required=True, metadata={"description": "URI reference naming the problem type."}
+    )
+    title = fields.String(required=True)
+    status = fields.Integer(required=True)
+    detail = fields.String(required=True)
+    instance = fields.String(metadata={"description": "The request path."})
+    errors = fields.Dict(
+        keys=fields.String(),
+        values=fields.List(fields.String()),
+        metadata={
+            "description": "For invalid input: each offending field (dotted path) "
+            "with what is wrong with it."
+        },
+    )
+
+
+class HealthSchema(Schema):
+    """Liveness and version."""
+
+    status = fields.String(required=True, metadata={"example": "ok"})
+    version = fields.String(required=True, metadata={"example": "0.1.0"})
+
+
+def without_absent(data: dict[str, Any], keys: tuple[str, ...]) -> dict[str, Any]:
+    """Drop the optional ``keys`` whose value is None, so they are absent rather than null."""
+    return {k: v for k, v in data.items() if not (k in keys and v is None)}

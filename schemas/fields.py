@@ -1,0 +1,134 @@
+"""Strict fields: numbers that are numbers, rates that are fractions.
+
+marshmallow's own ``Float`` accepts ``"0.05"`` and ``true`` and turns them into
+numbers, and its ``Integer`` accepts ``true`` as 1. A service whose answers are
+audit evidence must not guess, so these fields accept JSON numbers only and say
+what was wrong otherwise.
+"""
+
+from __future__ import annotations
+
+import math
+from typing import Any
+
+from marshmallow import fields
+
+# Largest integer a JSON number carries exactly in every mainstream client
+# (IEEE double precision); larger counts are refused rather than rounded.
+MAX_EXACT_INTEGER = 2**53 - 1
+
+
+def _is_number(value: Any) -> bool:
+    return isinstance(value, int | float) and not isinstance(value, bool)
+
+
+class StrictFloat(fields.Float):
+    """A JSON number (integer or decimal), finite; strings and booleans are refused."""
+
+    default_error_messages = {  # noqa: RUF012 - marshmallow's documented extension point
+        "invalid": "must be a number, not {kind}",
+        "special": "must be a finite number; NaN and Infinity are not accepted",
+        "too_large": "must be a number of ordinary size",
+    }
+
+    def _deserialize(self, value: Any, attr: str | None, data: Any, **kwargs: Any) -> float:
+        if not _is_number(value):
+            raise self.make_error("invalid", kind=_kind(value))
+        try:
+            result = float(value)
+        except OverflowError:
+            raise self.make_error("too_large") from None
+        if not math.isfinite(result):
+            raise self.make_error("special")
+        return result
+
+
+class Rate(StrictFloat):
+    """A rate as a fraction strictly between 0 and 1, with a hint when it looks like a percentage.
+
+    ``allow_zero`` admits 0 (an expected deviation rate of none).
+    """
+
+    def __init__(self, *, allow_zero: bool = False, **kwargs: Any) -> None:
+        self.allow_zero = allow_zero
+        metadata = kwargs.pop("metadata", {})
+        if allow_zero:
+            metadata = {"minimum": 0, "exclusiveMaximum": 1, **metadata}
+        else:
+            metadata = {"exclusiveMinimum": 0, "exclusiveMaximum": 1, **metadata}
+        super().__init__(metadata=metadata, **kwargs)
+
+    def _deserialize(self, value: Any, attr: str | None, data: Any, **kwargs: Any) -> float:
+        result = super()._deserialize(value, attr, data, **kwargs)
+        low_ok = result >= 0 if self.allow_zero else result > 0
+        if low_ok and result < 1:
+            return result
+        bounds = "from 0 up to (not including) 1" if self.allow_zero else "strictly between 0 and 1"
+        message = f"must be a fraction {bounds}; got {value!r}"
+        if 1 <= result <= 100:
+            message += (
+                f", which looks like a percentage: rates are fractions, so {value!r}% "
+                f"is {result / 100!r}"
+            )
+        raise self.make_error("validator_failed", message=message)
+
+    default_error_messages = {  # noqa: RUF012 - marshmallow's documented extension point
+        **StrictFloat.default_error_messages,
+        "validator_failed": "{message}",
+    }
+
+
+class StrictInteger(fields.Integer):
+    """A JSON whole number; ``60.0`` is accepted as 60, ``60.5``, strings and booleans are not."""
+
+    default_error_messages = {  # noqa: RUF012 - marshmallow's documented extension point
+        "invalid": "must be a whole number, not {kind}",
+        "fraction": "must be a whole number; got {value!r}",
+        "too_large": "must be at most {maximum:,}",
+    }
+
+    def __init__(self, **kwargs: Any) -> None:
+        metadata = {"maximum": MAX_EXACT_INTEGER, **kwargs.pop("metadata", {})}
+        super().__init__(strict=False, metadata=metadata, **kwargs)
+
+    def _deserialize(self, value: Any, attr: str | None, data: Any, **kwargs: Any) -> int:
+        if not _is_number(value):
+            raise self.make_error("invalid", kind=_kind(value))
+        if isinstance(value, float):
+            if not math.isfinite(value):
+                raise self.make_error("invalid", kind="a non-finite number")
+            if not value.is_integer():
+                raise self.make_error("fraction", value=value)
+        if abs(value) > MAX_EXACT_INTEGER:
+            raise self.make_error("too_large", maximum=MAX_EXACT_INTEGER)
+        return int(value)
+
+
+class StrictString(fields.String):
+    """A JSON string; numbers are not turned into text."""
+
+    default_error_messages = {  # noqa: RUF012 - marshmallow's documented extension point
+        "invalid": "must be a string, not {kind}",
+    }
+
+    def _deserialize(self, value: Any, attr: str | None, data: Any, **kwargs: Any) -> str:
+        if not isinstance(value, str):
+            raise self.make_error("invalid", kind=_kind(value))
+        return value
+
+
+def _kind(value: Any) -> str:
+    """Plain-words JSON type of ``value`` for error messages."""
+    if value is None:
+        return "null"
+    if isinstance(value, bool):
+        return "a boolean"
+    if isinstance(value, str):
+        return "a string"
+    if isinstance(value, dict):
+        return "an object"
+    if isinstance(value, list):
+        return "an array"
+    if isinstance(value, int | float):
+        return "a number"
+    return "an unsupported value"

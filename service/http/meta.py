@@ -1,0 +1,26 @@
+"""Service endpoints: ``GET /v1/health`` and ``GET /openapi.yaml``."""
+
+from __future__ import annotations
+
+from flask import Blueprint, Response, current_app
+
+from service import jsonio
+from service.version import VERSION
+
+bp = Blueprint("meta", __name__)
+
+
+@bp.get("/v1/health")
+def health() -> Response:
+    """Liveness and version."""
+    return current_app.response_class(
+        jsonio.dumps({"status": "ok", "version": VERSION}), mimetype="application/json"
+    )
+
+
+@bp.get("/openapi.yaml")
+def openapi_document() -> Response:
+    """The OpenAPI 3.1 contract, generated from the schemas at start-up."""
+    return current_app.response_class(
+        current_app.config["OPENAPI_YAML"], mimetype="application/yaml"
+    )

@@ -1,0 +1,158 @@
+"""Operations: one declaration per endpoint, from which views and the spec are built.
+
+An :class:`Operation` names its path, its request and response schemas and
+the one core call it makes. :func:`blueprint` turns a list of them into a
+Flask blueprint whose views all follow the same steps: check the media type,
+read strict JSON, load the request schema, call the core once, dump the
+response schema. The OpenAPI document (:mod:`service.openapi`) is generated
+from the same declarations, so the contract and the behaviour cannot drift.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable, Mapping
+from dataclasses import dataclass, field
+from typing import Any
+
+from flask import Blueprint, Response, current_app, request
+from marshmallow import Schema, ValidationError
+from werkzeug.exceptions import RequestEntityTooLarge
+
+from service import jsonio
+from service.problems import (
+    MALFORMED_BODY,
+    UNSUPPORTED_MEDIA_TYPE,
+    Problem,
+    from_sampling_error,
+    from_validation_error,
+)
+from service.sampling.errors import SamplingError
+from service.settings import Settings
+
+JSON = "application/json"
+
+# Renders the response document (and the core result it came from) as text.
+Renderer = Callable[[dict[str, Any], Any], str]
+
+
+@dataclass(frozen=True)
+class Operation:
+    """One JSON-in endpoint; JSON out by default, other media types through ``renderers``."""
+
+    name: str
+    path: str
+    summary: str
+    description: str
+    request: type[Schema]
+    response: type[Schema]
+    run: Callable[[dict[str, Any], Settings], Any]
+    tag: str
+    renderers: Mapping[str, Renderer] = field(default_factory=dict)
+    # Endpoints that take item lists accept bodies up to max_list_body_bytes.
+    takes_item_lists: bool = False
+
+    @property
+    def media_types(self) -> list[str]:
+        return [JSON, *self.renderers]
+
+
+def _is_json(mimetype: str) -> bool:
+    return mimetype == "application/json" or (
+        mimetype.startswith("application/") and mimetype.endswith("+json")
+    )
+
+
+def read_json_body() -> Any:
+    """The request body as strict JSON, or a Problem (415, 400, 413)."""
+    if not _is_json(request.mimetype):
+        got = request.mimetype or "no Content-Type"
+        raise Problem(
+            415,
+            "Unsupported Media Type",
+            f"send the body as application/json (got {got})",
+            UNSUPPORTED_MEDIA_TYPE,
+        )
+    try:
+        return jsonio.loads(_read_body())
+    except jsonio.JSONDecodeProblem as exc:
+        raise Problem(400, "Malformed body", str(exc), MALFORMED_BODY) from None
+
+
+def _read_body() -> bytes:
+    """The raw body; one over the limit is refused (413) even when it has no Content-Length.
+
+    Werkzeug refuses a declared Content-Length over the limit, but a streamed (chunked)
+    body is only cut at the limit; whether more follows is read from the server's stream.
+    """
+    data = request.get_data(cache=False)
+    limit = request.max_content_length
+    if (
+        limit is not None
+        and request.content_length is None
+        and len(data) >= limit
+        and request.environ["wsgi.input"].read(1)
+    ):
+        raise RequestEntityTooLarge()
+    return data
+
+
+def negotiate(operation: Operation) -> str:
+    """The media type to answer with, from the Accept header (406 when none is acceptable)."""
+    offered = operation.media_types
+    if not request.accept_mimetypes:
+        return JSON
+    best = request.accept_mimetypes.best_match(offered)
+    if best is None:
+        raise Problem(
+            406,
+            "Not Acceptable",
+            f"this endpoint answers {', '.join(offered)}; the Accept header allows none of them",
+        )
+    return best
+
+
+def run(operation: Operation, payload: Any, settings: Settings) -> tuple[dict[str, Any], Any]:
+    """Validate ``payload`` and run the operation: the response document and the core result."""
+    try:
+        inputs = operation.request().load(payload)
+    except ValidationError as exc:
+        raise from_validation_error(exc) from None
+    try:
+        result = operation.run(inputs, settings)
+    except SamplingError as exc:
+        raise from_sampling_error(exc) from None
+    document: dict[str, Any] = operation.response().dump(result)
+    return document, result
+
+
+def execute(operation: Operation, payload: Any, settings: Settings) -> dict[str, Any]:
+    """Validate ``payload``, run the operation and return the response document."""
+    return run(operation, payload, settings)[0]
+
+
+def _view(operation: Operation) -> Callable[[], Response]:
+    def view() -> Response:
+        settings: Settings = current_app.config["SETTINGS"]
+        media_type = negotiate(operation)
+        if operation.takes_item_lists:
+            request.max_content_length = settings.max_list_body_bytes
+        document, result = run(operation, read_json_body(), settings)
+        if media_type == JSON:
+            body = jsonio.dumps(document)
+        else:
+            body = operation.renderers[media_type](document, result)
+        response = current_app.response_class(body, status=200, mimetype=media_type)
+        response.vary.add("Accept")
+        return response
+
+    view.__name__ = operation.name.replace("-", "_")
+    view.__doc__ = operation.summary
+    return view
+
+
+def blueprint(name: str, operations: list[Operation]) -> Blueprint:
+    """A blueprint serving each operation at ``POST operation.path``."""
+    bp = Blueprint(name, __name__)
+    for operation in operations:
+        bp.add_url_rule(operation.path, view_func=_view(operation), methods=["POST"])
+    return bp

@@ -1,0 +1,88 @@
+"""Plan endpoints: ``POST /v1/plans/curve``, the operating characteristic of a plan.
+
+JSON by default; ``Accept: image/svg+xml`` answers the same curve as an SVG chart.
+"""
+
+from __future__ import annotations
+
+from typing import Any
+
+from schemas.curves import CURVE_PATH, CurveRequest, CurveSchema
+from service.http.operations import Operation, blueprint
+from service.render.oc_chart import render_operating_characteristic_svg
+from service.sampling.curves import OperatingCharacteristic, operating_characteristic
+from service.sampling.wording import CAUTION, percent
+from service.settings import Settings
+
+SVG = "image/svg+xml"
+
+
+def _curve(inputs: dict[str, Any], settings: Settings) -> OperatingCharacteristic:
+    return operating_characteristic(**inputs, max_sample_size=settings.max_sample_size)
+
+
+def _caption(curve: OperatingCharacteristic) -> str:
+    """The plan in one short sentence, then the caution sentence.
+
+    The population label is left out: it is free text of up to 200 characters, and the
+    caption has room for three lines under the chart.
+    """
+    k = curve.allowed_deviations
+    noun = "deviation" if k == 1 else "deviations"
+    allowance = "no deviation" if k == 0 else f"up to {k:,} {noun}"
+    parts = [f"{curve.sample_size:,} items", allowance, f"{curve.method} model"]
+    if curve.population_size is not None:
+        parts.append(f"population {curve.population_size:,}")
+    if curve.tolerable_rate is not None:
+        parts.append(f"tolerable {percent(curve.tolerable_rate)}")
+    if curve.expected_rate is not None:
+        parts.append(f"expected {percent(curve.expected_rate)}")
+    return f"Plan: {', '.join(parts)}. {CAUTION}"
+
+
+def _chart_points(curve: OperatingCharacteristic) -> list[tuple[float, float]]:
+    """The grid, plus the curve at the marked rates so that the line meets the marks."""
+    points = {point.rate: point.probability for point in curve.points}
+    if curve.tolerable_rate is not None and curve.risk_of_overreliance is not None:
+        points.setdefault(curve.tolerable_rate, curve.risk_of_overreliance)
+    if curve.expected_rate is not None and curve.risk_of_underreliance is not None:
+        points.setdefault(curve.expected_rate, 1.0 - curve.risk_of_underreliance)
+    return sorted(points.items())
+
+
+def _svg(document: dict[str, Any], curve: OperatingCharacteristic) -> str:
+    return render_operating_characteristic_svg(
+        _chart_points(curve),
+        sample_size=curve.sample_size,
+        allowed_deviations=curve.allowed_deviations,
+        tolerable_rate=curve.tolerable_rate,
+        expected_rate=curve.expected_rate,
+        risk_of_overreliance=curve.risk_of_overreliance,
+        risk_of_underreliance=curve.risk_of_underreliance,
+        caption=_caption(curve),
+    )
+
+
+OPERATIONS = [
+    Operation(
+        name="plan-curve",
+        path=CURVE_PATH,
+        summary="Operating characteristic of a test-of-controls plan",
+        description=(
+            "For a plan of sample_size items allowing allowed_deviations, the probability "
+            "P(X ≤ allowed_deviations) that the sample supports reliance, at evenly spaced "
+            "true deviation rates from 0, under the plan's model; with the risk of "
+            "overreliance at tolerable_rate and the risk of underreliance at expected_rate "
+            "when they are given. The curve_request of a sample size plan is a ready body. "
+            "With Accept: image/svg+xml the answer is the curve as an SVG chart, drawn "
+            "through the grid and through the marked rates."
+        ),
+        request=CurveRequest,
+        response=CurveSchema,
+        run=_curve,
+        tag="tests of controls",
+        renderers={SVG: _svg},
+    ),
+]
+
+bp = blueprint("plans", OPERATIONS)

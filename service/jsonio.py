@@ -1,0 +1,72 @@
+"""Strict JSON: what the service reads and writes.
+
+Python's ``json`` module accepts ``NaN`` and ``Infinity``, silently keeps the
+last of duplicated keys and turns ``1e400`` into infinity. None of that is
+JSON (RFC 8259) a client meant to send, so :func:`loads` refuses each with a
+:class:`JSONDecodeProblem` naming what was wrong; :func:`dumps` never emits
+non-finite numbers.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+from typing import Any
+
+
+class JSONDecodeProblem(ValueError):
+    """The body is not strict JSON."""
+
+
+def _refuse_constant(name: str) -> Any:
+    raise JSONDecodeProblem(f"{name} is not valid JSON; send a finite number")
+
+
+def _finite_float(text: str) -> float:
+    value = float(text)
+    if not math.isfinite(value):
+        raise JSONDecodeProblem(f"the number {text[:40]} is too large to represent")
+    return value
+
+
+def _unique_keys(pairs: list[tuple[str, Any]]) -> dict[str, Any]:
+    result: dict[str, Any] = {}
+    for key, value in pairs:
+        if key in result:
+            raise JSONDecodeProblem(f"the key {key[:80]!r} appears more than once in one object")
+        result[key] = value
+    return result
+
+
+def loads(data: bytes) -> Any:
+    """Parse ``data`` (UTF-8) as strict JSON."""
+    try:
+        text = data.decode("utf-8")
+    except UnicodeDecodeError as exc:
+        raise JSONDecodeProblem(f"the body is not valid UTF-8 (byte {exc.start})") from None
+    if not text.strip():
+        raise JSONDecodeProblem("the body is empty; send a JSON object")
+    try:
+        return json.loads(
+            text,
+            parse_constant=_refuse_constant,
+            parse_float=_finite_float,
+            object_pairs_hook=_unique_keys,
+        )
+    except JSONDecodeProblem:
+        raise
+    except json.JSONDecodeError as exc:
+        raise JSONDecodeProblem(
+            f"malformed JSON at line {exc.lineno} column {exc.colno}: {exc.msg}"
+        ) from None
+    except RecursionError:
+        raise JSONDecodeProblem("the JSON is nested too deeply") from None
+    except ValueError:  # an integer literal with more digits than Python converts
+        raise JSONDecodeProblem(
+            "a number in the body has too many digits (more than 4,300) to be read"
+        ) from None
+
+
+def dumps(obj: Any, **kwargs: Any) -> str:
+    """Serialise ``obj`` as JSON; NaN and Infinity raise instead of being written."""
+    return json.dumps(obj, allow_nan=False, ensure_ascii=False, **kwargs)

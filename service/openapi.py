@@ -1,0 +1,134 @@
+"""Generate the OpenAPI 3.1 document from the operations and their schemas.
+
+``python -m service.openapi`` prints it; ``make spec`` writes it to
+``openapi.yaml``, and a test fails when the committed file differs.
+"""
+
+from __future__ import annotations
+
+from typing import Any
+
+import yaml
+from apispec import APISpec
+from apispec.ext.marshmallow import MarshmallowPlugin
+
+from schemas.common import HealthSchema, ProblemSchema
+from schemas.fields import StrictFloat, StrictInteger, StrictString
+from service.http import all_operations
+from service.version import VERSION
+
+OPENAPI_VERSION = "3.1.0"
+
+_PROBLEM_STATUSES = {
+    "400": "Malformed body: not UTF-8, not strict JSON, or duplicate keys.",
+    "406": "None of the media types this endpoint answers is acceptable.",
+    "413": "Body larger than the configured limit.",
+    "415": "Body not sent as application/json.",
+    "422": "Invalid input; `errors` names each field and what is wrong with it.",
+}
+
+DESCRIPTION = (
+    "Sizes, evaluates and documents statistical samples for tests of controls. "
+    "Rates are fractions (5% is 0.05). Every error is application/problem+json "
+    "(RFC 9457). Results support, and do not replace, professional judgement "
+    "and the applicable auditing standards."
+)
+
+
+def _problem_response(description: str) -> dict[str, Any]:
+    return {
+        "description": description,
+        "content": {"application/problem+json": {"schema": "Problem"}},
+    }
+
+
+def build_spec() -> APISpec:
+    """The spec object for every operation of the service."""
+    plugin = MarshmallowPlugin(schema_name_resolver=lambda schema: _schema_name(schema))
+    spec = APISpec(
+        title="Attribute sampling service",
+        version=VERSION,
+        openapi_version=OPENAPI_VERSION,
+        plugins=[plugin],
+        info={"description": DESCRIPTION},
+    )
+    plugin.converter.map_to_openapi_type(StrictFloat, "number", None)  # type: ignore[union-attr]
+    plugin.converter.map_to_openapi_type(StrictInteger, "integer", None)  # type: ignore[union-attr]
+    plugin.converter.map_to_openapi_type(StrictString, "string", None)  # type: ignore[union-attr]
+    spec.components.schema("Problem", schema=ProblemSchema)
+    spec.components.schema("Health", schema=HealthSchema)
+
+    for operation in all_operations():
+        content: dict[str, Any] = {"application/json": {"schema": operation.response}}
+        for media_type in operation.renderers:
+            content[media_type] = {"schema": {"type": "string"}}
+        responses: dict[str, Any] = {"200": {"description": operation.summary, "content": content}}
+        responses.update(
+            {code: _problem_response(text) for code, text in _PROBLEM_STATUSES.items()}
+        )
+        spec.path(
+            path=operation.path,
+            operations={
+                "post": {
+                    "operationId": operation.name,
+                    "summary": operation.summary,
+                    "description": operation.description,
+                    "tags": [operation.tag],
+                    "requestBody": {
+                        "required": True,
+                        "content": {"application/json": {"schema": operation.request}},
+                    },
+                    "responses": responses,
+                }
+            },
+        )
+
+    spec.path(
+        path="/v1/health",
+        operations={
+            "get": {
+                "operationId": "health",
+                "summary": "Liveness and version",
+                "tags": ["service"],
+                "responses": {
+                    "200": {
+                        "description": "The service is up.",
+                        "content": {"application/json": {"schema": "Health"}},
+                    }
+                },
+            }
+        },
+    )
+    spec.path(
+        path="/openapi.yaml",
+        operations={
+            "get": {
+                "operationId": "openapi",
+                "summary": "This document",
+                "tags": ["service"],
+                "responses": {
+                    "200": {
+                        "description": "The OpenAPI 3.1 document.",
+                        "content": {"application/yaml": {"schema": {"type": "string"}}},
+                    }
+                },
+            }
+        },
+    )
+    return spec
+
+
+def _schema_name(schema: Any) -> str:
+    cls = schema if isinstance(schema, type) else type(schema)
+    name = cls.__name__
+    return name[: -len("Schema")] if name.endswith("Schema") and name != "Schema" else name
+
+
+def build_yaml() -> str:
+    """The document as YAML text, keys in declaration order."""
+    document = build_spec().to_dict()
+    return str(yaml.safe_dump(document, sort_keys=False, allow_unicode=True, width=100))
+
+
+if __name__ == "__main__":
+    print(build_yaml(), end="")

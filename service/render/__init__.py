@@ -1,0 +1,1 @@
+"""Rendering of sampling results as documents (charts) for people to read."""

@@ -1,0 +1,629 @@
+"""Attribute sampling for tests of controls: sample sizes and evaluation.
+
+A test of controls asks, one-sided, whether the population deviation rate is
+at or below the *tolerable deviation rate* ``t``. The sample size plan and the
+evaluation below use one definition throughout, so that they always agree.
+
+Sample size (``size_sample``)
+    The smallest ``n`` such that, with ``k = ceil(e × n)`` deviations allowed
+    (``e`` the expected population deviation rate),
+
+        P(X ≤ k) ≤ 1 − confidence  when the true rate equals ``t``,
+
+    X following the chosen model (see :mod:`service.sampling.distributions`).
+    ``e = 0`` gives the zero-deviation (discovery) plan. ``P(X ≤ k)`` at ``t``
+    is the *risk of overreliance* the plan accepts; ``P(X > k)`` at ``e`` is
+    its *risk of underreliance*.
+
+Evaluation (``evaluate_sample``)
+    For ``d`` deviations in ``n`` items, the *upper deviation limit* is the
+    exact one-sided upper confidence bound for the rate; the result supports
+    reliance exactly when ``P(X ≤ d) ≤ 1 − confidence`` at the tolerable rate,
+    which is the sizing condition again. Hence, for a plan from
+    ``size_sample``, ``k`` deviations support reliance and ``k + 1`` do not.
+
+References
+----------
+AICPA, *Audit Guide: Audit Sampling* (2019), chapter 3 and tables A-1 to A-4.
+Clopper, C. J. & Pearson, E. S. (1934). The use of confidence or fiducial
+limits illustrated in the case of the binomial. *Biometrika* 26(4), 404–413.
+Wright, T. (1991). Exact confidence bounds when sampling from small finite
+universes. *Springer Lecture Notes in Statistics* 66.
+Garwood, F. (1936). Fiducial limits for the Poisson distribution.
+*Biometrika* 28(3/4), 437–442.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable
+from dataclasses import dataclass
+from fractions import Fraction
+from functools import partial
+from typing import Any
+
+import numpy as np
+from scipy import special, stats
+
+from service.sampling import hypergeometric
+from service.sampling.distributions import MODELS, Model, deviant_items
+from service.sampling.errors import ComputationTooLarge, InvalidInput, NoFeasiblePlan
+from service.sampling.rates import exact_rate, floor_quotient
+
+DEFAULT_MAX_SAMPLE_SIZE = 10_000_000
+# A computation cap: a plan allowing more deviations than this (a sample of
+# hundreds of thousands of items) is refused rather than searched for.
+MAX_ALLOWED_DEVIATIONS = 10_000
+# Sampling fraction above which the with-replacement models lose materially
+# against the hypergeometric one (common practice threshold, not a standard).
+_LARGE_SAMPLING_FRACTION = Fraction(1, 10)
+_LARGE_PLAN_FACTOR = 3
+
+
+@dataclass(frozen=True)
+class Interval:
+    """A closed interval ``[low, high]`` of deviation rates."""
+
+    low: float
+    high: float
+
+
+@dataclass(frozen=True)
+class SampleSizePlan:
+    """A test-of-controls plan: the inputs, repeated, beside the answer."""
+
+    method: str
+    tolerable_rate: float
+    expected_rate: float
+    confidence: float
+    population_size: int | None
+    population_label: str | None
+    sample_size: int
+    allowed_deviations: int
+    achieved_confidence: float
+    risk_of_overreliance: float
+    risk_of_underreliance: float
+    warnings: tuple[str, ...]
+
+
+@dataclass(frozen=True)
+class Evaluation:
+    """The evaluation of a finished test: the inputs, repeated, beside the answer."""
+
+    method: str
+    population_size: int | None
+    population_label: str | None
+    sample_size: int
+    deviations: int
+    confidence: float
+    tolerable_rate: float | None
+    sample_deviation_rate: float
+    upper_deviation_limit: float
+    upper_deviation_count: int | None
+    allowance_for_sampling_risk: float
+    interval: Interval
+    risk_at_tolerable_rate: float | None
+    supports_reliance: bool | None
+    warnings: tuple[str, ...]
+
+
+class _TooManyDeviations(Exception):
+    """Internal signal: the plan search passed MAX_ALLOWED_DEVIATIONS."""
+
+
+# --- validation -------------------------------------------------------------
+
+
+def _check_open_unit(field: str, value: float) -> None:
+    if not (0.0 < value < 1.0):
+        raise InvalidInput(field, f"{field} {value!r} must be strictly between 0 and 1")
+
+
+def _check_population(population_size: int | None) -> None:
+    if population_size is not None and population_size < 1:
+        raise InvalidInput(
+            "population.size", f"population.size {population_size} must be at least 1"
+        )
+
+
+def _resolve_model(method: str | None, population_size: int | None) -> Model:
+    if method is None:
+        method = "binomial" if population_size is None else "hypergeometric"
+    model = MODELS.get(method)
+    if model is None:
+        raise InvalidInput("method", f"method {method!r} must be one of {sorted(MODELS)}")
+    if model.needs_population and population_size is None:
+        raise InvalidInput(
+            "population.size", f"the {method} method needs population.size to be given"
+        )
+    return model
+
+
+# --- sizing -----------------------------------------------------------------
+
+
+def _smallest_satisfying(holds: Callable[[int], bool], lo: int, hi: int) -> int:
+    """Smallest n in [lo, hi] with ``holds(n)``, for ``holds`` monotone and true at ``hi``.
+
+    The bracket is grown from ``lo`` by doubling before the bisection, so the
+    distributions are evaluated near the answer and not at ``hi``, which may be
+    very large (a population of 10^12 items).
+    """
+    step = 1
+    while lo + step < hi and not holds(lo + step):
+        lo += step + 1
+        step *= 2
+    hi = min(hi, lo + step)
+    while lo < hi:
+        mid = (lo + hi) // 2
+        if holds(mid):
+            hi = mid
+        else:
+            lo = mid + 1
+    return lo
+
+
+def _tail_within(tail: Callable[[Any, Any], Any], k: int, alpha: float, n: int) -> bool:
+    return bool(tail(k, n) <= alpha)
+
+
+def _normal_size_estimate(tolerable: float, expected: float, confidence: float) -> float:
+    """Rough size from the normal approximation, used only to refuse absurd requests fast."""
+    z = float(stats.norm.ppf(confidence))
+    return z * z * tolerable * (1.0 - tolerable) / (tolerable - expected) ** 2
+
+
+def _plan_search(
+    model: Model,
+    tolerable: Fraction,
+    expected: Fraction,
+    alpha: float,
+    population_size: int | None,
+    max_n: int,
+) -> tuple[int, int] | None:
+    """Return (n, k) of the smallest plan with n ≤ max_n, or None if there is none.
+
+    For a fixed k the tail P(X ≤ k) falls as n grows, so the sizing condition
+    holds for n ≥ n_k. The n that allow exactly k deviations form the block
+    I_k = {n : ceil(e n) = k}; the first block that contains an n ≥ n_k holds
+    the answer. Blocks are tested in vectorised chunks at their largest n,
+    then the answer is found by bisection inside the winning block.
+    """
+
+    def tail(k: Any, n: Any) -> Any:
+        return model.lower_tail(k, n, tolerable, population_size)
+
+    if expected == 0:
+        if tail(0, max_n) > alpha:
+            return None
+        return _smallest_satisfying(lambda n: bool(tail(0, n) <= alpha), 1, max_n), 0
+
+    # The scan below costs time in proportion to the deviations allowed; plans
+    # beyond this many are refused as impractical (see MAX_ALLOWED_DEVIATIONS).
+
+    first_k, chunk = 1, 8
+    while True:
+        if first_k > MAX_ALLOWED_DEVIATIONS:
+            raise _TooManyDeviations
+        ks = list(range(first_k, first_k + chunk))
+        # Clipped to max_n + 1 so that a tiny expected rate (1e-19) stays within int64.
+        block_low = [min(floor_quotient(k - 1, expected) + 1, max_n + 1) for k in ks]
+        if block_low[0] > max_n:
+            return None
+        block_high = [min(floor_quotient(k, expected), max_n) for k in ks]
+        k_arr = np.array(ks, dtype=np.int64)
+        high_arr = np.array(block_high, dtype=np.int64)
+        nonempty = np.array(block_low, dtype=np.int64) <= high_arr
+        feasible = nonempty & (tail(k_arr, np.maximum(high_arr, k_arr)) <= alpha)
+        hits = np.flatnonzero(feasible)
+        if hits.size:
+            i = int(hits[0])
+            k = ks[i]
+            holds = partial(_tail_within, tail, k, alpha)
+            return _smallest_satisfying(holds, block_low[i], block_high[i]), k
+        first_k += chunk
+        chunk = min(4 * chunk, 4096)
+
+
+def size_sample(
+    tolerable_rate: float,
+    expected_rate: float = 0.0,
+    confidence: float = 0.95,
+    population_size: int | None = None,
+    method: str | None = None,
+    *,
+    population_label: str | None = None,
+    max_sample_size: int = DEFAULT_MAX_SAMPLE_SIZE,
+) -> SampleSizePlan:
+    """Smallest sample size for a test of controls.
+
+    Parameters
+    ----------
+    tolerable_rate : float
+        Tolerable deviation rate ``t``, a fraction in (0, 1).
+    expected_rate : float
+        Expected population deviation rate ``e``, in [0, t).
+    confidence : float
+        One minus the acceptable risk of overreliance, in (0, 1).
+    population_size : int, optional
+        Number of items N; absent means a population large enough to ignore.
+    method : {"binomial", "hypergeometric", "poisson"}, optional
+        Defaults to hypergeometric when N is given, else binomial.
+    max_sample_size : int
+        Largest sample the search may consider.
+
+    Returns
+    -------
+    SampleSizePlan
+
+    Notes
+    -----
+    Defined as the smallest ``n`` with ``P(X ≤ ceil(e n)) ≤ 1 − confidence``
+    at the tolerable rate; see the module docstring. Counts are computed on
+    the exact decimal value of each rate (:mod:`service.sampling.rates`).
+    Under the hypergeometric model the population at the tolerable rate holds
+    ``ceil(t N)`` deviant items and the sample cannot exceed N.
+
+    References
+    ----------
+    AICPA, *Audit Guide: Audit Sampling* (2019), table A-1 (5% risk of
+    overreliance) and table A-2 (10%).
+
+    Examples
+    --------
+    >>> plan = size_sample(0.05, 0.0, 0.95)
+    >>> plan.sample_size, plan.allowed_deviations
+    (59, 0)
+    >>> plan = size_sample(0.05, 0.01, 0.95)
+    >>> plan.sample_size, plan.allowed_deviations
+    (93, 1)
+    """
+    _check_open_unit("tolerable_rate", tolerable_rate)
+    _check_open_unit("confidence", confidence)
+    if not (0.0 <= expected_rate < tolerable_rate):
+        raise InvalidInput(
+            "expected_rate",
+            f"expected_rate {expected_rate!r} must be at least 0 and below "
+            f"tolerable_rate {tolerable_rate!r}",
+        )
+    _check_population(population_size)
+    model = _resolve_model(method, population_size)
+
+    tolerable, expected = exact_rate(tolerable_rate), exact_rate(expected_rate)
+    alpha = 1.0 - confidence
+    max_n = max_sample_size
+    if model.needs_population and population_size is not None:
+        max_n = min(max_n, population_size)
+
+    if expected > 0:
+        estimate = _normal_size_estimate(tolerable_rate, expected_rate, confidence)
+        if population_size is not None and model.needs_population:
+            estimate = estimate / (1.0 + estimate / population_size)
+        if estimate > 2 * max_sample_size or estimate * expected_rate > 2 * MAX_ALLOWED_DEVIATIONS:
+            raise _too_large(estimate, expected_rate, tolerable_rate, max_sample_size)
+
+    try:
+        found = _plan_search(model, tolerable, expected, alpha, population_size, max_n)
+    except _TooManyDeviations:
+        raise _too_large(
+            MAX_ALLOWED_DEVIATIONS / expected_rate, expected_rate, tolerable_rate, max_sample_size
+        ) from None
+    if found is None:
+        if max_n == max_sample_size:
+            raise ComputationTooLarge(
+                "tolerable_rate",
+                f"no sample of at most {max_sample_size:,} items reaches confidence "
+                f"{confidence!r} at tolerable_rate {tolerable_rate!r} with expected_rate "
+                f"{expected_rate!r}",
+            )
+        raise NoFeasiblePlan(
+            "expected_rate",
+            f"no sample from a population of {population_size:,} items reaches confidence "
+            f"{confidence!r}: with expected_rate {expected_rate!r} the deviations allowed "
+            f"reach the {deviant_items(tolerable, max_n)} deviant items the population "
+            f"holds at tolerable_rate {tolerable_rate!r}",
+        )
+    n, k = found
+
+    risk_over = float(model.lower_tail(k, n, tolerable, population_size))
+    risk_under = 0.0 if expected == 0 else float(model.upper_tail(k, n, expected, population_size))
+    warnings = _plan_warnings(model, n, population_size, tolerable, alpha, max_n)
+    return SampleSizePlan(
+        method=model.name,
+        tolerable_rate=tolerable_rate,
+        expected_rate=expected_rate,
+        confidence=confidence,
+        population_size=population_size,
+        population_label=population_label,
+        sample_size=n,
+        allowed_deviations=k,
+        achieved_confidence=1.0 - risk_over,
+        risk_of_overreliance=risk_over,
+        risk_of_underreliance=risk_under,
+        warnings=warnings,
+    )
+
+
+def _too_large(
+    estimate: float, expected_rate: float, tolerable_rate: float, max_sample_size: int
+) -> ComputationTooLarge:
+    return ComputationTooLarge(
+        "expected_rate",
+        f"expected_rate {expected_rate!r} is too close to tolerable_rate {tolerable_rate!r}: "
+        f"the plan would need about {estimate:,.0f} items allowing about "
+        f"{estimate * expected_rate:,.0f} deviations; this service sizes plans of at most "
+        f"{max_sample_size:,} items and {MAX_ALLOWED_DEVIATIONS:,} allowed deviations",
+    )
+
+
+def _plan_warnings(
+    model: Model,
+    n: int,
+    population_size: int | None,
+    tolerable: Fraction,
+    alpha: float,
+    max_n: int,
+) -> tuple[str, ...]:
+    warnings: list[str] = []
+    if population_size is not None:
+        if n > population_size:
+            warnings.append(
+                f"The sample of {n:,} exceeds the population of {population_size:,} items; "
+                "the hypergeometric method sizes samples drawn without replacement."
+            )
+        elif 2 * n > population_size:
+            warnings.append(
+                f"The sample of {n:,} is more than half the population of "
+                f"{population_size:,} items; consider testing every item."
+            )
+        if (
+            not model.needs_population
+            and n <= population_size
+            and (Fraction(n, population_size) > _LARGE_SAMPLING_FRACTION)
+        ):
+            warnings.append(
+                "The sample is more than 10% of the population; the hypergeometric method "
+                "would give a smaller sample (common practice threshold)."
+            )
+    zero_plan = _plan_search(model, tolerable, Fraction(0), alpha, population_size, max_n)
+    if zero_plan is not None and n > _LARGE_PLAN_FACTOR * zero_plan[0]:
+        warnings.append(
+            f"The expected rate is close to the tolerable rate: the sample of {n:,} is more "
+            f"than {_LARGE_PLAN_FACTOR} times the zero-deviation sample of {zero_plan[0]:,}; "
+            "consider whether testing this control is efficient."
+        )
+    return tuple(warnings)
+
+
+# --- evaluation -------------------------------------------------------------
+
+
+def _binomial_upper(d: int, n: int, level: float) -> float:
+    """Clopper–Pearson one-sided upper bound at confidence ``level``."""
+    if d == n:
+        return 1.0
+    return float(stats.beta.ppf(level, d + 1, n - d))
+
+
+def _binomial_lower(d: int, n: int, level: float) -> float:
+    """Clopper–Pearson one-sided lower bound at confidence ``level``."""
+    if d == 0:
+        return 0.0
+    return float(stats.beta.ppf(1.0 - level, d, n - d + 1))
+
+
+def _poisson_upper(d: int, n: int, level: float) -> float:
+    """Garwood upper bound on the rate, ``Γ⁻¹(d + 1, level) / n``, capped at 1."""
+    return min(1.0, float(special.gammaincinv(d + 1, level)) / n)
+
+
+def _poisson_lower(d: int, n: int, level: float) -> float:
+    """Garwood lower bound on the rate, ``Γ⁻¹(d, 1 − level) / n``."""
+    if d == 0:
+        return 0.0
+    return min(1.0, float(special.gammaincinv(d, 1.0 - level)) / n)
+
+
+def _hypergeometric_upper_count(d: int, n: int, size: int, level: float) -> int:
+    """Largest deviant count M with P(X ≤ d | M) > 1 − level (exact, by bisection)."""
+    alpha = 1.0 - level
+    lo, hi = d, size - (n - d)  # P(X ≤ d | M = d) = 1, so lo always qualifies
+
+    def qualifies(m: int) -> bool:
+        return bool(hypergeometric.cdf(d, size, m, n) > alpha)
+
+    if qualifies(hi):
+        return hi
+    while hi - lo > 1:
+        mid = (lo + hi) // 2
+        if qualifies(mid):
+            lo = mid
+        else:
+            hi = mid
+    return lo
+
+
+def _hypergeometric_lower_count(d: int, n: int, size: int, level: float) -> int:
+    """Smallest deviant count M with P(X ≥ d | M) > 1 − level (exact, by bisection)."""
+    if d == 0:
+        return 0
+    alpha = 1.0 - level
+    lo, hi = d, size - (n - d)  # P(X ≥ d | M = hi) = 1, so hi always qualifies
+    return _smallest_satisfying(
+        lambda m: bool(hypergeometric.sf(d - 1, size, m, n) > alpha), lo, hi
+    )
+
+
+@dataclass(frozen=True)
+class _Limits:
+    upper: float
+    upper_count: int | None
+    interval: Interval
+
+
+def _binomial_limits(d: int, n: int, confidence: float, size: int | None) -> _Limits:
+    two_sided = 1.0 - (1.0 - confidence) / 2.0
+    return _Limits(
+        _binomial_upper(d, n, confidence),
+        None,
+        Interval(_binomial_lower(d, n, two_sided), _binomial_upper(d, n, two_sided)),
+    )
+
+
+def _poisson_limits(d: int, n: int, confidence: float, size: int | None) -> _Limits:
+    two_sided = 1.0 - (1.0 - confidence) / 2.0
+    return _Limits(
+        _poisson_upper(d, n, confidence),
+        None,
+        Interval(_poisson_lower(d, n, two_sided), _poisson_upper(d, n, two_sided)),
+    )
+
+
+def _hypergeometric_limits(d: int, n: int, confidence: float, size: int | None) -> _Limits:
+    if size is None:
+        raise InvalidInput("population.size", "the hypergeometric method needs a population size")
+    two_sided = 1.0 - (1.0 - confidence) / 2.0
+    upper = _hypergeometric_upper_count(d, n, size, confidence)
+    low = _hypergeometric_lower_count(d, n, size, two_sided)
+    high = _hypergeometric_upper_count(d, n, size, two_sided)
+    return _Limits(upper / size, upper, Interval(low / size, high / size))
+
+
+_LIMITS: dict[str, Callable[[int, int, float, int | None], _Limits]] = {
+    "binomial": _binomial_limits,
+    "hypergeometric": _hypergeometric_limits,
+    "poisson": _poisson_limits,
+}
+
+
+def evaluate_sample(
+    sample_size: int,
+    deviations: int,
+    confidence: float = 0.95,
+    tolerable_rate: float | None = None,
+    population_size: int | None = None,
+    method: str | None = None,
+    *,
+    population_label: str | None = None,
+) -> Evaluation:
+    """Evaluate the deviations found in a test of controls.
+
+    Parameters
+    ----------
+    sample_size : int
+        Items tested, ``n ≥ 1`` (at most N when a population size is given).
+    deviations : int
+        Deviations found, ``0 ≤ d ≤ n``.
+    confidence : float
+        Confidence of the limits, in (0, 1).
+    tolerable_rate : float, optional
+        When given, the result says whether the sample supports reliance.
+    population_size : int, optional
+        N, required by the hypergeometric method (the default when given).
+    method : {"binomial", "hypergeometric", "poisson"}, optional
+
+    Returns
+    -------
+    Evaluation
+
+    Notes
+    -----
+    Upper deviation limit: binomial, the Clopper–Pearson bound, the ``p`` with
+    ``P(X ≤ d | p) = 1 − confidence``; hypergeometric, ``M_U / N`` with
+    ``M_U`` the largest deviant count for which ``P(X ≤ d | M) > 1 − confidence``;
+    Poisson, ``λ_U / n`` with ``P(Y ≤ d | λ_U) = 1 − confidence`` (Garwood).
+    The two-sided interval puts ``(1 − confidence) / 2`` in each tail.
+    The sample supports reliance when ``P(X ≤ d) ≤ 1 − confidence`` at the
+    tolerable rate, the same condition the sample size plan uses.
+
+    References
+    ----------
+    Clopper & Pearson (1934); Wright (1991); Garwood (1936); AICPA,
+    *Audit Guide: Audit Sampling* (2019), tables A-3 and A-4.
+
+    Examples
+    --------
+    >>> result = evaluate_sample(100, 2, 0.95)
+    >>> round(result.upper_deviation_limit, 4)
+    0.0616
+    """
+    if sample_size < 1:
+        raise InvalidInput("sample_size", f"sample_size {sample_size} must be at least 1")
+    if not (0 <= deviations <= sample_size):
+        raise InvalidInput(
+            "deviations",
+            f"deviations {deviations} must be between 0 and sample_size {sample_size}",
+        )
+    _check_open_unit("confidence", confidence)
+    if tolerable_rate is not None:
+        _check_open_unit("tolerable_rate", tolerable_rate)
+    _check_population(population_size)
+    if population_size is not None and sample_size > population_size:
+        raise InvalidInput(
+            "sample_size",
+            f"sample_size {sample_size} exceeds population.size {population_size}",
+        )
+    model = _resolve_model(method, population_size)
+
+    limits = _LIMITS[model.name](deviations, sample_size, confidence, population_size)
+    rate = Fraction(deviations, sample_size)
+    upper = (
+        Fraction(limits.upper_count, population_size)
+        if limits.upper_count is not None and population_size is not None
+        else Fraction(limits.upper)
+    )
+    upper = max(upper, rate)
+
+    risk: float | None = None
+    supports: bool | None = None
+    if tolerable_rate is not None:
+        risk = float(
+            model.lower_tail(deviations, sample_size, exact_rate(tolerable_rate), population_size)
+        )
+        supports = risk <= 1.0 - confidence
+
+    warnings: list[str] = []
+    if model.name == "poisson" and rate > Fraction(1, 10):
+        warnings.append(
+            "The sample deviation rate is above 10%, where the Poisson approximation is "
+            "markedly conservative; the binomial or hypergeometric method is more accurate."
+        )
+    if model.name == "poisson" and limits.upper >= 1.0:
+        warnings.append("The Poisson bound reached 1 and was capped there.")
+    if (
+        population_size is not None
+        and not model.needs_population
+        and Fraction(sample_size, population_size) > _LARGE_SAMPLING_FRACTION
+    ):
+        warnings.append(
+            "The sample is more than 10% of the population; the hypergeometric method "
+            "would give a tighter limit (common practice threshold)."
+        )
+
+    return Evaluation(
+        method=model.name,
+        population_size=population_size,
+        population_label=population_label,
+        sample_size=sample_size,
+        deviations=deviations,
+        confidence=confidence,
+        tolerable_rate=tolerable_rate,
+        sample_deviation_rate=float(rate),
+        upper_deviation_limit=float(upper),
+        upper_deviation_count=limits.upper_count,
+        # one rounding, of the exact difference
+        allowance_for_sampling_risk=float(upper - rate),
+        interval=limits.interval,
+        risk_at_tolerable_rate=risk,
+        supports_reliance=supports,
+        warnings=tuple(warnings),
+    )
+
+
+__all__ = [
+    "DEFAULT_MAX_SAMPLE_SIZE",
+    "Evaluation",
+    "Interval",
+    "SampleSizePlan",
+    "evaluate_sample",
+    "size_sample",
+]

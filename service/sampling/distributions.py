@@ -1,0 +1,128 @@
+"""The three attribute-sampling models: binomial, hypergeometric and Poisson.
+
+Each model answers one question for a sample of ``n`` items drawn from a
+population whose true deviation rate is ``rate``: the probability that the
+sample shows at most ``k`` deviations (``lower_tail``), and more than ``k``
+(``upper_tail``). Arguments ``k`` and ``n`` may be integers or integer numpy
+arrays of one shape; the result has that shape.
+
+- binomial: X ~ Binomial(n, rate): sampling with replacement, or from a
+  population large enough for that to be immaterial.
+- hypergeometric: X ~ Hypergeometric(N, M, n) with M = ceil(rate × N) deviant
+  items in a population of N, sampled without replacement. The count is
+  rounded up so that a population "at the tolerable rate" holds at least that
+  rate of deviations.
+- Poisson: X ~ Poisson(n × rate), the approximation behind the confidence
+  factors of attribute-sampling practice.
+
+References
+----------
+AICPA, *Audit Guide: Audit Sampling* (2019), chapter 3 and appendix A on
+attribute sampling tables built from these distributions.
+Johnson, Kemp & Kotz, *Univariate Discrete Distributions*, 3rd ed. (2005),
+chapters 3, 4 and 6.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable
+from dataclasses import dataclass
+from fractions import Fraction
+from typing import Any
+
+import numpy as np
+from numpy.typing import NDArray
+from scipy import stats
+
+from service.sampling import hypergeometric
+from service.sampling.errors import InvalidInput
+from service.sampling.rates import ceil_product
+
+Counts = int | NDArray[np.int64]
+Tail = Callable[[Counts, Counts, Fraction, int | None], Any]
+
+
+def deviant_items(rate: Fraction, population_size: int) -> int:
+    """Number of deviant items a population of ``population_size`` holds at ``rate``.
+
+    Defined as ``ceil(rate × N)``, computed exactly.
+
+    >>> deviant_items(Fraction(5, 100), 4200)
+    210
+    >>> deviant_items(Fraction(5, 100), 10)
+    1
+    """
+    return ceil_product(rate, population_size)
+
+
+def _binomial_lower(k: Counts, n: Counts, rate: Fraction, population_size: int | None) -> Any:
+    return stats.binom.cdf(k, n, float(rate))
+
+
+def _binomial_upper(k: Counts, n: Counts, rate: Fraction, population_size: int | None) -> Any:
+    return stats.binom.sf(k, n, float(rate))
+
+
+def _required_population(population_size: int | None) -> int:
+    if population_size is None:
+        raise InvalidInput("population.size", "the hypergeometric method needs a population size")
+    return population_size
+
+
+def _hypergeometric_lower(
+    k: Counts, n: Counts, rate: Fraction, population_size: int | None
+) -> Any:
+    size = _required_population(population_size)
+    return hypergeometric.cdf(k, size, deviant_items(rate, size), n)
+
+
+def _hypergeometric_upper(
+    k: Counts, n: Counts, rate: Fraction, population_size: int | None
+) -> Any:
+    size = _required_population(population_size)
+    return hypergeometric.sf(k, size, deviant_items(rate, size), n)
+
+
+def _poisson_lower(k: Counts, n: Counts, rate: Fraction, population_size: int | None) -> Any:
+    return stats.poisson.cdf(k, np.multiply(n, float(rate)))
+
+
+def _poisson_upper(k: Counts, n: Counts, rate: Fraction, population_size: int | None) -> Any:
+    return stats.poisson.sf(k, np.multiply(n, float(rate)))
+
+
+@dataclass(frozen=True)
+class Model:
+    """One attribute-sampling model: its tails and what it needs."""
+
+    name: str
+    lower_tail: Tail
+    upper_tail: Tail
+    needs_population: bool
+    reference: str
+
+
+MODELS: dict[str, Model] = {
+    "binomial": Model(
+        "binomial",
+        _binomial_lower,
+        _binomial_upper,
+        needs_population=False,
+        reference="binomial distribution; Clopper & Pearson (1934), Biometrika 26(4)",
+    ),
+    "hypergeometric": Model(
+        "hypergeometric",
+        _hypergeometric_lower,
+        _hypergeometric_upper,
+        needs_population=True,
+        reference="hypergeometric distribution; Wright (1991), Statistics & Probability "
+        "Letters 11(5); Buonaccorsi (1987), Communications in Statistics A 16(5)",
+    ),
+    "poisson": Model(
+        "poisson",
+        _poisson_lower,
+        _poisson_upper,
+        needs_population=False,
+        reference="Poisson approximation; Garwood (1936), Biometrika 28(3/4)",
+    ),
+}

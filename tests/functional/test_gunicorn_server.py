@@ -1,0 +1,171 @@
+"""The real server: gunicorn with docker/gunicorn.conf.py, on a free 127.0.0.1 port."""
+
+from __future__ import annotations
+
+import os
+import signal
+import socket
+import subprocess
+import sys
+import time
+from collections.abc import Iterator
+from pathlib import Path
+from typing import Any
+
+import pytest
+import requests
+import yaml
+from scipy import stats
+
+from service.openapi import build_yaml
+
+pytestmark = pytest.mark.functional
+
+ROOT = Path(__file__).resolve().parents[2]
+GUNICORN = Path(sys.executable).parent / "gunicorn"
+HOST = "127.0.0.1"
+START_SECONDS = 30.0
+STOP_SECONDS = 15.0
+REQUEST_SECONDS = 10.0
+
+
+def _free_port() -> int:
+    with socket.socket(socket.AF_INET, socket.SOCK_STREAM) as sock:
+        sock.bind((HOST, 0))
+        return int(sock.getsockname()[1])
+
+
+def _stop(process: subprocess.Popen[bytes]) -> None:
+    if process.poll() is not None:
+        return
+    process.send_signal(signal.SIGTERM)
+    try:
+        process.wait(timeout=STOP_SECONDS)
+    except subprocess.TimeoutExpired:
+        process.kill()
+        process.wait(timeout=STOP_SECONDS)
+
+
+@pytest.fixture(scope="module")
+def server(tmp_path_factory: pytest.TempPathFactory) -> Iterator[str]:
+    """Start gunicorn, wait (bounded) until it answers, yield its base URL, then stop it."""
+    assert GUNICORN.exists(), f"gunicorn not found beside {sys.executable}"
+    port = _free_port()
+    base = f"http://{HOST}:{port}"
+    env = {**os.environ, "HOST": HOST, "PORT": str(port), "WEB_CONCURRENCY": "2"}
+    log_path = tmp_path_factory.mktemp("gunicorn") / "server.log"
+    with log_path.open("wb") as log:
+        process = subprocess.Popen(
+            [str(GUNICORN), "--config", "docker/gunicorn.conf.py", "service.wsgi:app"],
+            cwd=ROOT,
+            env=env,
+            stdout=log,
+            stderr=subprocess.STDOUT,
+        )
+        try:
+            deadline = time.monotonic() + START_SECONDS
+            while True:
+                if process.poll() is not None:
+                    pytest.fail(f"gunicorn exited with {process.returncode}:\n"
+                                + log_path.read_text(errors="replace")[-3000:])
+                try:
+                    if requests.get(f"{base}/v1/health", timeout=1).status_code == 200:
+                        break
+                except requests.ConnectionError:
+                    pass
+                if time.monotonic() > deadline:
+                    pytest.fail(f"gunicorn did not answer within {START_SECONDS:.0f} s:\n"
+                                + log_path.read_text(errors="replace")[-3000:])
+                time.sleep(0.2)
+            yield base
+        finally:
+            _stop(process)
+
+
+@pytest.fixture
+def http() -> Iterator[requests.Session]:
+    with requests.Session() as session:
+        yield session
+
+
+def _post(http: requests.Session, url: str, body: Any) -> requests.Response:
+    return http.post(url, json=body, timeout=REQUEST_SECONDS)
+
+
+def test_health(server: str, http: requests.Session) -> None:
+    response = http.get(f"{server}/v1/health", timeout=REQUEST_SECONDS)
+    assert response.status_code == 200
+    assert response.headers["Content-Type"].startswith("application/json")
+    body = response.json()
+    assert body["status"] == "ok"
+    assert isinstance(body["version"], str) and body["version"]
+
+
+def test_sample_size(server: str, http: requests.Session) -> None:
+    response = _post(http, f"{server}/v1/sample-size",
+                     {"tolerable_rate": 0.05, "expected_rate": 0.01})
+    assert response.status_code == 200, response.text
+    plan = response.json()
+    # AICPA Audit Guide: Audit Sampling, table A-1 (recalled from memory): 93 items, 1 allowed.
+    assert (plan["sample_size"], plan["allowed_deviations"]) == (93, 1)
+
+
+def test_evaluation(server: str, http: requests.Session) -> None:
+    response = _post(http, f"{server}/v1/evaluation",
+                     {"sample_size": 100, "deviations": 2, "tolerable_rate": 0.07})
+    assert response.status_code == 200, response.text
+    result = response.json()
+    # Clopper–Pearson upper bound, scipy.stats as reference library.
+    assert result["upper_deviation_limit"] == pytest.approx(
+        float(stats.beta.ppf(0.95, 3, 98)), rel=1e-12
+    )
+    assert result["conclusion"] == "supports_reliance"
+
+
+def test_invalid_input_is_problem_details(server: str, http: requests.Session) -> None:
+    response = _post(http, f"{server}/v1/sample-size", {"tolerable_rate": 5})
+    assert response.status_code == 422
+    assert response.headers["Content-Type"] == "application/problem+json"
+    problem = response.json()
+    assert {"type", "title", "status", "detail", "instance"} <= set(problem)
+    assert problem["status"] == 422
+    assert "percentage" in " ".join(problem["errors"]["tolerable_rate"])
+
+
+def test_unknown_path_is_404(server: str, http: requests.Session) -> None:
+    response = http.get(f"{server}/v1/nothing-here", timeout=REQUEST_SECONDS)
+    assert response.status_code == 404
+    assert response.headers["Content-Type"] == "application/problem+json"
+    assert response.json()["status"] == 404
+
+
+def test_body_over_the_limit_is_413(server: str, http: requests.Session) -> None:
+    # Over the default 1 MiB limit, sent in chunks without a Content-Length.
+    chunk = b" " * 65_536
+
+    def body() -> Iterator[bytes]:
+        yield b'{"tolerable_rate": 0.05'
+        for _ in range(20):
+            yield chunk
+        yield b"}"
+
+    response = http.post(
+        f"{server}/v1/sample-size",
+        data=body(),
+        headers={"Content-Type": "application/json"},
+        timeout=REQUEST_SECONDS,
+    )
+    assert response.status_code == 413
+    assert response.headers["Content-Type"] == "application/problem+json"
+    # The workers still answer.
+    assert _post(http, f"{server}/v1/sample-size", {"tolerable_rate": 0.05}).status_code == 200
+
+
+def test_openapi_document(server: str, http: requests.Session) -> None:
+    response = http.get(f"{server}/openapi.yaml", timeout=REQUEST_SECONDS)
+    assert response.status_code == 200
+    assert response.headers["Content-Type"].startswith("application/yaml")
+    assert response.content.decode("utf-8") == build_yaml()
+    document = yaml.safe_load(response.content)
+    assert document["openapi"].startswith("3.1")
+    assert {"/v1/sample-size", "/v1/evaluation", "/v1/health"} <= set(document["paths"])
