@@ -48,6 +48,10 @@ def _allowance(count: int) -> str:
     return "no deviation" if count == 0 else f"at most {_deviations(count)}"
 
 
+def _at_most(count: int) -> str:
+    return "no deviation" if count == 0 else f"{count:,} or fewer deviations"
+
+
 def plan_summary(plan: SampleSizePlan) -> str:
     """One paragraph describing a sample size plan."""
     text = (
@@ -55,7 +59,7 @@ def plan_summary(plan: SampleSizePlan) -> str:
         f"{_population_phrase(plan.population_size, plan.population_label)} and allow "
         f"{_allowance(plan.allowed_deviations)} ({plan.method} model). If the true deviation "
         f"rate were the tolerable rate of {percent(plan.tolerable_rate)}, a sample this size "
-        f"would show {plan.allowed_deviations:,} or fewer deviations with probability "
+        f"would show {_at_most(plan.allowed_deviations)} with probability "
         f"{percent(plan.risk_of_overreliance)} (risk of overreliance; confidence "
         f"{percent(plan.achieved_confidence)} against the {percent(plan.confidence)} asked for)."
     )
