@@ -34,6 +34,7 @@ bench: $(VENV)/.installed
 	$(BIN)/python bench/bench_sizing.py
 	$(BIN)/python bench/bench_selection.py
 	$(BIN)/python bench/bench_estimation.py
+	$(BIN)/python bench/bench_hypergeometric.py
 
 clean:
 	rm -rf $(VENV) .pytest_cache .mypy_cache .ruff_cache .hypothesis .coverage
