@@ -45,7 +45,7 @@ import numpy as np
 from scipy import special, stats
 
 from service.sampling import hypergeometric
-from service.sampling.distributions import MODELS, Model, deviant_items
+from service.sampling.distributions import Model, deviant_items, resolve_model
 from service.sampling.errors import ComputationTooLarge, InvalidInput, NoFeasiblePlan
 from service.sampling.rates import exact_rate, floor_quotient
 
@@ -123,19 +123,6 @@ def _check_population(population_size: int | None) -> None:
         raise InvalidInput(
             "population.size", f"population.size {population_size} must be at least 1"
         )
-
-
-def _resolve_model(method: str | None, population_size: int | None) -> Model:
-    if method is None:
-        method = "binomial" if population_size is None else "hypergeometric"
-    model = MODELS.get(method)
-    if model is None:
-        raise InvalidInput("method", f"method {method!r} must be one of {sorted(MODELS)}")
-    if model.needs_population and population_size is None:
-        raise InvalidInput(
-            "population.size", f"the {method} method needs population.size to be given"
-        )
-    return model
 
 
 # --- sizing -----------------------------------------------------------------
@@ -286,7 +273,7 @@ def size_sample(
             f"tolerable_rate {tolerable_rate!r}",
         )
     _check_population(population_size)
-    model = _resolve_model(method, population_size)
+    model = resolve_model(method, population_size)
 
     tolerable, expected = exact_rate(tolerable_rate), exact_rate(expected_rate)
     alpha = 1.0 - confidence
@@ -562,7 +549,7 @@ def evaluate_sample(
             "sample_size",
             f"sample_size {sample_size} exceeds population.size {population_size}",
         )
-    model = _resolve_model(method, population_size)
+    model = resolve_model(method, population_size)
 
     limits = _LIMITS[model.name](deviations, sample_size, confidence, population_size)
     rate = Fraction(deviations, sample_size)

@@ -69,7 +69,7 @@ from fractions import Fraction
 
 from scipy import special, stats
 
-from service.sampling.distributions import MODELS, Model
+from service.sampling.distributions import Model, resolve_model
 from service.sampling.errors import ComputationTooLarge, InvalidInput
 from service.sampling.rates import exact_rate
 from service.sampling.wording import CAUTION, percent
@@ -191,19 +191,6 @@ def _rate(value: object, field: str, *, allow_zero: bool) -> float:
         bounds = "from 0 up to (not including) 1" if allow_zero else "strictly between 0 and 1"
         raise InvalidInput(field, f"{field} must be a fraction {bounds}; got {value!r}")
     return number
-
-
-def _model(method: str | None, population_size: int | None) -> Model:
-    if method is None:
-        method = "binomial" if population_size is None else "hypergeometric"
-    model = MODELS.get(method)
-    if model is None:
-        raise InvalidInput("method", f"method {method!r} must be one of {sorted(MODELS)}")
-    if model.needs_population and population_size is None:
-        raise InvalidInput(
-            "population.size", f"the {method} method needs population.size to be given"
-        )
-    return model
 
 
 # --- the curve --------------------------------------------------------------
@@ -349,7 +336,7 @@ def operating_characteristic(
             f"allowed_deviations {k:,} must not exceed sample_size {n:,}",
         )
     size = None if population_size is None else _whole(population_size, "population.size", 1)
-    model = _model(method, size)
+    model = resolve_model(method, size)
     if model.needs_population and size is not None and n > size:
         raise InvalidInput(
             "sample_size",

@@ -146,3 +146,17 @@ MODELS: dict[str, Model] = {
         reference="Poisson approximation; Garwood (1936), Biometrika 28(3/4)",
     ),
 }
+
+
+def resolve_model(method: str | None, population_size: int | None) -> Model:
+    """The model named ``method``; by default hypergeometric when N is given, else binomial."""
+    if method is None:
+        method = "binomial" if population_size is None else "hypergeometric"
+    model = MODELS.get(method)
+    if model is None:
+        raise InvalidInput("method", f"method {method!r} must be one of {sorted(MODELS)}")
+    if model.needs_population and population_size is None:
+        raise InvalidInput(
+            "population.size", f"the {method} method needs population.size to be given"
+        )
+    return model
