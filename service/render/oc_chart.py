@@ -204,9 +204,14 @@ def render_operating_characteristic_svg(
         axes.set_xlabel("True deviation rate", gid="axis-x-label")
         axes.set_ylabel("Probability the sample supports reliance", gid="axis-y-label")
         noun = "deviation" if allowed_deviations == 1 else "deviations"
-        axes.set_title(f"Sample of {sample_size:,} items, reliance with up to "
-                       f"{allowed_deviations:,} {noun}", loc="left", fontsize=9.5,
-                       color=_INK, gid="plan-title")
+        allowance = (
+            "only with no deviation"
+            if allowed_deviations == 0
+            else f"with up to {allowed_deviations:,} {noun}"
+        )
+        items = "item" if sample_size == 1 else "items"
+        axes.set_title(f"Sample of {sample_size:,} {items}, reliance {allowance}", loc="left",
+                       fontsize=9.5, color=_INK, gid="plan-title")
         figure.text(0.11, 0.035, caption, ha="left", va="bottom", fontsize=8, color=_MUTED,
                     wrap=True, gid="caption")
 
