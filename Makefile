@@ -6,7 +6,10 @@ HOST ?= 127.0.0.1
 PORT ?= 8000
 export HOST PORT
 
-.PHONY: run test lint spec bench clean
+.PHONY: run test lint fuzz spec bench clean
+
+# Examples per operation and generation mode for `make fuzz`.
+FUZZ_EXAMPLES ?= 500
 
 $(BIN)/activate:
 	$(PYTHON) -m venv $(VENV)
@@ -23,9 +26,13 @@ run: $(VENV)/.installed
 lint: $(VENV)/.installed
 	$(BIN)/ruff check .
 	$(BIN)/mypy
+	$(BIN)/bandit -q -c pyproject.toml -r service schemas
 
 test: lint
 	$(BIN)/python -m pytest
+
+fuzz: $(VENV)/.installed
+	FUZZ_EXAMPLES=$(FUZZ_EXAMPLES) $(BIN)/python -m pytest -q tests/contract
 
 spec: $(VENV)/.installed
 	$(BIN)/python -m service.openapi > openapi.yaml

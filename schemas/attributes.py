@@ -16,6 +16,7 @@ from marshmallow import (
 
 from schemas.common import IntervalSchema, PopulationSchema, StrictSchema, without_absent
 from schemas.fields import Rate, StrictFloat, StrictInteger, StrictString
+from service.sampling.attributes import MAX_CONFIDENCE, MIN_CONFIDENCE, MIN_TOLERABLE_RATE
 from service.sampling.distributions import MODELS
 from service.sampling.wording import evaluation_summary, plan_summary
 
@@ -35,6 +36,8 @@ def _confidence() -> StrictFloat:
     return Rate(
         load_default=0.95,
         metadata={
+            "minimum": MIN_CONFIDENCE,
+            "maximum": MAX_CONFIDENCE,
             "description": "Confidence, one minus the risk of overreliance, as a fraction.",
             "example": 0.95,
         },
@@ -57,7 +60,11 @@ class SampleSizeRequest(StrictSchema):
     )
     tolerable_rate = Rate(
         required=True,
-        metadata={"description": "Tolerable deviation rate, as a fraction.", "example": 0.05},
+        metadata={
+            "minimum": MIN_TOLERABLE_RATE,
+            "description": "Tolerable deviation rate, as a fraction.",
+            "example": 0.05,
+        },
     )
     expected_rate = Rate(
         allow_zero=True,
@@ -188,6 +195,7 @@ class EvaluationRequest(StrictSchema):
     confidence = _confidence()
     tolerable_rate = Rate(
         metadata={
+            "minimum": MIN_TOLERABLE_RATE,
             "description": "When given, the response says whether the sample supports reliance.",
             "example": 0.05,
         },

@@ -55,6 +55,12 @@ class ProblemSchema(Schema):
     status = fields.Integer(required=True)
     detail = fields.String(required=True)
     instance = fields.String(metadata={"description": "The request path."})
+    request_id = fields.String(
+        metadata={
+            "description": "The request id, as in the X-Request-ID response header.",
+            "example": "3f2b9c0d4e5f46a7b8c9d0e1f2a3b4c5",
+        }
+    )
     errors = fields.Dict(
         keys=fields.String(),
         values=fields.List(fields.String()),
@@ -70,6 +76,14 @@ class HealthSchema(Schema):
 
     status = fields.String(required=True, metadata={"example": "ok"})
     version = fields.String(required=True, metadata={"example": "0.1.0"})
+
+
+class ReadySchema(Schema):
+    """Readiness."""
+
+    status = fields.String(
+        required=True, metadata={"enum": ["ready", "starting"], "example": "ready"}
+    )
 
 
 def without_absent(data: dict[str, Any], keys: tuple[str, ...]) -> dict[str, Any]:

@@ -15,14 +15,14 @@ from marshmallow import (
 
 from schemas.common import PopulationSchema, StrictSchema, without_absent
 from schemas.fields import Rate, StrictFloat, StrictString
-from service.sampling.estimation import METHODS
+from service.sampling.estimation import MAX_CONFIDENCE, METHODS, MIN_CONFIDENCE, MIN_MARGIN
 from service.sampling.wording import CAUTION, percent
 
 GUARANTEES = ["exact", "approximate", "distribution_free_bound"]
 
 
 class Margin(StrictFloat):
-    """A margin on a rate: a fraction strictly between 0 and 0.5."""
+    """A margin on a rate: a fraction from MIN_MARGIN up to (not including) 0.5."""
 
     default_error_messages = {  # noqa: RUF012 - marshmallow's documented extension point
         **StrictFloat.default_error_messages,
@@ -30,20 +30,39 @@ class Margin(StrictFloat):
     }
 
     def __init__(self, **kwargs: Any) -> None:
-        metadata = {"exclusiveMinimum": 0, "exclusiveMaximum": 0.5, **kwargs.pop("metadata", {})}
+        metadata = {"minimum": MIN_MARGIN, "exclusiveMaximum": 0.5, **kwargs.pop("metadata", {})}
         super().__init__(metadata=metadata, **kwargs)
 
     def _deserialize(self, value: Any, attr: str | None, data: Any, **kwargs: Any) -> float:
         result = super()._deserialize(value, attr, data, **kwargs)
-        if 0 < result < 0.5:
+        if MIN_MARGIN <= result < 0.5:
             return result
-        message = f"must be a fraction greater than 0 and less than 0.5; got {value!r}"
+        message = f"must be a fraction at least {MIN_MARGIN:g} and less than 0.5; got {value!r}"
         if 1 <= result <= 100:
             message += (
                 f", which looks like a percentage: margins are fractions, so {value!r}% "
                 f"is {result / 100!r}"
             )
         raise self.make_error("out_of_range", message=message)
+
+
+class _MethodList(fields.List[Any]):
+    """A list of method names whose length is checked before its entries."""
+
+    def _deserialize(self, value: Any, attr: str | None, data: Any, **kwargs: Any) -> Any:
+        if isinstance(value, list):
+            _few_enough(value)
+        return super()._deserialize(value, attr, data, **kwargs)
+
+
+def _few_enough(names: list[str]) -> None:
+    """Between one method and each method once; checked before the entries are named."""
+    if not names:
+        raise ValidationError("must name at least one method")
+    if len(names) > len(METHODS):
+        raise ValidationError(
+            f"names {len(names):,} methods; there are {len(METHODS)} and each may appear once"
+        )
 
 
 def _no_repeats(names: list[str]) -> None:
@@ -72,7 +91,12 @@ class EstimationRequest(StrictSchema):
     )
     confidence = Rate(
         load_default=0.95,
+        validate=validate.Range(
+            MIN_CONFIDENCE, MAX_CONFIDENCE, error="must be from {min} to {max}; got {input}"
+        ),
         metadata={
+            "minimum": MIN_CONFIDENCE,
+            "maximum": MAX_CONFIDENCE,
             "description": "Probability, as a fraction, that the sample rate lands within "
             "the margin of the true rate.",
             "example": 0.95,
@@ -92,9 +116,9 @@ class EstimationRequest(StrictSchema):
             "the sample is drawn without replacement and no size exceeds population.size."
         },
     )
-    methods = fields.List(
+    methods = _MethodList(
         StrictString(validate=validate.OneOf(METHODS, error="must be one of {choices}")),
-        validate=[validate.Length(min=1, error="must name at least one method"), _no_repeats],
+        validate=[_few_enough, _no_repeats],
         error_messages={"invalid": "must be an array of method names"},
         metadata={
             "description": "Methods to compare, one row each in this order. "

@@ -29,6 +29,7 @@ from schemas.common import StrictSchema, without_absent
 from schemas.fields import MAX_EXACT_INTEGER, StrictInteger, StrictString, _kind
 from service.sampling.selection import (
     ALGORITHM_ID,
+    MAX_IDENTIFIER_LENGTH,
     MAX_SEED_LENGTH,
     METHODS,
     ItemPopulation,
@@ -110,7 +111,8 @@ class IdentifierList(_ListField):
     noun = "identifiers"
 
     def __init__(self, **kwargs: Any) -> None:
-        super().__init__(StrictString(), **kwargs)
+        entry = StrictString(metadata={"minLength": 1, "maxLength": MAX_IDENTIFIER_LENGTH})
+        super().__init__(entry, **kwargs)
 
     def _deserialize(self, value: Any, attr: str | None, data: Any, **kwargs: Any) -> list[Any]:
         entries = self._check_list(value)
@@ -236,8 +238,9 @@ class SelectionPopulationSchema(StrictSchema):
     )
     items = IdentifierList(
         metadata={
-            "description": "Distinct, non-empty identifiers without the character U+0000, at "
-            "most the service's item limit (1,000,000 by default). Used exactly as given (no "
+            "description": "Distinct, non-empty identifiers of at most 1,000 characters "
+            "without the character U+0000, at most the service's item limit (1,000,000 by "
+            "default). Used exactly as given (no "
             "trimming, case folding or Unicode normalisation); their order does not matter. "
             "The population is the list in ascending Unicode code point order.",
             "example": ["PO-10001", "PO-10002", "PO-10003"],

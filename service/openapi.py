@@ -12,9 +12,10 @@ import yaml
 from apispec import APISpec
 from apispec.ext.marshmallow import MarshmallowPlugin
 
-from schemas.common import HealthSchema, ProblemSchema
+from schemas.common import HealthSchema, ProblemSchema, ReadySchema
 from schemas.fields import StrictFloat, StrictInteger, StrictString
 from service.http import all_operations
+from service.http.markdown import MARKDOWN
 from service.version import VERSION
 
 OPENAPI_VERSION = "3.1.0"
@@ -30,8 +31,17 @@ _PROBLEM_STATUSES = {
 DESCRIPTION = (
     "Sizes, evaluates and documents statistical samples for tests of controls. "
     "Rates are fractions (5% is 0.05). Every error is application/problem+json "
-    "(RFC 9457). Results support, and do not replace, professional judgement "
+    "(RFC 9457). Every answer carries an X-Request-ID header: the one sent (1 to 128 "
+    "letters, digits, '.', '_', ':' or '-') or a new one, repeated as request_id in "
+    "problem details. Results support, and do not replace, professional judgement "
     "and the applicable auditing standards."
+)
+
+
+MARKDOWN_DESCRIPTION = (
+    "A short block for a ticket or workpaper: heading, inputs, answer, method and its "
+    "reference, warnings, service version, request fingerprint (SHA-256 of the canonical "
+    'JSON of the request: keys sorted, separators "," and ":", UTF-8) and the caution.'
 )
 
 
@@ -57,11 +67,14 @@ def build_spec() -> APISpec:
     plugin.converter.map_to_openapi_type(StrictString, "string", None)  # type: ignore[union-attr]
     spec.components.schema("Problem", schema=ProblemSchema)
     spec.components.schema("Health", schema=HealthSchema)
+    spec.components.schema("Ready", schema=ReadySchema)
 
     for operation in all_operations():
         content: dict[str, Any] = {"application/json": {"schema": operation.response}}
-        for media_type in operation.renderers:
+        for media_type in operation.media_types[1:]:
             content[media_type] = {"schema": {"type": "string"}}
+        if MARKDOWN in content and MARKDOWN not in operation.renderers:
+            content[MARKDOWN]["schema"]["description"] = MARKDOWN_DESCRIPTION
         responses: dict[str, Any] = {"200": {"description": operation.summary, "content": content}}
         responses.update(
             {code: _problem_response(text) for code, text in _PROBLEM_STATUSES.items()}
@@ -95,6 +108,27 @@ def build_spec() -> APISpec:
                         "description": "The service is up.",
                         "content": {"application/json": {"schema": "Health"}},
                     }
+                },
+            }
+        },
+    )
+    spec.path(
+        path="/v1/ready",
+        operations={
+            "get": {
+                "operationId": "ready",
+                "summary": "Readiness",
+                "description": "200 once the application is built and can answer requests.",
+                "tags": ["service"],
+                "responses": {
+                    "200": {
+                        "description": "The service is ready.",
+                        "content": {"application/json": {"schema": "Ready"}},
+                    },
+                    "503": {
+                        "description": "The service is starting.",
+                        "content": {"application/json": {"schema": "Ready"}},
+                    },
                 },
             }
         },

@@ -1,8 +1,9 @@
 """Problem details (RFC 9457) for every error the service returns.
 
 Each error is one ``application/problem+json`` body with ``type``, ``title``,
-``status``, ``detail`` and ``instance``; invalid input adds ``errors``, mapping
-each offending field (a dotted path such as ``population.size``) to messages.
+``status``, ``detail``, ``instance`` and ``request_id`` (the ``X-Request-ID`` of the
+answer); invalid input adds ``errors``, mapping each offending field (a dotted path such
+as ``population.size``) to messages.
 Werkzeug's own HTTP errors (404, 405, 413, ...) go through the same handler,
 and so does anything unexpected, as a 500 that reveals nothing internal.
 """
@@ -18,6 +19,7 @@ from marshmallow import ValidationError
 from werkzeug.exceptions import HTTPException
 
 from service import jsonio
+from service.context import request_id
 from service.sampling.errors import SamplingError
 
 PROBLEM_MEDIA_TYPE = "application/problem+json"
@@ -57,6 +59,9 @@ class Problem(Exception):
             payload["instance"] = instance
         if self.errors is not None:
             payload["errors"] = self.errors
+        current = request_id()
+        if current is not None:
+            payload["request_id"] = current
         return payload
 
 
@@ -83,7 +88,18 @@ def flatten_messages(messages: Any, prefix: str = "") -> dict[str, list[str]]:
     return flat
 
 
+#: How many invalid fields one answer names; the rest are counted, so that a list of a
+#: hundred thousand bad entries is not repeated back.
+NAMED_FIELDS = 20
+
+
 def invalid_input(errors: Mapping[str, list[str]]) -> Problem:
+    if len(errors) > NAMED_FIELDS:
+        named = dict(list(errors.items())[:NAMED_FIELDS])
+        rest = len(errors) - NAMED_FIELDS
+        note = f"{rest:,} more fields are invalid; the first {NAMED_FIELDS} are named"
+        named["body"] = [*named.get("body", []), note]
+        errors = named
     detail = "; ".join(f"{field}: {' '.join(msgs)}" for field, msgs in errors.items())
     return Problem(422, "Invalid input", detail, INVALID_INPUT, errors)
 

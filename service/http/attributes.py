@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+from collections.abc import Mapping
 from typing import Any
 
 from schemas.attributes import (
@@ -10,8 +11,10 @@ from schemas.attributes import (
     SampleSizePlanSchema,
     SampleSizeRequest,
 )
+from service.http.markdown import TicketLayout
 from service.http.operations import Operation, blueprint
 from service.sampling.attributes import Evaluation, SampleSizePlan, evaluate_sample, size_sample
+from service.sampling.distributions import MODELS
 from service.settings import Settings
 
 
@@ -21,6 +24,12 @@ def _size(inputs: dict[str, Any], settings: Settings) -> SampleSizePlan:
 
 def _evaluate(inputs: dict[str, Any], settings: Settings) -> Evaluation:
     return evaluate_sample(**inputs)
+
+
+def model_method(document: Mapping[str, Any]) -> str:
+    """The model of a plan or evaluation and its reference, in one line."""
+    model = MODELS[document["method"]]
+    return f"{model.name} model; {model.reference}"
 
 
 OPERATIONS = [
@@ -36,6 +45,16 @@ OPERATIONS = [
         response=SampleSizePlanSchema,
         run=_size,
         tag="tests of controls",
+        ticket=TicketLayout(
+            answer=(
+                "sample_size",
+                "allowed_deviations",
+                "achieved_confidence",
+                "risk_of_overreliance",
+                "risk_of_underreliance",
+            ),
+            method=model_method,
+        ),
     ),
     Operation(
         name="evaluation",
@@ -49,6 +68,17 @@ OPERATIONS = [
         response=EvaluationSchema,
         run=_evaluate,
         tag="tests of controls",
+        ticket=TicketLayout(
+            answer=(
+                "sample_deviation_rate",
+                "upper_deviation_limit",
+                "allowance_for_sampling_risk",
+                "interval",
+                "risk_at_tolerable_rate",
+                "conclusion",
+            ),
+            method=model_method,
+        ),
     ),
 ]
 

@@ -3,9 +3,11 @@
 from __future__ import annotations
 
 import dataclasses
+from collections.abc import Mapping
 from typing import Any
 
 from schemas.estimation import EstimationRequest, EstimationSchema
+from service.http.markdown import TicketLayout
 from service.http.operations import Operation, blueprint
 from service.sampling.estimation import size_for_estimation
 from service.settings import Settings
@@ -15,6 +17,20 @@ def _size(inputs: dict[str, Any], settings: Settings) -> dict[str, Any]:
     label = inputs.pop("population_label")
     plan = size_for_estimation(**inputs, max_sample_size=settings.max_sample_size)
     return {**dataclasses.asdict(plan), "population_label": label}
+
+
+_REFERENCES = {
+    "exact": "exact miss probability (binomial, or hypergeometric with a population)",
+    "wilson": "Wilson (1927), JASA 22",
+    "normal": "normal approximation, Cochran (1977) §4.4",
+    "chebyshev": "Chebyshev's inequality",
+    "hoeffding": "Hoeffding (1963), JASA 58",
+}
+
+
+def _estimation_method(document: Mapping[str, Any]) -> str:
+    names = [row["method"] for row in document["rows"]]
+    return "; ".join(f"{name}: {_REFERENCES.get(name, name)}" for name in names)
 
 
 OPERATIONS = [
@@ -32,6 +48,7 @@ OPERATIONS = [
         response=EstimationSchema,
         run=_size,
         tag="estimation",
+        ticket=TicketLayout(answer=("recommended", "rows"), method=_estimation_method),
     ),
 ]
 

@@ -1,4 +1,4 @@
-"""Service endpoints: ``GET /v1/health`` and ``GET /openapi.yaml``."""
+"""Service endpoints: ``GET /v1/health``, ``GET /v1/ready`` and ``GET /openapi.yaml``."""
 
 from __future__ import annotations
 
@@ -15,6 +15,18 @@ def health() -> Response:
     """Liveness and version."""
     return current_app.response_class(
         jsonio.dumps({"status": "ok", "version": VERSION}), mimetype="application/json"
+    )
+
+
+@bp.get("/v1/ready")
+def ready() -> Response:
+    """Readiness: 200 once the application is built and can answer requests, else 503."""
+    if not current_app.config.get("READY"):
+        return current_app.response_class(
+            jsonio.dumps({"status": "starting"}), status=503, mimetype="application/json"
+        )
+    return current_app.response_class(
+        jsonio.dumps({"status": "ready"}), mimetype="application/json"
     )
 
 

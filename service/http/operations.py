@@ -19,6 +19,8 @@ from marshmallow import Schema, ValidationError
 from werkzeug.exceptions import RequestEntityTooLarge
 
 from service import jsonio
+from service.http import markdown
+from service.http.markdown import MARKDOWN, TicketLayout
 from service.problems import (
     MALFORMED_BODY,
     UNSUPPORTED_MEDIA_TYPE,
@@ -50,10 +52,26 @@ class Operation:
     renderers: Mapping[str, Renderer] = field(default_factory=dict)
     # Endpoints that take item lists accept bodies up to max_list_body_bytes.
     takes_item_lists: bool = False
+    # The answer fields and method of the text/markdown block every operation serves.
+    ticket: TicketLayout = field(default_factory=TicketLayout)
+    # Cheap checks of the raw payload against the settings, before the schema loads it
+    # (so that an oversized list is refused without validating every element).
+    precheck: Callable[[Any, Settings], None] | None = None
 
     @property
     def media_types(self) -> list[str]:
-        return [JSON, *self.renderers]
+        """JSON first (it wins ties), then the operation's own types, then Markdown."""
+        extra = [] if MARKDOWN in self.renderers else [MARKDOWN]
+        return [JSON, *self.renderers, *extra]
+
+    def render(self, media_type: str, payload: Any, document: dict[str, Any], result: Any) -> str:
+        """The answer as ``media_type`` (one of :attr:`media_types`)."""
+        if media_type == JSON:
+            return jsonio.dumps(document)
+        if media_type in self.renderers:
+            return self.renderers[media_type](document, result)
+        fields = tuple(self.request().fields)
+        return markdown.render(self.summary, self.ticket, payload, document, fields)
 
 
 def _is_json(mimetype: str) -> bool:
@@ -113,6 +131,11 @@ def negotiate(operation: Operation) -> str:
 
 def run(operation: Operation, payload: Any, settings: Settings) -> tuple[dict[str, Any], Any]:
     """Validate ``payload`` and run the operation: the response document and the core result."""
+    if operation.precheck is not None:
+        try:
+            operation.precheck(payload, settings)
+        except SamplingError as exc:
+            raise from_sampling_error(exc) from None
     try:
         inputs = operation.request().load(payload)
     except ValidationError as exc:
@@ -136,11 +159,9 @@ def _view(operation: Operation) -> Callable[[], Response]:
         media_type = negotiate(operation)
         if operation.takes_item_lists:
             request.max_content_length = settings.max_list_body_bytes
-        document, result = run(operation, read_json_body(), settings)
-        if media_type == JSON:
-            body = jsonio.dumps(document)
-        else:
-            body = operation.renderers[media_type](document, result)
+        payload = read_json_body()
+        document, result = run(operation, payload, settings)
+        body = operation.render(media_type, payload, document, result)
         response = current_app.response_class(body, status=200, mimetype=media_type)
         response.vary.add("Accept")
         return response

@@ -8,6 +8,8 @@ from __future__ import annotations
 from typing import Any
 
 from schemas.curves import CURVE_PATH, CurveRequest, CurveSchema
+from service.http.attributes import model_method
+from service.http.markdown import TicketLayout
 from service.http.operations import Operation, blueprint
 from service.render.oc_chart import render_operating_characteristic_svg
 from service.sampling.curves import OperatingCharacteristic, operating_characteristic
@@ -82,6 +84,11 @@ OPERATIONS = [
         run=_curve,
         tag="tests of controls",
         renderers={SVG: _svg},
+        ticket=TicketLayout(
+            answer=("risk_of_overreliance", "risk_of_underreliance", "points"),
+            method=lambda document: "operating characteristic of a single sampling plan "
+            f"(Dodge & Romig 1959); {model_method(document)}",
+        ),
     ),
 ]
 

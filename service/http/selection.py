@@ -4,9 +4,11 @@ from __future__ import annotations
 
 import csv
 import io
+from collections.abc import Mapping
 from typing import Any
 
 from schemas.selection import SelectionRequest, SelectionResult, SelectionSchema
+from service.http.markdown import TicketLayout
 from service.http.operations import Operation, blueprint
 from service.sampling.selection import select
 from service.settings import Settings
@@ -60,6 +62,18 @@ def render_csv(document: dict[str, Any], result: Any) -> str:
     return out.getvalue()
 
 
+_SELECTION_METHODS = {
+    "random": "simple random sampling without replacement, partial Fisher–Yates shuffle "
+    "(Fisher & Yates 1938; Durstenfeld 1964)",
+    "systematic": "systematic selection, a fixed interval from a random start",
+}
+
+
+def _selection_method(document: Mapping[str, Any]) -> str:
+    method = _SELECTION_METHODS.get(document["method"], document["method"])
+    return f"{method}; random stream from SHA-256 (FIPS 180-4), algorithm {document['algorithm']}"
+
+
 OPERATIONS = [
     Operation(
         name="selection",
@@ -83,6 +97,18 @@ OPERATIONS = [
         run=_select,
         tag="selection",
         renderers={CSV: render_csv},
+        ticket=TicketLayout(
+            answer=(
+                "sample_size",
+                "population_size",
+                "items",
+                "seed",
+                "seed_generated",
+                "population_fingerprint",
+                "selection_fingerprint",
+            ),
+            method=_selection_method,
+        ),
     ),
 ]
 

@@ -118,6 +118,33 @@ def _check_open_unit(field: str, value: float) -> None:
         raise InvalidInput(field, f"{field} {value!r} must be strictly between 0 and 1")
 
 
+#: Confidence levels accepted: from an even chance to a risk of one in a million.  Beyond
+#: them the quantiles leave the floating point range.
+MIN_CONFIDENCE = 0.5
+MAX_CONFIDENCE = 0.999999
+
+#: Smallest tolerable rate accepted: a hundredth of a percent.
+MIN_TOLERABLE_RATE = 0.0001
+
+
+def _check_confidence(value: float) -> None:
+    _check_open_unit("confidence", value)
+    if not (MIN_CONFIDENCE <= value <= MAX_CONFIDENCE):
+        raise InvalidInput(
+            "confidence",
+            f"confidence {value!r} must be from {MIN_CONFIDENCE:g} to {MAX_CONFIDENCE:g}",
+        )
+
+
+def _check_tolerable_rate(value: float) -> None:
+    _check_open_unit("tolerable_rate", value)
+    if value < MIN_TOLERABLE_RATE:
+        raise InvalidInput(
+            "tolerable_rate",
+            f"tolerable_rate {value!r} must be at least {MIN_TOLERABLE_RATE:g}",
+        )
+
+
 def _check_population(population_size: int | None) -> None:
     if population_size is not None and population_size < 1:
         raise InvalidInput(
@@ -264,8 +291,8 @@ def size_sample(
     >>> plan.sample_size, plan.allowed_deviations
     (93, 1)
     """
-    _check_open_unit("tolerable_rate", tolerable_rate)
-    _check_open_unit("confidence", confidence)
+    _check_tolerable_rate(tolerable_rate)
+    _check_confidence(confidence)
     if not (0.0 <= expected_rate < tolerable_rate):
         raise InvalidInput(
             "expected_rate",
@@ -540,9 +567,9 @@ def evaluate_sample(
             "deviations",
             f"deviations {deviations} must be between 0 and sample_size {sample_size}",
         )
-    _check_open_unit("confidence", confidence)
+    _check_confidence(confidence)
     if tolerable_rate is not None:
-        _check_open_unit("tolerable_rate", tolerable_rate)
+        _check_tolerable_rate(tolerable_rate)
     _check_population(population_size)
     if population_size is not None and sample_size > population_size:
         raise InvalidInput(

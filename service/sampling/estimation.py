@@ -84,8 +84,11 @@ from service.sampling.errors import ComputationTooLarge, InvalidInput
 
 __all__ = [
     "EXACT_SIZE_LIMIT",
+    "MAX_CONFIDENCE",
     "MAX_POPULATION_SIZE",
     "METHODS",
+    "MIN_CONFIDENCE",
+    "MIN_MARGIN",
     "EstimationPlan",
     "EstimationRow",
     "Guarantee",
@@ -100,14 +103,23 @@ FloatArray = npt.NDArray[np.float64]
 
 #: Largest sample size for which exact miss probabilities are computed (the exact method
 #: raises :class:`ComputationTooLarge` above it; other rows then report no miss probability).
-EXACT_SIZE_LIMIT = 2_000_000
+EXACT_SIZE_LIMIT = 400_000
+
+#: Smallest margin accepted: a hundredth of a percentage point.  Smaller margins need
+#: more items than any sample could hold, and push the size formulas below the floating
+#: point range.
+MIN_MARGIN = 0.0001
+
+#: Confidence levels accepted: from an even chance to one miss in a million.
+MIN_CONFIDENCE = 0.5
+MAX_CONFIDENCE = 0.999999
 
 #: Largest population size accepted (keeps the exact integer thresholds within 64 bits).
 MAX_POPULATION_SIZE = 10**11
 
 #: Work limit for exact hypergeometric computations, in (candidate × summed term) units;
-#: a few seconds of computation.
-_HYPERGEOMETRIC_WORK_LIMIT = 500_000_000
+#: about a second of computation.
+_HYPERGEOMETRIC_WORK_LIMIT = 100_000_000
 
 #: Relative size below which a further term of a hypergeometric tail sum is dropped.
 _TAIL_TOLERANCE = 2.0**-60
@@ -812,10 +824,34 @@ def _size_wilson(problem: _Problem) -> _Sized:
     e = float(problem.margin)
     pq = rate * (1.0 - rate)
     z2 = z * z
-    root = (z2 * pq + math.sqrt((z2 * pq) ** 2 + 4.0 * e * e * z2 * z2 * (0.25 - pq))) / (
-        2.0 * e * e
+    # The half-width falls as n grows: if the largest admissible size is still too wide,
+    # the answer is a census or over the limit.
+    largest = problem.max_sample_size
+    if problem.population is not None:
+        largest = min(largest, problem.population)
+    if _wilson_half_width(largest, rate, z) > e:
+        if problem.population is not None and problem.population <= problem.max_sample_size:
+            return _Sized(problem.population, False)
+        raise ComputationTooLarge(
+            "margin",
+            f"method 'wilson' needs more items than the limit of {problem.max_sample_size:,}",
+        )
+    denominator = 2.0 * e * e
+    if denominator == 0.0:
+        # e² is below the smallest float (so z is nearly 0 as well): bisect on the
+        # decreasing half-width between 1 and the largest admissible size instead.
+        low, high = 1, largest
+        while low < high:
+            middle = (low + high) // 2
+            if _wilson_half_width(middle, rate, z) <= e:
+                high = middle
+            else:
+                low = middle + 1
+        return _Sized(_cap(low, problem), False)
+    root = (z2 * pq + math.sqrt((z2 * pq) ** 2 + 2.0 * denominator * z2 * z2 * (0.25 - pq))) / (
+        denominator
     )
-    size = max(1, math.ceil(root - z2))
+    size = max(1, math.ceil(root - z2)) if math.isfinite(root) else largest
     while size > 1 and _wilson_half_width(size - 1, rate, z) <= e:
         size -= 1
     while _wilson_half_width(size, rate, z) > e:
@@ -948,7 +984,14 @@ def size_for_estimation(margin: float, confidence: float = 0.95,
     [(44, 'approximate'), (160, 'distribution_free_bound')]
     """
     e = _open_unit(margin, "margin", 0.5)
+    if e < _exact(MIN_MARGIN):
+        raise InvalidInput("margin", f"must be at least {MIN_MARGIN:g}; got {float(margin)!r}")
     c = _open_unit(confidence, "confidence")
+    if not _exact(MIN_CONFIDENCE) <= c <= _exact(MAX_CONFIDENCE):
+        raise InvalidInput(
+            "confidence",
+            f"must be from {MIN_CONFIDENCE:g} to {MAX_CONFIDENCE:g}; got {float(confidence)!r}",
+        )
     rate = None if anticipated_rate is None else _open_unit(anticipated_rate, "anticipated_rate")
     population = _population(population_size)
     names = _method_names(methods)

@@ -40,6 +40,7 @@ __all__ = [
     "ALGORITHM_ID",
     "ALGORITHM_VERSION",
     "DEFAULT_MAX_ITEMS",
+    "MAX_IDENTIFIER_LENGTH",
     "MAX_NUMBER",
     "MAX_SEED_LENGTH",
     "METHODS",
@@ -63,6 +64,9 @@ ALGORITHM_ID: Final = f"{ALGORITHM}/v{ALGORITHM_VERSION}"
 
 MAX_SEED_LENGTH: Final = 256
 """Longest seed accepted, in characters (Unicode code points)."""
+
+MAX_IDENTIFIER_LENGTH: Final = 1_000
+"""Longest item identifier accepted, in characters (Unicode code points)."""
 
 MAX_NUMBER: Final = 2**53 - 1
 """Largest population size and largest document number; every value stays exact in JSON."""
@@ -124,8 +128,9 @@ class ItemPopulation:
     """Explicit item identifiers, in canonical ascending Unicode code point order.
 
     Identifiers are compared exactly as given: no Unicode normalisation, no case folding, no
-    trimming. They must be non-empty, distinct, encodable as UTF-8 (no lone surrogates) and
-    free of the character U+0000. The order in which they are given does not matter.
+    trimming. They must be non-empty, at most :data:`MAX_IDENTIFIER_LENGTH` characters,
+    distinct, encodable as UTF-8 (no lone surrogates) and free of the character U+0000. The
+    order in which they are given does not matter.
 
     Parameters
     ----------
@@ -646,6 +651,13 @@ def _prepare_items(population: ItemPopulation, max_items: int) -> _Prepared:
             f"identifier {items[index]!r} contains the character U+0000",
         )
     del joined
+    if max(map(len, items)) > MAX_IDENTIFIER_LENGTH:
+        index = next(i for i, s in enumerate(items) if len(s) > MAX_IDENTIFIER_LENGTH)
+        raise InvalidInput(
+            f"population.items[{index}]",
+            f"identifier has {len(items[index]):,} characters; the limit is "
+            f"{MAX_IDENTIFIER_LENGTH:,} characters",
+        )
     listing = _Listing.of(encoded, len(items))
     if not listing.lengths.all():
         raise InvalidInput(

@@ -169,3 +169,50 @@ def test_openapi_document(server: str, http: requests.Session) -> None:
     document = yaml.safe_load(response.content)
     assert document["openapi"].startswith("3.1")
     assert {"/v1/sample-size", "/v1/evaluation", "/v1/health"} <= set(document["paths"])
+
+
+@pytest.mark.parametrize(
+    ("name", "raw"), [("SAMPLING_MAX_BATCH_WORK", "lots"), ("SAMPLING_MAX_ITEM", "5")]
+)
+def test_a_bad_setting_stops_start_up_with_the_variable_named(name: str, raw: str) -> None:
+    env = {**os.environ, "HOST": HOST, "PORT": str(_free_port()), "WEB_CONCURRENCY": "1",
+           name: raw}
+    finished = subprocess.run(
+        [str(GUNICORN), "--config", "docker/gunicorn.conf.py", "service.wsgi:app"],
+        cwd=ROOT,
+        env=env,
+        capture_output=True,
+        timeout=START_SECONDS,
+        check=False,
+    )
+    assert finished.returncode != 0
+    output = finished.stderr.decode(errors="replace")
+    assert name in output
+    assert "Traceback" not in output
+
+
+def test_request_id_headers_markdown_and_batch_through_the_server(
+    server: str, http: requests.Session
+) -> None:
+    response = http.post(
+        f"{server}/v1/sample-size",
+        json={"tolerable_rate": 0.05},
+        headers={"Accept": "text/markdown", "X-Request-ID": "functional-1"},
+        timeout=REQUEST_SECONDS,
+    )
+    assert response.status_code == 200
+    assert response.headers["Content-Type"] == "text/markdown; charset=utf-8"
+    assert response.headers["X-Request-ID"] == "functional-1"
+    assert response.headers["X-Content-Type-Options"] == "nosniff"
+    assert response.headers["Cache-Control"] == "no-store"
+    assert "| sample\\_size | 59 |" in response.text
+    batch = http.post(
+        f"{server}/v1/batch",
+        json={"operations": [
+            {"id": "a", "operation": "evaluation", "request": {"sample_size": 60, "deviations": 0}},
+            {"id": "b", "operation": "nothing", "request": {}},
+        ]},
+        timeout=REQUEST_SECONDS,
+    )
+    assert [r["status"] for r in batch.json()["results"]] == [200, 422]
+    assert http.get(f"{server}/v1/ready", timeout=REQUEST_SECONDS).json() == {"status": "ready"}

@@ -33,7 +33,8 @@ def _problem(response: Any, status: int, path: str) -> dict[str, Any]:
     assert response.headers["Content-Type"] == "application/problem+json"
     body = json.loads(response.get_data(as_text=True))
     assert set(body) >= PROBLEM_KEYS
-    assert set(body) <= PROBLEM_KEYS | {"errors"}
+    assert set(body) <= PROBLEM_KEYS | {"errors", "request_id"}
+    assert body["request_id"] == response.headers["X-Request-ID"]
     assert body["status"] == status
     assert body["instance"] == path
     assert isinstance(body["title"], str) and body["title"]
