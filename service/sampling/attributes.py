@@ -28,7 +28,7 @@ AICPA, *Audit Guide: Audit Sampling* (2019), chapter 3 and tables A-1 to A-4.
 Clopper, C. J. & Pearson, E. S. (1934). The use of confidence or fiducial
 limits illustrated in the case of the binomial. *Biometrika* 26(4), 404–413.
 Wright, T. (1991). Exact confidence bounds when sampling from small finite
-universes. *Springer Lecture Notes in Statistics* 66.
+universes: an easy reference based on the hypergeometric distribution (monograph).
 Garwood, F. (1936). Fiducial limits for the Poisson distribution.
 *Biometrika* 28(3/4), 437–442.
 """
