@@ -5,16 +5,14 @@ from __future__ import annotations
 from typing import Any
 
 from marshmallow import (
-    Schema,
     ValidationError,
     fields,
-    post_dump,
     post_load,
     validate,
     validates_schema,
 )
 
-from schemas.common import IntervalSchema, PopulationSchema, StrictSchema, without_absent
+from schemas.common import IntervalSchema, PopulationSchema, ResultSchema, StrictSchema
 from schemas.fields import Rate, StrictFloat, StrictInteger, StrictString
 from service.sampling.attributes import MAX_CONFIDENCE, MIN_CONFIDENCE, MIN_TOLERABLE_RATE
 from service.sampling.distributions import MODELS
@@ -92,7 +90,7 @@ class SampleSizeRequest(StrictSchema):
         return _flatten_population(data)
 
 
-class SampleSizePlanSchema(Schema):
+class SampleSizePlanSchema(ResultSchema):
     """A sample size plan.
 
     ``curve_request`` is the body to POST, as it is, to ``links.curve``
@@ -101,6 +99,8 @@ class SampleSizePlanSchema(Schema):
     two rates it was sized for, so the curve's risk of overreliance and risk of
     underreliance are this plan's. Send it with ``Accept: image/svg+xml`` for the chart.
     """
+
+    absent_when_none = ("population_label",)
 
     sample_size = fields.Integer(required=True, metadata={"description": "Items to test."})
     allowed_deviations = fields.Integer(
@@ -173,10 +173,6 @@ class SampleSizePlanSchema(Schema):
 
         return {"curve": CURVE_PATH}
 
-    @post_dump
-    def _drop_absent(self, data: dict[str, Any], **kwargs: Any) -> dict[str, Any]:
-        return without_absent(data, ("population_label",))
-
 
 class EvaluationRequest(StrictSchema):
     """Evaluation of a finished test of controls."""
@@ -219,8 +215,16 @@ class EvaluationRequest(StrictSchema):
         return _flatten_population(data)
 
 
-class EvaluationSchema(Schema):
+class EvaluationSchema(ResultSchema):
     """The evaluation of a test of controls."""
+
+    absent_when_none = (
+        "tolerable_rate",
+        "population_label",
+        "upper_deviation_count",
+        "risk_at_tolerable_rate",
+        "conclusion",
+    )
 
     method = fields.String(required=True)
     sample_size = fields.Integer(required=True)
@@ -269,16 +273,3 @@ class EvaluationSchema(Schema):
         metadata={"type": "string", "description": "Plain-English paragraph."},
     )
     warnings = fields.List(fields.String(), required=True)
-
-    @post_dump
-    def _drop_absent(self, data: dict[str, Any], **kwargs: Any) -> dict[str, Any]:
-        return without_absent(
-            data,
-            (
-                "tolerable_rate",
-                "population_label",
-                "upper_deviation_count",
-                "risk_at_tolerable_rate",
-                "conclusion",
-            ),
-        )

@@ -2,9 +2,9 @@
 
 from __future__ import annotations
 
-from typing import Any
+from typing import Any, ClassVar
 
-from marshmallow import RAISE, Schema, fields, validate
+from marshmallow import RAISE, Schema, fields, post_dump, validate
 
 from schemas.fields import StrictInteger, StrictString
 
@@ -86,6 +86,13 @@ class ReadySchema(Schema):
     )
 
 
-def without_absent(data: dict[str, Any], keys: tuple[str, ...]) -> dict[str, Any]:
-    """Drop the optional ``keys`` whose value is None, so they are absent rather than null."""
-    return {k: v for k, v in data.items() if not (k in keys and v is None)}
+class ResultSchema(Schema):
+    """Base of response schemas: the fields named in ``absent_when_none`` are left out,
+    rather than written as null, when the result has no value for them."""
+
+    absent_when_none: ClassVar[tuple[str, ...]] = ()
+
+    @post_dump
+    def _drop_absent(self, data: dict[str, Any], **kwargs: Any) -> dict[str, Any]:
+        keys = self.absent_when_none
+        return {k: v for k, v in data.items() if not (k in keys and v is None)}

@@ -8,13 +8,12 @@ from marshmallow import (
     Schema,
     ValidationError,
     fields,
-    post_dump,
     post_load,
     validate,
     validates_schema,
 )
 
-from schemas.common import PopulationSchema, StrictSchema, without_absent
+from schemas.common import PopulationSchema, ResultSchema, StrictSchema
 from schemas.fields import Rate, StrictInteger, StrictString
 from service.sampling.attributes import SampleSizePlan
 from service.sampling.curves import (
@@ -131,7 +130,7 @@ class CurvePointSchema(Schema):
     )
 
 
-class CurveSchema(Schema):
+class CurveSchema(ResultSchema):
     """The operating characteristic of a plan.
 
     ``points`` gives, for each true deviation rate p of an evenly spaced grid from 0, the
@@ -141,6 +140,14 @@ class CurveSchema(Schema):
     tolerable and expected rates given. Under the hypergeometric model the population at
     rate p holds ceil(p × N) deviant items, so the curve is a staircase.
     """
+
+    absent_when_none = (
+        "population_label",
+        "tolerable_rate",
+        "expected_rate",
+        "risk_of_overreliance",
+        "risk_of_underreliance",
+    )
 
     method = fields.String(required=True)
     sample_size = fields.Integer(required=True)
@@ -169,19 +176,6 @@ class CurveSchema(Schema):
         metadata={"type": "string", "description": "Plain-English paragraph."},
     )
     warnings = fields.List(fields.String(), required=True)
-
-    @post_dump
-    def _drop_absent(self, data: dict[str, Any], **kwargs: Any) -> dict[str, Any]:
-        return without_absent(
-            data,
-            (
-                "population_label",
-                "tolerable_rate",
-                "expected_rate",
-                "risk_of_overreliance",
-                "risk_of_underreliance",
-            ),
-        )
 
 
 def curve_request_body(plan: SampleSizePlan) -> dict[str, Any]:

@@ -8,12 +8,11 @@ from marshmallow import (
     Schema,
     ValidationError,
     fields,
-    post_dump,
     post_load,
     validate,
 )
 
-from schemas.common import PopulationSchema, StrictSchema, without_absent
+from schemas.common import PopulationSchema, ResultSchema, StrictSchema
 from schemas.fields import Rate, StrictFloat, StrictString
 from service.sampling.estimation import MAX_CONFIDENCE, METHODS, MIN_CONFIDENCE, MIN_MARGIN
 from service.sampling.wording import CAUTION, percent
@@ -178,8 +177,10 @@ class EstimationRowSchema(Schema):
     )
 
 
-class EstimationSchema(Schema):
+class EstimationSchema(ResultSchema):
     """Sample sizes from several methods for one estimation goal."""
+
+    absent_when_none = ("population_label",)
 
     margin = fields.Float(required=True)
     confidence = fields.Float(required=True)
@@ -205,10 +206,6 @@ class EstimationSchema(Schema):
         required=True,
         metadata={"type": "string", "description": "Plain-English paragraph."},
     )
-
-    @post_dump
-    def _drop_absent(self, data: dict[str, Any], **kwargs: Any) -> dict[str, Any]:
-        return without_absent(data, ("population_label",))
 
 
 # --- summary ----------------------------------------------------------------

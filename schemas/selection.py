@@ -16,16 +16,14 @@ from dataclasses import dataclass
 from typing import Any, ClassVar
 
 from marshmallow import (
-    Schema,
     ValidationError,
     fields,
-    post_dump,
     post_load,
     validate,
     validates_schema,
 )
 
-from schemas.common import StrictSchema, without_absent
+from schemas.common import ResultSchema, StrictSchema
 from schemas.fields import MAX_EXACT_INTEGER, StrictInteger, StrictString, _kind
 from service.sampling.selection import (
     ALGORITHM_ID,
@@ -409,8 +407,10 @@ def selection_warnings(result: SelectionResult) -> list[str]:
 _ITEM = {"oneOf": [{"type": "integer"}, {"type": "string"}]}
 
 
-class SelectionSchema(Schema):
+class SelectionSchema(ResultSchema):
     """A reproducible selection of sample items."""
+
+    absent_when_none = ("interval", "interval_exact", "start", "start_exact")
 
     items = fields.Function(
         lambda result: list(result.selection.items),
@@ -498,7 +498,3 @@ class SelectionSchema(Schema):
         required=True,
         metadata={"type": "array", "items": {"type": "string"}},
     )
-
-    @post_dump
-    def _drop_absent(self, data: dict[str, Any], **kwargs: Any) -> dict[str, Any]:
-        return without_absent(data, ("interval", "interval_exact", "start", "start_exact"))
