@@ -33,7 +33,7 @@ class StrictFloat(fields.Float):
 
     def _deserialize(self, value: Any, attr: str | None, data: Any, **kwargs: Any) -> float:
         if not _is_number(value):
-            raise self.make_error("invalid", kind=_kind(value))
+            raise self.make_error("invalid", kind=json_kind(value))
         try:
             result = float(value)
         except OverflowError:
@@ -93,7 +93,7 @@ class StrictInteger(fields.Integer):
 
     def _deserialize(self, value: Any, attr: str | None, data: Any, **kwargs: Any) -> int:
         if not _is_number(value):
-            raise self.make_error("invalid", kind=_kind(value))
+            raise self.make_error("invalid", kind=json_kind(value))
         if isinstance(value, float):
             if not math.isfinite(value):
                 raise self.make_error("invalid", kind="a non-finite number")
@@ -113,11 +113,11 @@ class StrictString(fields.String):
 
     def _deserialize(self, value: Any, attr: str | None, data: Any, **kwargs: Any) -> str:
         if not isinstance(value, str):
-            raise self.make_error("invalid", kind=_kind(value))
+            raise self.make_error("invalid", kind=json_kind(value))
         return value
 
 
-def _kind(value: Any) -> str:
+def json_kind(value: Any) -> str:
     """Plain-words JSON type of ``value`` for error messages."""
     if value is None:
         return "null"

@@ -24,7 +24,7 @@ from marshmallow import (
 )
 
 from schemas.common import ResultSchema, StrictSchema
-from schemas.fields import MAX_EXACT_INTEGER, StrictInteger, StrictString, _kind
+from schemas.fields import MAX_EXACT_INTEGER, StrictInteger, StrictString, json_kind
 from service.sampling.selection import (
     ALGORITHM_ID,
     MAX_IDENTIFIER_LENGTH,
@@ -50,7 +50,7 @@ FORMS = ("size", "ranges", "items")
 def _whole_number(value: Any) -> int | str:
     """``value`` as an int, or what is wrong with it (the rules of :class:`StrictInteger`)."""
     if isinstance(value, bool) or not isinstance(value, int | float):
-        return f"must be a whole number, not {_kind(value)}"
+        return f"must be a whole number, not {json_kind(value)}"
     if isinstance(value, float):
         if not math.isfinite(value):
             return "must be a whole number, not a non-finite number"
@@ -96,7 +96,7 @@ class _ListField(fields.List[Any]):
 
     def _check_list(self, value: Any) -> list[Any]:
         if not isinstance(value, list):
-            raise self.make_error("invalid", kind=_kind(value))
+            raise self.make_error("invalid", kind=json_kind(value))
         return value
 
     def _fail(self, shown: list[tuple[int, Any]], bad: int) -> ValidationError:
@@ -121,7 +121,7 @@ class IdentifierList(_ListField):
         else:
             return entries
         shown, bad = _first_bad(
-            entries, lambda x: None if isinstance(x, str) else f"must be a string, not {_kind(x)}"
+            entries, lambda x: None if isinstance(x, str) else f"must be a string, not {json_kind(x)}"
         )
         raise self._fail(shown, bad)
 
@@ -168,7 +168,7 @@ class RangeSchema(StrictSchema):
 def _range_entry(entry: Any) -> tuple[int, int] | dict[str, list[str]]:
     """A range as ``(first, last)``, or its errors by key."""
     if not isinstance(entry, dict):
-        return {"_schema": [f"must be an object with first and last, not {_kind(entry)}"]}
+        return {"_schema": [f"must be an object with first and last, not {json_kind(entry)}"]}
     errors: dict[str, list[str]] = {
         key: ["is not a field of this request"] for key in entry if key not in ("first", "last")
     }
