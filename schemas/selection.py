@@ -121,7 +121,8 @@ class IdentifierList(_ListField):
         else:
             return entries
         shown, bad = _first_bad(
-            entries, lambda x: None if isinstance(x, str) else f"must be a string, not {json_kind(x)}"
+            entries,
+            lambda x: None if isinstance(x, str) else f"must be a string, not {json_kind(x)}",
         )
         raise self._fail(shown, bad)
 
