@@ -3,13 +3,9 @@
 from __future__ import annotations
 
 import os
-import signal
-import socket
 import subprocess
 import sys
-import time
 from collections.abc import Iterator
-from pathlib import Path
 from typing import Any
 
 import pytest
@@ -18,68 +14,31 @@ import yaml
 from scipy import stats
 
 from service.openapi import build_yaml
+from tests.functional.servers import (
+    GUNICORN,
+    HOST,
+    ROOT,
+    START_SECONDS,
+    ServerFailed,
+    free_port,
+    gunicorn_command,
+    running_server,
+)
 
 pytestmark = pytest.mark.functional
 
-ROOT = Path(__file__).resolve().parents[2]
-GUNICORN = Path(sys.executable).parent / "gunicorn"
-HOST = "127.0.0.1"
-START_SECONDS = 30.0
-STOP_SECONDS = 15.0
 REQUEST_SECONDS = 10.0
-
-
-def _free_port() -> int:
-    with socket.socket(socket.AF_INET, socket.SOCK_STREAM) as sock:
-        sock.bind((HOST, 0))
-        return int(sock.getsockname()[1])
-
-
-def _stop(process: subprocess.Popen[bytes]) -> None:
-    if process.poll() is not None:
-        return
-    process.send_signal(signal.SIGTERM)
-    try:
-        process.wait(timeout=STOP_SECONDS)
-    except subprocess.TimeoutExpired:
-        process.kill()
-        process.wait(timeout=STOP_SECONDS)
 
 
 @pytest.fixture(scope="module")
 def server(tmp_path_factory: pytest.TempPathFactory) -> Iterator[str]:
-    """Start gunicorn, wait (bounded) until it answers, yield its base URL, then stop it."""
+    """The real gunicorn with two workers; its base URL."""
     assert GUNICORN.exists(), f"gunicorn not found beside {sys.executable}"
-    port = _free_port()
-    base = f"http://{HOST}:{port}"
-    env = {**os.environ, "HOST": HOST, "PORT": str(port), "WEB_CONCURRENCY": "2"}
-    log_path = tmp_path_factory.mktemp("gunicorn") / "server.log"
-    with log_path.open("wb") as log:
-        process = subprocess.Popen(
-            [str(GUNICORN), "--config", "docker/gunicorn.conf.py", "service.wsgi:app"],
-            cwd=ROOT,
-            env=env,
-            stdout=log,
-            stderr=subprocess.STDOUT,
-        )
-        try:
-            deadline = time.monotonic() + START_SECONDS
-            while True:
-                if process.poll() is not None:
-                    pytest.fail(f"gunicorn exited with {process.returncode}:\n"
-                                + log_path.read_text(errors="replace")[-3000:])
-                try:
-                    if requests.get(f"{base}/v1/health", timeout=1).status_code == 200:
-                        break
-                except requests.ConnectionError:
-                    pass
-                if time.monotonic() > deadline:
-                    pytest.fail(f"gunicorn did not answer within {START_SECONDS:.0f} s:\n"
-                                + log_path.read_text(errors="replace")[-3000:])
-                time.sleep(0.2)
-            yield base
-        finally:
-            _stop(process)
+    try:
+        with running_server(tmp_path_factory.mktemp("gunicorn")) as running:
+            yield running.url
+    except ServerFailed as failure:
+        pytest.fail(str(failure))
 
 
 @pytest.fixture
@@ -175,10 +134,10 @@ def test_openapi_document(server: str, http: requests.Session) -> None:
     ("name", "raw"), [("SAMPLING_MAX_BATCH_WORK", "lots"), ("SAMPLING_MAX_ITEM", "5")]
 )
 def test_a_bad_setting_stops_start_up_with_the_variable_named(name: str, raw: str) -> None:
-    env = {**os.environ, "HOST": HOST, "PORT": str(_free_port()), "WEB_CONCURRENCY": "1",
+    env = {**os.environ, "HOST": HOST, "PORT": str(free_port()), "WEB_CONCURRENCY": "1",
            name: raw}
     finished = subprocess.run(
-        [str(GUNICORN), "--config", "docker/gunicorn.conf.py", "service.wsgi:app"],
+        gunicorn_command(),
         cwd=ROOT,
         env=env,
         capture_output=True,
