@@ -1,0 +1,96 @@
+"""gunicorn settings for the service, every one overridable from the environment.
+
+``docker/gunicorn.conf.py`` and the ``attribute-sampling serve`` command both load this
+module, so the container, ``make run`` and the console command serve the same way.
+
+======================== ======================== =============================================
+variable                 default                  meaning
+======================== ======================== =============================================
+HOST                     127.0.0.1                address to listen on (the image sets 0.0.0.0)
+PORT                     8000                     port to listen on
+WEB_CONCURRENCY          2 × cores + 1, at most 8 worker processes
+GUNICORN_THREADS         1                        threads per worker (the work is CPU-bound)
+GUNICORN_TIMEOUT         30                       seconds before a silent worker is restarted
+GUNICORN_GRACEFUL_TIMEOUT 30                      seconds in-flight requests get after SIGTERM
+GUNICORN_MAX_REQUESTS    2000                     requests before a worker is recycled (+10 %
+                                                  random jitter, so workers do not all restart
+                                                  at once)
+PROMETHEUS_MULTIPROC_DIR a new temporary folder   where workers keep their metric files
+======================== ======================== =============================================
+
+Metrics: with several worker processes each keeps its own counters, so the Prometheus
+client runs in multiprocess mode. The folder is emptied when the server starts, and a
+worker's files are marked dead when it exits, so ``/metrics`` sums every live worker and
+every finished request.
+"""
+
+from __future__ import annotations
+
+import multiprocessing
+import os
+import re
+import tempfile
+from pathlib import Path
+from typing import Any
+
+__all__ = [
+    "access_log_format", "accesslog", "bind", "child_exit", "errorlog", "graceful_timeout",
+    "keepalive", "limit_request_fields", "limit_request_line", "max_requests",
+    "max_requests_jitter", "on_starting", "preload_app", "threads", "timeout", "workers",
+]
+
+METRICS_DIR_VARIABLE = "PROMETHEUS_MULTIPROC_DIR"
+_WHOLE = re.compile(r"[0-9]{1,9}")
+
+
+def _int(name: str, default: int) -> int:
+    raw = os.environ.get(name)
+    if raw is None:
+        return default
+    if not _WHOLE.fullmatch(raw.strip()) or int(raw) < 1:
+        raise SystemExit(f"{name}={raw[:40]!r}: must be a positive whole number")
+    return int(raw)
+
+
+def _metrics_dir() -> str:
+    """The multiprocess metrics folder, made and exported before the app is imported."""
+    chosen = os.environ.get(METRICS_DIR_VARIABLE) or tempfile.mkdtemp(prefix="sampling-metrics-")
+    Path(chosen).mkdir(parents=True, exist_ok=True)
+    os.environ[METRICS_DIR_VARIABLE] = chosen
+    return chosen
+
+
+bind = f"{os.environ.get('HOST', '127.0.0.1')}:{_int('PORT', 8000)}"
+workers = _int("WEB_CONCURRENCY", min(2 * multiprocessing.cpu_count() + 1, 8))
+threads = _int("GUNICORN_THREADS", 1)
+timeout = _int("GUNICORN_TIMEOUT", 30)
+graceful_timeout = _int("GUNICORN_GRACEFUL_TIMEOUT", 30)
+keepalive = 5
+max_requests = _int("GUNICORN_MAX_REQUESTS", 2000)
+max_requests_jitter = max(1, max_requests // 10)
+# Refuse oversized request lines and headers early; bodies are capped by the app.
+limit_request_line = 8190
+limit_request_fields = 100
+accesslog = "-"
+errorlog = "-"
+access_log_format = (
+    '{"time":"%(t)s","remote":"%(h)s","method":"%(m)s","path":"%(U)s",'
+    '"status":%(s)s,"bytes":%(B)s,"duration_us":%(D)s,"request_id":"%({x-request-id}o)s"}'
+)
+# The app is imported once in the master, so a bad setting stops start-up before any
+# worker is forked, with the message on standard error.
+preload_app = True
+metrics_dir = _metrics_dir()
+
+
+def on_starting(server: Any) -> None:
+    """Remove metric files a previous run left in the folder."""
+    for stale in Path(metrics_dir).glob("*.db"):
+        stale.unlink()
+
+
+def child_exit(server: Any, worker: Any) -> None:
+    """Mark a finished worker's gauges dead, so in-flight counts do not linger."""
+    from prometheus_client import multiprocess
+
+    multiprocess.mark_process_dead(worker.pid)
