@@ -2,16 +2,17 @@
 
 ``create_app()`` builds the Flask application: settings from the environment,
 strict JSON, request ids, security headers and JSON log lines
-(:mod:`service.context`), the problem-details error handler, and one blueprint per
-resource. The sampling mathematics lives in :mod:`service.sampling` and knows
-nothing of HTTP.
+(:mod:`service.context`), Prometheus metrics (:mod:`service.metrics`), optional API
+keys (:mod:`service.access`), CORS when configured (:mod:`service.cors`), the
+problem-details error handler, and one blueprint per resource. The sampling
+mathematics lives in :mod:`service.sampling` and knows nothing of HTTP.
 """
 
 from __future__ import annotations
 
 from flask import Flask
 
-from service import context, problems
+from service import access, context, cors, metrics, problems
 from service.http import RESOURCES, meta
 from service.settings import Settings
 
@@ -28,7 +29,12 @@ def create_app(settings: Settings | None = None) -> Flask:
         OPENAPI_YAML=build_yaml(),
     )
     context.configure_logging()
+    # Order matters: the request id is chosen first, then the request counted, so that a
+    # request refused for want of a key is logged and counted too.
     context.register(app)
+    metrics.register(app)
+    access.register(app, settings.key_digests)
+    cors.register(app, settings.cors_origins)
     problems.register(app)
     app.register_blueprint(meta.bp)
     for module in RESOURCES:

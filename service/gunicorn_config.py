@@ -53,9 +53,12 @@ def _int(name: str, default: int) -> int:
 
 
 def _metrics_dir() -> str:
-    """The multiprocess metrics folder, made and exported before the app is imported."""
+    """The multiprocess metrics folder, exported before the app is imported.
+
+    A folder named in the environment must exist (the app checks it and stops start-up
+    otherwise); without one, a new temporary folder is made.
+    """
     chosen = os.environ.get(METRICS_DIR_VARIABLE) or tempfile.mkdtemp(prefix="sampling-metrics-")
-    Path(chosen).mkdir(parents=True, exist_ok=True)
     os.environ[METRICS_DIR_VARIABLE] = chosen
     return chosen
 
@@ -85,7 +88,8 @@ metrics_dir = _metrics_dir()
 
 def on_starting(server: Any) -> None:
     """Remove metric files a previous run left in the folder."""
-    for stale in Path(metrics_dir).glob("*.db"):
+    folder = Path(metrics_dir)
+    for stale in folder.glob("*.db") if folder.is_dir() else ():
         stale.unlink()
 
 

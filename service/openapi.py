@@ -20,7 +20,21 @@ from service.version import VERSION
 
 OPENAPI_VERSION = "3.1.0"
 
+UNAUTHORIZED_DESCRIPTION = (
+    "Only when API keys are configured: no key, or one the service does not accept, "
+    "was sent. The WWW-Authenticate header carries the Bearer challenge."
+)
+# Keys are optional per deployment: either no credentials (keys off) or a bearer key.
+_SECURITY: list[dict[str, list[str]]] = [{}, {"apiKey": []}]
+_UNAUTHORIZED_HEADERS = {
+    "WWW-Authenticate": {
+        "description": 'Bearer challenge, e.g. `Bearer realm="attribute-sampling"`.',
+        "schema": {"type": "string"},
+    }
+}
+
 _PROBLEM_STATUSES = {
+    "401": UNAUTHORIZED_DESCRIPTION,
     "400": "Malformed body: not UTF-8, not strict JSON, or duplicate keys.",
     "406": "None of the media types this endpoint answers is acceptable.",
     "413": "Body larger than the configured limit.",
@@ -38,6 +52,13 @@ DESCRIPTION = (
 )
 
 
+METRICS_DESCRIPTION = (
+    "Requests by endpoint, method and status (sampling_http_requests_total), latency "
+    "(sampling_http_request_duration_seconds, a histogram) and requests in flight "
+    "(sampling_http_requests_in_flight), in the Prometheus text format 0.0.4, or "
+    "OpenMetrics when Accept asks for application/openmetrics-text."
+)
+
 MARKDOWN_DESCRIPTION = (
     "A short block for a ticket or workpaper: heading, inputs, answer, method and its "
     "reference, warnings, service version, request fingerprint (SHA-256 of the canonical "
@@ -45,11 +66,14 @@ MARKDOWN_DESCRIPTION = (
 )
 
 
-def _problem_response(description: str) -> dict[str, Any]:
-    return {
+def _problem_response(description: str, status: str = "") -> dict[str, Any]:
+    response: dict[str, Any] = {
         "description": description,
         "content": {"application/problem+json": {"schema": "Problem"}},
     }
+    if status == "401":
+        response["headers"] = _UNAUTHORIZED_HEADERS
+    return response
 
 
 def build_spec() -> APISpec:
@@ -68,6 +92,15 @@ def build_spec() -> APISpec:
     spec.components.schema("Problem", schema=ProblemSchema)
     spec.components.schema("Health", schema=HealthSchema)
     spec.components.schema("Ready", schema=ReadySchema)
+    spec.components.security_scheme(
+        "apiKey",
+        {
+            "type": "http",
+            "scheme": "bearer",
+            "description": "An API key, required only when the deployment configures keys "
+            "(SAMPLING_API_KEYS). Health, readiness and this document never need one.",
+        },
+    )
 
     for operation in all_operations():
         content: dict[str, Any] = {"application/json": {"schema": operation.response}}
@@ -77,7 +110,7 @@ def build_spec() -> APISpec:
             content[MARKDOWN]["schema"]["description"] = MARKDOWN_DESCRIPTION
         responses: dict[str, Any] = {"200": {"description": operation.summary, "content": content}}
         responses.update(
-            {code: _problem_response(text) for code, text in _PROBLEM_STATUSES.items()}
+            {code: _problem_response(text, code) for code, text in _PROBLEM_STATUSES.items()}
         )
         spec.path(
             path=operation.path,
@@ -87,6 +120,7 @@ def build_spec() -> APISpec:
                     "summary": operation.summary,
                     "description": operation.description,
                     "tags": [operation.tag],
+                    "security": _SECURITY,
                     "requestBody": {
                         "required": True,
                         "content": {"application/json": {"schema": operation.request}},
@@ -129,6 +163,28 @@ def build_spec() -> APISpec:
                         "description": "The service is starting.",
                         "content": {"application/json": {"schema": "Ready"}},
                     },
+                },
+            }
+        },
+    )
+    spec.path(
+        path="/metrics",
+        operations={
+            "get": {
+                "operationId": "metrics",
+                "summary": "Prometheus metrics",
+                "description": METRICS_DESCRIPTION,
+                "tags": ["service"],
+                "security": _SECURITY,
+                "responses": {
+                    "200": {
+                        "description": "The metrics, summed over every worker process.",
+                        "content": {
+                            "text/plain": {"schema": {"type": "string"}},
+                            "application/openmetrics-text": {"schema": {"type": "string"}},
+                        },
+                    },
+                    "401": _problem_response(UNAUTHORIZED_DESCRIPTION, "401"),
                 },
             }
         },

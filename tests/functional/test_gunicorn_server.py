@@ -131,7 +131,10 @@ def test_openapi_document(server: str, http: requests.Session) -> None:
 
 
 @pytest.mark.parametrize(
-    ("name", "raw"), [("SAMPLING_MAX_BATCH_WORK", "lots"), ("SAMPLING_MAX_ITEM", "5")]
+    ("name", "raw"),
+    [("SAMPLING_MAX_BATCH_WORK", "lots"), ("SAMPLING_MAX_ITEM", "5"),
+     ("SAMPLING_API_KEYS", "plain-key"), ("SAMPLING_CORS_ORIGINS", "example.com"),
+     ("PROMETHEUS_MULTIPROC_DIR", "/proc/version")],
 )
 def test_a_bad_setting_stops_start_up_with_the_variable_named(name: str, raw: str) -> None:
     env = {**os.environ, "HOST": HOST, "PORT": str(free_port()), "WEB_CONCURRENCY": "1",

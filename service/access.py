@@ -1,0 +1,81 @@
+"""Optional API keys: ``Authorization: Bearer <key>`` on every endpoint but a few.
+
+When :attr:`Settings.key_digests <service.settings.Settings.key_digests>` is empty (the
+default) nothing is checked. Otherwise every request, except to the paths in
+:data:`OPEN_PATHS` and CORS preflights (which browsers send without credentials), must
+carry a bearer token (RFC 6750) whose SHA-256 digest is one of the configured digests.
+
+The presented key's digest is compared with every configured digest by
+:func:`hmac.compare_digest`, all of them every time, so the time taken does not depend on
+which digest, or how much of one, matched. A missing, malformed or unknown key gets the
+same 401 problem details and ``WWW-Authenticate`` challenge whichever it was, and an
+unknown path answers 401 before 404, so nothing tells a caller without a key which keys
+or paths exist.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import hmac
+
+from flask import Flask, request
+
+from service.problems import Problem
+
+#: Health, readiness and the contract stay open, for load balancers and client generators.
+OPEN_PATHS = frozenset({"/v1/health", "/v1/ready", "/openapi.yaml"})
+UNAUTHORIZED = "/problems/unauthorized"
+REALM = "attribute-sampling"
+
+
+def _challenge(error: str | None) -> dict[str, str]:
+    value = f'Bearer realm="{REALM}"'
+    if error is not None:
+        value += f', error="{error}"'
+    return {"WWW-Authenticate": value}
+
+
+def _presented_key() -> str | None:
+    scheme, _, token = request.headers.get("Authorization", "").partition(" ")
+    token = token.strip()
+    if scheme.lower() != "bearer" or not token:
+        return None
+    return token
+
+
+def key_matches(key: str, digests: frozenset[bytes]) -> bool:
+    """Whether ``key``'s SHA-256 digest is among ``digests``, compared in constant time.
+
+    >>> key_matches("abc", frozenset({hashlib.sha256(b"abc").digest()}))
+    True
+    >>> key_matches("abd", frozenset({hashlib.sha256(b"abc").digest()}))
+    False
+    """
+    presented = hashlib.sha256(key.encode("utf-8", "surrogatepass")).digest()
+    matched = False
+    for candidate in digests:
+        matched |= hmac.compare_digest(presented, candidate)
+    return matched
+
+
+def register(app: Flask, digests: frozenset[bytes]) -> None:
+    """Require a key on ``app`` when ``digests`` is not empty."""
+    if not digests:
+        return
+
+    @app.before_request
+    def _require_key() -> None:
+        if request.path in OPEN_PATHS or request.method == "OPTIONS":
+            return
+        key = _presented_key()
+        if key is None:
+            raise Problem(
+                401, "Unauthorized",
+                "this service requires an API key: send Authorization: Bearer <key>",
+                UNAUTHORIZED, headers=_challenge(None),
+            )
+        if not key_matches(key, digests):
+            raise Problem(
+                401, "Unauthorized", "the API key sent is not accepted by this service",
+                UNAUTHORIZED, headers=_challenge("invalid_token"),
+            )
