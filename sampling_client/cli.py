@@ -1,0 +1,450 @@
+"""The ``attribute-sampling`` command: the service's operations from a shell, and ``serve``.
+
+One subcommand per operation of the service (its operationId), with one flag per request
+field derived from the operation's request schema (:mod:`sampling_client.flags`), so a new
+endpoint or field is on the command line without new code here. ``serve`` runs the
+service itself under gunicorn; ``health`` and ``ready`` ask a running one how it is.
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import os
+import re
+import sys
+import textwrap
+from collections.abc import Mapping, Sequence
+from pathlib import Path
+from typing import Any, NoReturn
+
+from sampling_client import api, controls, flags, tables
+from sampling_client.api import (
+    DEFAULT_URL,
+    JSON,
+    MARKDOWN,
+    AuthenticationFailed,
+    RequestRejected,
+    SamplingClient,
+    ServiceError,
+    ServiceUnavailable,
+)
+
+PROG = "attribute-sampling"
+URL_VARIABLE = "ATTRIBUTE_SAMPLING_URL"
+KEY_VARIABLE = "ATTRIBUTE_SAMPLING_API_KEY"
+
+EXIT_OK = 0
+EXIT_USAGE = 2
+EXIT_REFUSED = 3
+EXIT_UNAVAILABLE = 4
+EXIT_AUTHENTICATION = 5
+
+EPILOG = f"""\
+exit status:
+  0  success
+  2  usage error: an unknown flag, a value that is not a number, a file that cannot be
+     read, or a controls file with a bad row or column (nothing is sent)
+  3  the service refused the input (HTTP 4xx), naming the field; for --controls or
+     batch, at least one item was refused (every item's answer is still printed)
+  4  the service could not be reached, did not answer in time, or failed (HTTP 5xx)
+  5  the service needs an API key, or refused the one given (HTTP 401 or 403)
+  serve ends with gunicorn's own exit status.
+
+environment:
+  {URL_VARIABLE}      the service's address (default {DEFAULT_URL})
+  {KEY_VARIABLE}  API key, sent as Authorization: Bearer <key>
+
+Rates are fractions: 5% is 0.05. The results support, and do not replace,
+professional judgement and the auditing standards that apply."""
+
+_FORMAT_FLAGS = {"text/csv": "csv", "image/svg+xml": "svg"}
+# ASCII digits only: str.isdigit also takes superscripts, which int() refuses.
+_DIGITS = re.compile(r"[0-9]{1,9}")
+
+
+class UsageProblem(Exception):
+    """A usage error found after parsing (a file, a flag combination); exit status 2."""
+
+
+def _operations() -> list[Any]:
+    # The service's own declarations: names, paths, request schemas and media types.
+    from service.http import all_operations
+
+    return list(all_operations())
+
+
+def _positive_seconds(text: str) -> float:
+    try:
+        value = float(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"{text!r} is not a number of seconds") from None
+    if not value > 0 or value == float("inf"):
+        raise argparse.ArgumentTypeError(f"{text!r} must be a positive number of seconds")
+    return value
+
+
+def _count(text: str) -> int:
+    if not _DIGITS.fullmatch(text):
+        raise argparse.ArgumentTypeError(f"{text!r} is not a whole number of at least 0")
+    return int(text)
+
+
+def _port(text: str) -> int:
+    if not _DIGITS.fullmatch(text) or not 1 <= int(text) <= 65535:
+        raise argparse.ArgumentTypeError(f"{text!r} is not a port from 1 to 65535")
+    return int(text)
+
+
+def _connection_options() -> argparse.ArgumentParser:
+    common = argparse.ArgumentParser(add_help=False, allow_abbrev=False)
+    group = common.add_argument_group("connection")
+    group.add_argument("--url", default=os.environ.get(URL_VARIABLE) or DEFAULT_URL,
+                       help=f"the service's address (default: ${URL_VARIABLE}, else "
+                       f"{DEFAULT_URL})")
+    group.add_argument("--api-key", default=os.environ.get(KEY_VARIABLE) or None,
+                       help=f"API key (default: ${KEY_VARIABLE}); prefer the variable, since "
+                       "a flag shows in the process list")
+    group.add_argument("--timeout", type=_positive_seconds, default=10.0,
+                       help="seconds to wait for the connection and for the answer "
+                       "(default 10)")
+    group.add_argument("--retries", type=_count, default=3,
+                       help="further tries when the connection fails or the service answers "
+                       "503 (default 3)")
+    group.add_argument("--request-id", help="sent as X-Request-ID, to find the call in the "
+                       "service's logs")
+    return common
+
+
+def _output_options(parser: argparse.ArgumentParser, operation: Any, single: bool) -> None:
+    group = parser.add_argument_group("output (default: an aligned table)")
+    choice = group.add_mutually_exclusive_group()
+    choice.add_argument("--json", dest="output", action="store_const", const="json",
+                        help="print the service's JSON answer exactly")
+    choice.add_argument("--markdown", dest="output", action="store_const", const="markdown",
+                        help="print the service's ticket-ready Markdown block")
+    offered = [t for t in operation.media_types if t in _FORMAT_FLAGS]
+    for media_type in offered:
+        name = _FORMAT_FLAGS[media_type]
+        extra = "; with --controls, the rows as CSV" if name == "csv" and single else ""
+        choice.add_argument(f"--{name}", dest="output", action="store_const", const=name,
+                            help=f"print the service's {media_type} answer exactly{extra}")
+    if single and "text/csv" not in offered:
+        choice.add_argument("--csv", dest="output", action="store_const", const="csv",
+                            help="with --controls: the rows as CSV (UTF-8 with a byte order "
+                            "mark, CRLF line ends)")
+
+
+def _add_operation(subparsers: Any, operation: Any, common: argparse.ArgumentParser) -> None:
+    schema = operation.request()
+    specs = flags.field_specs(schema)
+    single = operation.name != "batch"
+    parser = subparsers.add_parser(
+        operation.name, help=operation.summary, parents=[common], allow_abbrev=False,
+        description=textwrap.fill(
+            f"{operation.summary} (POST {operation.path}). {operation.description}",
+            flags.HELP_WIDTH),
+        epilog=EPILOG, formatter_class=argparse.RawDescriptionHelpFormatter,
+    )
+    parser.set_defaults(command="operation", operation=operation, specs=specs, output=None)
+    flags.add_flags(parser, specs, flags.group_descriptions(schema))
+    parser.add_argument("--body", metavar="FILE",
+                        help="the request as a JSON object from FILE ('-' for standard "
+                        "input); flags given set their fields on top of it")
+    if single:
+        columns = ", ".join(controls.column_specs(specs))
+        parser.add_argument(
+            "--controls", metavar="CSV",
+            help=f"one row per control, sent as one batch (in chunks of "
+            f"{api.MAX_BATCH_OPERATIONS:,}): a CSV file whose header names {controls.ID_COLUMN} "
+            f"and any of {columns}. Numbers are plain decimals (0.05, not 5%% or 0,05); a "
+            "blank cell leaves the field to the service's default; flags given apply to "
+            "every row. Prints one row per control.",
+        )
+    _output_options(parser, operation, single)
+
+
+#: Commands that need no request schema: their parser is built without the operations.
+SERVICE_COMMANDS = frozenset({"serve", "health", "ready"})
+
+
+def build_parser(with_operations: bool = True) -> argparse.ArgumentParser:
+    """The whole command line: one subcommand per operation, then serve, health, ready.
+
+    ``with_operations=False`` leaves the operations out, for the commands that need none:
+    reading the schemas loads the whole service, seconds that ``serve`` and ``health``
+    (often a probe) are spared.
+    """
+    parser = argparse.ArgumentParser(
+        prog=PROG, allow_abbrev=False, epilog=EPILOG,
+        formatter_class=argparse.RawDescriptionHelpFormatter,
+        description=textwrap.fill(
+            "Statistical sampling for tests of controls, from the attribute sampling "
+            "service: size a sample, select its items, evaluate the deviations found.",
+            flags.HELP_WIDTH),
+    )
+    parser.add_argument("--version", action="version", version=f"%(prog)s {api.VERSION}")
+    subparsers = parser.add_subparsers(title="commands", metavar="COMMAND", required=True)
+    common = _connection_options()
+    for operation in _operations() if with_operations else ():
+        _add_operation(subparsers, operation, common)
+
+    serve = subparsers.add_parser(
+        "serve", help="run the service here under gunicorn", allow_abbrev=False,
+        description="Run the service under gunicorn with service.gunicorn_config, as the "
+        "container does. The flags set HOST, PORT and WEB_CONCURRENCY, which that "
+        "configuration reads; the other variables it reads (GUNICORN_*, SAMPLING_*) pass "
+        "through from the environment. The exit status is gunicorn's.",
+    )
+    serve.set_defaults(command="serve")
+    serve.add_argument("--host", help="address to listen on (default: $HOST, else 127.0.0.1)")
+    serve.add_argument("--port", type=_port, help="port (default: $PORT, else 8000)")
+    serve.add_argument("--workers", type=_port, metavar="N",
+                       help="worker processes (default: $WEB_CONCURRENCY, else 2 × cores + "
+                       "1, at most 8)")
+    for name, what in (("health", "liveness and version"), ("ready", "readiness")):
+        sub = subparsers.add_parser(name, help=f"ask a running service its {what}",
+                                    parents=[common], allow_abbrev=False, epilog=EPILOG,
+                                    formatter_class=argparse.RawDescriptionHelpFormatter)
+        sub.set_defaults(command=name, output=None)
+        sub.add_argument("--json", dest="output", action="store_const", const="json",
+                         help="print the JSON answer")
+    return parser
+
+
+# --------------------------------------------------------------------------- running
+
+
+def _client(args: argparse.Namespace) -> SamplingClient:
+    try:
+        return SamplingClient(args.url, api_key=args.api_key, timeout=args.timeout,
+                              retries=args.retries)
+    except ValueError as problem:
+        raise UsageProblem(str(problem)) from None
+
+
+def _write(text: str) -> None:
+    """Write the text as UTF-8 bytes, exactly (no newline translation)."""
+    sys.stdout.buffer.write(text.encode("utf-8"))
+    sys.stdout.flush()
+
+
+def _read_body(path: str | None) -> dict[str, Any]:
+    if path is None:
+        return {}
+    try:
+        text = sys.stdin.read() if path == "-" else Path(path).read_text(encoding="utf-8-sig")
+    except OSError as exc:
+        raise UsageProblem(f"--body {path}: {exc.strerror}") from None
+    except UnicodeDecodeError as exc:
+        raise UsageProblem(f"--body {path}: not UTF-8 text (byte {exc.start})") from None
+    try:
+        body = flags.strict_json(text)
+    except flags.ValueProblem as problem:
+        raise UsageProblem(f"--body {path}: {problem}") from None
+    if not isinstance(body, dict):
+        raise UsageProblem(f"--body {path}: must hold a JSON object")
+    return body
+
+
+def _body(args: argparse.Namespace) -> dict[str, Any]:
+    try:
+        return flags.build_body(args, args.specs, _read_body(args.body))
+    except flags.ValueProblem as problem:
+        raise UsageProblem(str(problem)) from None
+
+
+def _merge(base: Mapping[str, Any], extra: Mapping[str, Any]) -> dict[str, Any]:
+    merged = dict(base)
+    for key, value in extra.items():
+        if isinstance(value, Mapping) and isinstance(merged.get(key), Mapping):
+            merged[key] = _merge(merged[key], value)
+        else:
+            merged[key] = value
+    return merged
+
+
+def _leaf_names(body: Mapping[str, Any], prefix: str = "") -> set[str]:
+    names: set[str] = set()
+    for key, value in body.items():
+        name = f"{prefix}_{key}" if prefix else key
+        names |= _leaf_names(value, name) if isinstance(value, Mapping) else {name}
+    return names
+
+
+def _run_operation(args: argparse.Namespace) -> int:
+    operation = args.operation
+    body = _body(args)
+    if getattr(args, "controls", None):
+        return _run_controls(args, body)
+    if args.output == "csv" and "text/csv" not in operation.media_types:
+        raise UsageProblem(f"--csv for {operation.name} needs --controls")
+    with _client(args) as client:
+        if args.output is None:
+            document = client.call(operation.name, body, request_id=args.request_id)
+            if operation.name == "batch":
+                _write(tables.batch_text(body.get("operations") or [], document["results"]))
+                return _batch_status(document["results"])
+            _write(tables.document_text(operation.summary, document))
+            return EXIT_OK
+        media_type = {"json": JSON, "markdown": MARKDOWN}.get(args.output) or next(
+            t for t, name in _FORMAT_FLAGS.items() if name == args.output)
+        text = client.call_text(operation.name, body, media_type, request_id=args.request_id)
+        _write(text if text.endswith("\n") or media_type != JSON else text + "\n")
+        if operation.name == "batch" and media_type == JSON:
+            return _batch_status(json.loads(text)["results"])
+        return EXIT_OK
+
+
+def _batch_status(results: Sequence[Mapping[str, Any]]) -> int:
+    return EXIT_OK if all(r.get("status") == 200 for r in results) else EXIT_REFUSED
+
+
+def _run_controls(args: argparse.Namespace, shared: dict[str, Any]) -> int:
+    operation = args.operation
+    if args.output == "markdown":
+        raise UsageProblem("--markdown is not offered with --controls (the service's batch "
+                           "block lists ids and statuses only); use the table, --csv or --json")
+    given = _leaf_names(shared)
+    try:
+        rows = controls.read_controls(args.controls, args.specs)
+    except controls.ControlsFileError as problem:
+        raise UsageProblem(str(problem)) from None
+    twice = sorted(given & {name for row in rows for name in _leaf_names(row.request)})
+    if twice:
+        raise UsageProblem(f"{args.controls}: {', '.join(twice)} is given both on the command "
+                           "line and in the file; give each field in one place")
+    items = controls.batch_operations(
+        [controls.Control(r.control_id, r.row, _merge(shared, r.request)) for r in rows],
+        operation.name,
+    )
+    ids = [r.control_id for r in rows]
+    args.control_rows = rows  # so that a refusal of the whole batch can name the rows
+    with _client(args) as client:
+        if args.output == "json" and len(items) <= api.MAX_BATCH_OPERATIONS:
+            text = client.call_text("batch", {"operations": items}, JSON,
+                                    request_id=args.request_id)
+            _write(text if text.endswith("\n") else text + "\n")
+            return _batch_status(json.loads(text)["results"])
+        document = client.batch(items, chunk_size=api.MAX_BATCH_OPERATIONS,
+                                request_id=args.request_id)
+    results = document["results"]
+    if args.output == "json":
+        _write(json.dumps(document, ensure_ascii=False) + "\n")
+    elif args.output == "csv":
+        _write(tables.controls_csv(ids, operation.name, results))
+    else:
+        _write(tables.controls_text(ids, operation.name, results))
+    return _batch_status(results)
+
+
+def _run_meta(args: argparse.Namespace) -> int:
+    with _client(args) as client:
+        document = client.health() if args.command == "health" else client.ready()
+    if args.output == "json":
+        _write(json.dumps(document, ensure_ascii=False) + "\n")
+    else:
+        rows = [[tables.label(k), tables.value_text(k, v)] for k, v in document.items()]
+        _write("\n".join([*tables.aligned([["Service", client.base_url], *rows])]) + "\n")
+    return EXIT_OK
+
+
+def _serve(args: argparse.Namespace) -> NoReturn:
+    for variable, value in (("HOST", args.host), ("PORT", args.port),
+                            ("WEB_CONCURRENCY", args.workers)):
+        if value is not None:
+            os.environ[variable] = str(value)
+    gunicorn = Path(sys.executable).parent / "gunicorn"
+    argv = [str(gunicorn), "--config", "python:service.gunicorn_config", "service.wsgi:app"]
+    try:
+        # A fixed program beside this Python, its arguments fixed too, and no shell.
+        os.execv(gunicorn, argv)  # noqa: S606  # nosec B606
+    except OSError as exc:
+        print(f"{PROG} serve: cannot start {gunicorn}: {exc.strerror}", file=sys.stderr)
+        raise SystemExit(1) from None
+
+
+# --------------------------------------------------------------------------- errors
+
+
+_ITEM_FIELD = re.compile(r"operations\[([0-9]+)\](?:\.request)?\.?(.*)")
+
+
+def _field_flag(field: str, specs: Sequence[flags.FieldSpec],
+                rows: Sequence[controls.Control] = ()) -> str:
+    """``tolerable_rate`` → ``--tolerable-rate (tolerable_rate)``, when a flag sets it;
+    ``operations[3].id`` → ``row 5 (control 'NT-P2P-04'), id`` in a controls batch."""
+    item = _ITEM_FIELD.fullmatch(field) if rows else None
+    if item is not None and int(item.group(1)) < len(rows):
+        row = rows[int(item.group(1))]
+        return f"row {row.row} (control {row.control_id!r}), {item.group(2) or 'request'}"
+    for spec in specs:
+        if field == spec.dotted or field.startswith((spec.dotted + "[", spec.dotted + ".")):
+            return f"{spec.flag} ({field})"
+    return field
+
+
+def explain(error: ServiceError, specs: Sequence[flags.FieldSpec] = (),
+            rows: Sequence[controls.Control] = ()) -> list[str]:
+    """The lines printed for ``error``: what happened, each field, and what to do."""
+    if isinstance(error, AuthenticationFailed):
+        lines = [str(error)]
+        if not error.key_sent:
+            lines.append(f"Give the key in {KEY_VARIABLE} (or --api-key).")
+        return lines
+    if isinstance(error, RequestRejected):
+        head = f"the service refused the request (HTTP {error.status} {error.title})"
+        if not error.errors:
+            return [f"{head}: {error.detail}"]
+        lines = [f"{head}:"]
+        for field, messages in error.errors.items():
+            lines.append(f"  {_field_flag(field, specs, rows)}: {' '.join(messages)}")
+        if error.request_id:
+            lines.append(f"  (request id {error.request_id})")
+        return lines
+    lines = [str(error)]
+    if isinstance(error, ServiceUnavailable) and error.status is None:
+        lines.append(f"Is the service running there? '{PROG} serve' starts one; --url or "
+                     f"{URL_VARIABLE} points elsewhere.")
+    return lines
+
+
+def exit_status(error: ServiceError) -> int:
+    """The exit status for an error of the client (see the epilog)."""
+    if isinstance(error, AuthenticationFailed):
+        return EXIT_AUTHENTICATION
+    if isinstance(error, RequestRejected):
+        return EXIT_REFUSED
+    return EXIT_UNAVAILABLE
+
+
+def main(argv: Sequence[str] | None = None) -> int:
+    """Run the command line; returns the exit status."""
+    arguments = list(sys.argv[1:] if argv is None else argv)
+    parser = build_parser(with_operations=not arguments or arguments[0] not in SERVICE_COMMANDS)
+    args = parser.parse_args(arguments)
+    try:
+        if args.command == "serve":
+            _serve(args)
+        if args.command in ("health", "ready"):
+            return _run_meta(args)
+        return _run_operation(args)
+    except UsageProblem as problem:
+        name = getattr(args, "operation", None)
+        print(f"{PROG} {name.name if name else args.command}: error: {problem}",
+              file=sys.stderr)
+        return EXIT_USAGE
+    except ServiceError as error:
+        first, *rest = explain(error, getattr(args, "specs", ()),
+                               getattr(args, "control_rows", ()))
+        print("\n".join([f"{PROG}: {first}", *rest]), file=sys.stderr)
+        return exit_status(error)
+    except BrokenPipeError:
+        # The reader (head, less) went away: send what Python still flushes at exit
+        # nowhere, instead of a second error.
+        os.dup2(os.open(os.devnull, os.O_WRONLY), sys.stdout.fileno())
+        return EXIT_OK
+
+
+if __name__ == "__main__":
+    raise SystemExit(main())

@@ -1,0 +1,324 @@
+"""Answers as text for people: aligned tables, and the CSV of a controls batch.
+
+A single answer is a field/value table with readable labels, then its lists as tables of
+their own, its summary paragraph, its warnings and, last, the caution sentence. Rates and
+probabilities are shown as percentages to six significant digits; ``--json`` gives the
+service's numbers at full precision.
+"""
+
+from __future__ import annotations
+
+import csv
+import io
+import textwrap
+from collections.abc import Iterable, Mapping, Sequence
+from typing import Any
+
+WIDTH = 100
+
+
+def caution() -> str:
+    """The service's caution sentence (service.sampling.wording.CAUTION)."""
+    # Imported when needed: the service package loads the computation core (scipy), which
+    # the commands that only ask a server for its health, or start one, do without.
+    from service.sampling.wording import CAUTION
+
+    return CAUTION
+
+
+def csv_cell(item: int | str) -> int | str:
+    """A CSV cell with the formula guard of the service's selection CSV."""
+    from service.http.selection import csv_cell as guarded
+
+    return guarded(item)
+
+# Fields that are not shown in the table: links and ready-made bodies are for programs.
+_NOT_SHOWN = frozenset({"summary", "warnings", "links", "curve_request"})
+
+# Labels where turning the name into words would not read well.
+_LABELS = {
+    "interval.low": "Interval, lower bound",
+    "interval.high": "Interval, upper bound",
+    "upper_deviation_count": "Upper deviation count",
+    "ratio_to_exact": "Ratio to exact",
+    "finite_population_correction": "Finite population correction",
+}
+
+# Rates and probabilities, shown as percentages.
+_RATE_NAMES = frozenset({
+    "confidence", "upper_deviation_limit", "allowance_for_sampling_risk", "margin",
+    "rate", "probability", "miss_probability", "low", "high",
+})
+
+#: The columns of a controls batch, by operation, after the control id.
+HEADLINES: dict[str, tuple[str, ...]] = {
+    "sample-size": ("sample_size", "allowed_deviations"),
+    "evaluation": ("sample_deviation_rate", "upper_deviation_limit", "conclusion"),
+    "plan-curve": ("risk_of_overreliance", "risk_of_underreliance"),
+    "estimation-sample-size": ("recommended",),
+    "selection": ("sample_size", "seed", "selection_fingerprint"),
+}
+
+
+def label(path: str) -> str:
+    """A field's label: ``risk_of_overreliance`` → "Risk of overreliance".
+
+    >>> label("allowed_deviations"), label("population.size")
+    ('Allowed deviations', 'Population size')
+    """
+    if path in _LABELS:
+        return _LABELS[path]
+    words = path.replace(".", " ").replace("_", " ")
+    return words[:1].upper() + words[1:]
+
+
+def is_rate(path: str) -> bool:
+    leaf = path.rsplit(".", 1)[-1]
+    return (
+        leaf in _RATE_NAMES
+        or leaf.endswith(("_rate", "_confidence", "_probability"))
+        or leaf.startswith("risk_")
+    )
+
+
+def percent(value: float) -> str:
+    """A fraction as a percentage to six significant digits.
+
+    >>> percent(0.05), percent(0.951744182743937), percent(0.07), percent(0)
+    ('5%', '95.1744%', '7%', '0%')
+    """
+    return f"{value * 100:.6g}%"
+
+
+def value_text(path: str, value: Any) -> str:
+    """How one value reads in a table."""
+    if value is None:
+        return "none"
+    if isinstance(value, bool):
+        return "yes" if value else "no"
+    if isinstance(value, int):
+        return f"{value:,}"
+    if isinstance(value, float):
+        return percent(value) if is_rate(path) else f"{value:.6g}"
+    if isinstance(value, list):
+        return ", ".join(value_text(path, v) for v in value) if value else "none"
+    return str(value)
+
+
+def aligned(rows: Sequence[Sequence[str]], header: Sequence[str] | None = None) -> list[str]:
+    """Rows as lines of left-aligned columns two spaces apart; a header is underlined."""
+    table = [list(header)] if header else []
+    table += [list(row) for row in rows]
+    if not table:
+        return []
+    widths = [max(len(row[i]) for row in table) for i in range(len(table[0]))]
+    lines = ["  ".join(cell.ljust(w) for cell, w in zip(row, widths, strict=True)).rstrip()
+             for row in table]
+    if header:
+        lines.insert(1, "  ".join("-" * w for w in widths))
+    return lines
+
+
+def _pairs(document: Mapping[str, Any], prefix: str = "") -> list[tuple[str, Any]]:
+    pairs: list[tuple[str, Any]] = []
+    for key, value in document.items():
+        path = f"{prefix}.{key}" if prefix else key
+        if not prefix and key in _NOT_SHOWN:
+            continue
+        if isinstance(value, Mapping):
+            pairs.extend(_pairs(value, path))
+        else:
+            pairs.append((path, value))
+    return pairs
+
+
+def _is_objects(value: Any) -> bool:
+    return isinstance(value, list) and bool(value) and all(isinstance(v, Mapping) for v in value)
+
+
+def _objects_table(name: str, items: list[Mapping[str, Any]]) -> list[str]:
+    columns: list[str] = []
+    for item in items:
+        columns += [k for k, v in item.items() if k not in columns and not isinstance(v, list)]
+    rows = [[value_text(c, item.get(c)) for c in columns] for item in items]
+    return [f"{label(name)}:", "", *aligned(rows, [label(c) for c in columns])]
+
+
+def _selected_items(document: Mapping[str, Any]) -> list[str] | None:
+    """A selection's items with their draw and position, when the document has both lists."""
+    items, positions = document.get("items"), document.get("positions")
+    if not (isinstance(items, list) and isinstance(positions, list)
+            and len(items) == len(positions)):
+        return None
+    rows = [[str(draw), str(item), str(position)]
+            for draw, (item, position) in enumerate(zip(items, positions, strict=True), 1)]
+    return ["Selected items:", "", *aligned(rows, ["Draw", "Item", "Position"])]
+
+
+def split_caution(summary: str) -> str:
+    """The summary without the caution sentence it ends with (shown on its own line)."""
+    return summary.removesuffix(caution()).rstrip()
+
+
+def _paragraph(text: str, indent: str = "") -> list[str]:
+    return textwrap.wrap(text, WIDTH, initial_indent=indent, subsequent_indent=indent) or [""]
+
+
+def _closing(document: Mapping[str, Any]) -> list[str]:
+    lines: list[str] = []
+    summary = document.get("summary")
+    if isinstance(summary, str) and summary:
+        lines += ["", *_paragraph(split_caution(summary))]
+    warnings = document.get("warnings")
+    if isinstance(warnings, list) and warnings:
+        lines += ["", "Warnings:"]
+        for warning in warnings:
+            lines += textwrap.wrap(str(warning), WIDTH, initial_indent="- ",
+                                   subsequent_indent="  ")
+    return [*lines, "", *_paragraph(caution())]
+
+
+def document_text(title: str, document: Mapping[str, Any]) -> str:
+    """One answer as text: the title, the field/value table, its lists, summary, caution."""
+    selected = _selected_items(document)
+    skip = {"items", "positions"} if selected is not None else set()
+    scalars: list[list[str]] = []
+    tables: list[list[str]] = []
+    for path, value in _pairs(document):
+        if path in skip:
+            continue
+        if _is_objects(value):
+            tables.append(_objects_table(path, value))
+        else:
+            scalars.append([label(path), value_text(path, value)])
+    lines = [title, "", *aligned(scalars)]
+    if selected is not None:
+        tables.insert(0, selected)
+    for table in tables:
+        lines += ["", *table]
+    lines += _closing(document)
+    return "\n".join(lines) + "\n"
+
+
+# --------------------------------------------------------------------------- batches
+
+
+def problem_text(problem: Mapping[str, Any], prefix: str = "") -> str:
+    """A problem's reasons in one line, each field without the ``prefix`` of its path."""
+    errors = problem.get("errors")
+    if isinstance(errors, Mapping) and errors:
+        parts = []
+        for field, messages in errors.items():
+            name = str(field).removeprefix(prefix) or "request"
+            text = " ".join(messages) if isinstance(messages, list) else str(messages)
+            parts.append(f"{name}: {text}")
+        return "; ".join(parts)
+    return str(problem.get("detail") or problem.get("title") or "refused")
+
+
+def _item_prefix(index: int) -> str:
+    return f"operations[{index}].request."
+
+
+def headline(operation: str, result: Mapping[str, Any]) -> tuple[str, ...]:
+    """The fields of ``result`` that a one-row answer shows, for ``operation``."""
+    if operation in HEADLINES:
+        return HEADLINES[operation]
+    return tuple(k for k, v in result.items()
+                 if k not in _NOT_SHOWN and not isinstance(v, Mapping | list))
+
+
+def _rows(ids: Sequence[str], operation: str, results: Sequence[Mapping[str, Any]],
+          columns: Sequence[str]) -> tuple[list[list[str]], bool]:
+    rows: list[list[str]] = []
+    refused = False
+    for index, (control, answer) in enumerate(zip(ids, results, strict=True)):
+        result = answer.get("result")
+        if isinstance(result, Mapping):
+            cells = [value_text(c, result.get(c)) for c in columns]
+            rows.append([control, *cells, ""])
+        else:
+            refused = True
+            problem = answer.get("problem") or {}
+            rows.append([control, *([""] * len(columns)),
+                         f"refused (HTTP {answer.get('status')}): "
+                         + problem_text(problem, _item_prefix(index))])
+    return rows, refused
+
+
+def controls_text(
+    ids: Sequence[str], operation: str, results: Sequence[Mapping[str, Any]]
+) -> str:
+    """One row per control: its id, the operation's headline fields, or why it was refused."""
+    columns = _columns(operation, results)
+    rows, refused = _rows(ids, operation, results, columns)
+    header = ["Control", *(label(c) for c in columns)]
+    if refused:
+        header.append("Problem")
+    else:
+        rows = [row[:-1] for row in rows]
+    lines = aligned(rows, header)
+    done = sum(1 for r in results if isinstance(r.get("result"), Mapping))
+    lines += ["", f"{done} of {len(results)} answered; {len(results) - done} refused.",
+              "", *_paragraph(caution())]
+    return "\n".join(lines) + "\n"
+
+
+def _columns(operation: str, results: Iterable[Mapping[str, Any]]) -> tuple[str, ...]:
+    for answer in results:
+        result = answer.get("result")
+        if isinstance(result, Mapping):
+            return headline(operation, result)
+    return HEADLINES.get(operation, ())
+
+
+def controls_csv(
+    ids: Sequence[str], operation: str, results: Sequence[Mapping[str, Any]]
+) -> str:
+    """The same rows as CSV, as the service writes its own (UTF-8 BOM, CRLF, RFC 4180).
+
+    Numbers are written exactly as the service gave them; a text cell that a spreadsheet
+    would run as a formula is guarded as in the selection CSV.
+    """
+    columns = _columns(operation, results)
+    out = io.StringIO()
+    out.write("\ufeff")
+    writer = csv.writer(out, lineterminator="\r\n")
+    writer.writerow(("control_id", "status", *columns, "problem"))
+    for index, (control, answer) in enumerate(zip(ids, results, strict=True)):
+        result = answer.get("result")
+        if isinstance(result, Mapping):
+            cells = [_csv_value(result.get(c)) for c in columns]
+            problem = ""
+        else:
+            cells = [""] * len(columns)
+            problem = problem_text(answer.get("problem") or {}, _item_prefix(index))
+        writer.writerow((csv_cell(control), answer.get("status"), *cells, csv_cell(problem)))
+    return out.getvalue()
+
+
+def _csv_value(value: Any) -> Any:
+    if value is None:
+        return ""
+    if isinstance(value, bool):
+        return "true" if value else "false"
+    if isinstance(value, str):
+        return csv_cell(value)
+    return value
+
+
+def batch_text(operations: Sequence[Mapping[str, Any]],
+               results: Sequence[Mapping[str, Any]]) -> str:
+    """A batch of any operations: one row per item with its status and headline answer."""
+    rows = []
+    for index, (item, answer) in enumerate(zip(operations, results, strict=True)):
+        result = answer.get("result")
+        if isinstance(result, Mapping):
+            names = headline(str(item.get("operation")), result)
+            text = "; ".join(f"{label(n)} {value_text(n, result.get(n))}" for n in names)
+        else:
+            text = problem_text(answer.get("problem") or {}, _item_prefix(index))
+        rows.append([str(answer.get("id")), str(item.get("operation")),
+                     str(answer.get("status")), text])
+    lines = aligned(rows, ["Id", "Operation", "Status", "Answer"])
+    return "\n".join([*lines, "", *_paragraph(caution())]) + "\n"

@@ -1,0 +1,202 @@
+"""The ``attribute-sampling`` command, run as a program, against the real gunicorn server."""
+
+from __future__ import annotations
+
+import csv
+import io
+import os
+import signal
+import subprocess
+import sys
+import time
+from collections.abc import Iterator
+from pathlib import Path
+
+import pytest
+import requests
+
+from service.sampling.attributes import size_sample
+from service.sampling.wording import CAUTION
+from tests.functional.servers import ROOT, START_SECONDS, ServerFailed, free_port, running_server
+
+pytestmark = pytest.mark.functional
+
+CLI = Path(sys.executable).parent / "attribute-sampling"
+EXAMPLE = ROOT / "examples" / "month-end-controls.csv"
+RUN_SECONDS = 60.0  # only keeps a hung run from hanging the suite
+
+
+@pytest.fixture(scope="module")
+def url(tmp_path_factory: pytest.TempPathFactory) -> Iterator[str]:
+    assert CLI.exists(), f"{CLI} is missing: install the package (pip install -e .)"
+    try:
+        with running_server(tmp_path_factory.mktemp("cli")) as server:
+            yield server.url
+    except ServerFailed as failure:
+        pytest.fail(str(failure))
+
+
+def commands(down_url: str) -> dict[str, list[str]]:
+    """The command lines this module checks, by name."""
+    return {
+        "table": ["sample-size", "--tolerable-rate", "0.05", "--expected-rate", "0.01",
+                  "--confidence", "0.95", "--population-size", "4200"],
+        "json": ["sample-size", "--tolerable-rate", "0.05", "--population-size", "4200",
+                 "--json"],
+        "evaluation": ["evaluation", "--sample-size", "93", "--deviations", "1",
+                       "--tolerable-rate", "0.05", "--population-size", "4200"],
+        "selection": ["selection", "--population-ranges", "10001-14200", "--population-exclude",
+                      "10007,10233", "--sample-size", "60", "--seed", "northwind-2026-q3",
+                      "--csv"],
+        "month_end_csv": ["sample-size", "--controls", str(EXAMPLE), "--csv"],
+        "refused": ["sample-size", "--tolerable-rate", "5", "--expected-rate", "0.01"],
+        "unreachable": ["sample-size", "--tolerable-rate", "0.05", "--retries", "0",
+                        "--url", down_url],
+        "usage": ["sample-size", "--tolerable-rate", "5%"],
+    }
+
+
+@pytest.fixture(scope="module")
+def down_url() -> str:
+    return f"http://127.0.0.1:{free_port()}"  # nothing listens there
+
+
+@pytest.fixture(scope="module")
+def runs(url: str, down_url: str) -> dict[str, subprocess.CompletedProcess[bytes]]:
+    """Every command of this module, run as a program, all started at once.
+
+    Each run loads the service's schemas before it sends anything (a couple of seconds of
+    CPU), so they run side by side rather than one after the other.
+    """
+    env = {**os.environ, "ATTRIBUTE_SAMPLING_URL": url}
+    env.pop("ATTRIBUTE_SAMPLING_API_KEY", None)
+    started = {
+        name: (argv, subprocess.Popen([str(CLI), *argv], env=env, cwd=ROOT,
+                                      stdout=subprocess.PIPE, stderr=subprocess.PIPE))
+        for name, argv in commands(down_url).items()
+    }
+    done = {}
+    for name, (argv, process) in started.items():
+        try:
+            out, err = process.communicate(timeout=RUN_SECONDS)
+        except subprocess.TimeoutExpired:
+            process.kill()
+            out, err = process.communicate()
+        done[name] = subprocess.CompletedProcess(argv, process.returncode, out, err)
+    return done
+
+
+Runs = dict[str, subprocess.CompletedProcess[bytes]]
+
+
+def test_sample_size_table(runs: Runs) -> None:
+    done = runs["table"]
+    assert done.returncode == 0, done.stderr
+    lines = done.stdout.decode().splitlines()
+    assert lines[0] == "Sample size for a test of controls"
+    # AICPA Audit Guide "Audit Sampling", table A-1 (recalled from memory): 93 items, 1
+    # deviation allowed; a population of 4,200 does not change it.
+    assert "Sample size            93" in lines
+    assert "Allowed deviations     1" in lines
+    assert " ".join(" ".join(lines[-3:]).split()).endswith(CAUTION)
+
+
+def test_json_is_the_services_answer_exactly(runs: Runs, url: str) -> None:
+    done = runs["json"]
+    assert done.returncode == 0, done.stderr
+    direct = requests.post(f"{url}/v1/sample-size", timeout=10,
+                           json={"population": {"size": 4200}, "tolerable_rate": 0.05})
+    assert done.stdout == direct.content + b"\n"
+
+
+def test_evaluation_table(runs: Runs) -> None:
+    done = runs["evaluation"]
+    assert done.returncode == 0, done.stderr
+    text = done.stdout.decode()
+    assert "Conclusion                   supports_reliance" in text
+    assert "Deviations                   1" in text
+
+
+def test_selection_csv_is_the_services_csv(runs: Runs, url: str) -> None:
+    done = runs["selection"]
+    assert done.returncode == 0, done.stderr
+    direct = requests.post(f"{url}/v1/selection", headers={"Accept": "text/csv"}, timeout=10,
+                           json={"population": {"ranges": [{"first": 10001, "last": 14200}],
+                                                "exclude": [10007, 10233]},
+                                 "sample_size": 60, "seed": "northwind-2026-q3"})
+    assert done.stdout == direct.content
+    assert done.stdout.count(b"\r\n") == 61
+
+
+def test_the_month_end_batch_of_forty_controls(runs: Runs) -> None:
+    done = runs["month_end_csv"]
+    assert done.returncode == 0, done.stderr
+    text = done.stdout.decode("utf-8")
+    assert text.startswith("\ufeffcontrol_id,status,sample_size,allowed_deviations,problem\r\n")
+    answers = list(csv.DictReader(io.StringIO(text.removeprefix("\ufeff"))))
+    with EXAMPLE.open(encoding="utf-8", newline="") as handle:
+        controls = list(csv.DictReader(handle))
+    assert len(answers) == len(controls) == 40
+    for control, answer in zip(controls, answers, strict=True):
+        assert answer["control_id"] == control["control_id"]
+        assert answer["status"] == "200"
+        # Each row against the computation core called directly with the row's values.
+        plan = size_sample(
+            float(control["tolerable_rate"]),
+            float(control["expected_rate"]),
+            float(control["confidence"]),
+            int(control["population_size"]) if control["population_size"] else None,
+            control["method"] or None,
+        )
+        assert (int(answer["sample_size"]), int(answer["allowed_deviations"])) == (
+            plan.sample_size, plan.allowed_deviations), control["control_id"]
+
+
+def test_refused_input_exits_3_naming_the_field(runs: Runs) -> None:
+    done = runs["refused"]
+    assert done.returncode == 3
+    assert done.stdout == b""
+    error = done.stderr.decode()
+    assert "the service refused the request (HTTP 422 Invalid input)" in error
+    assert "--tolerable-rate (tolerable_rate): must be a fraction strictly between 0 and 1; " \
+        "got 5, which looks like a percentage" in error
+
+
+def test_an_unreachable_service_exits_4(runs: Runs, down_url: str) -> None:
+    done = runs["unreachable"]
+    assert done.returncode == 4
+    assert f"cannot reach the attribute sampling service at {down_url} (connection refused" \
+        in done.stderr.decode()
+
+
+def test_a_usage_error_exits_2(runs: Runs) -> None:
+    done = runs["usage"]
+    assert done.returncode == 2
+    assert "argument --tolerable-rate: '5%' is not a number (rates are fractions: 5% is 0.05)" \
+        in done.stderr.decode()
+
+
+def test_serve_starts_a_server_that_answers_and_stops_on_sigterm(tmp_path: Path) -> None:
+    port = free_port()
+    env = {k: v for k, v in os.environ.items() if k not in ("HOST", "PORT", "WEB_CONCURRENCY")}
+    with (tmp_path / "serve.log").open("wb") as log:
+        process = subprocess.Popen([str(CLI), "serve", "--host", "127.0.0.1", "--port", str(port),
+                                    "--workers", "1"], env=env, stdout=log,
+                                   stderr=subprocess.STDOUT, cwd=tmp_path)
+        try:
+            deadline = time.monotonic() + START_SECONDS
+            while True:
+                assert process.poll() is None, (tmp_path / "serve.log").read_text()
+                try:
+                    health = requests.get(f"http://127.0.0.1:{port}/v1/health", timeout=1)
+                    break
+                except requests.ConnectionError:
+                    assert time.monotonic() < deadline, "serve did not answer in time"
+                    time.sleep(0.1)
+            assert health.json()["status"] == "ok"
+            process.send_signal(signal.SIGTERM)
+            assert process.wait(timeout=30) == 0
+        finally:
+            if process.poll() is None:
+                process.kill()
+                process.wait(timeout=10)

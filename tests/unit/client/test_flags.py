@@ -1,0 +1,213 @@
+"""Flags derived from the request schemas, and the JSON bodies built from them."""
+
+from __future__ import annotations
+
+import argparse
+from pathlib import Path
+from typing import Any
+
+import pytest
+from marshmallow import Schema, fields
+
+from sampling_client import flags
+from sampling_client.cli import build_parser
+from schemas.attributes import EvaluationRequest, SampleSizeRequest
+from schemas.batch import BatchRequest
+from schemas.estimation import EstimationRequest
+from schemas.fields import Rate, StrictString
+from schemas.selection import SelectionRequest
+from service.http import all_operations
+
+
+def by_name(schema: Schema) -> dict[str, flags.FieldSpec]:
+    return {spec.name: spec for spec in flags.field_specs(schema)}
+
+
+def parse(operation: str, *argv: str) -> argparse.Namespace:
+    return build_parser().parse_args([operation, *argv])
+
+
+def body(operation: str, *argv: str) -> dict[str, Any]:
+    args = parse(operation, *argv)
+    return flags.build_body(args, args.specs)
+
+
+def test_sample_size_fields_become_flags_with_their_descriptions() -> None:
+    specs = by_name(SampleSizeRequest())
+    assert list(specs) == ["population_size", "population_label", "tolerable_rate",
+                           "expected_rate", "confidence", "method"]
+    assert specs["population_size"].flag == "--population-size"
+    assert specs["population_size"].dotted == "population.size"
+    assert specs["tolerable_rate"].kind == flags.NUMBER
+    assert specs["tolerable_rate"].required
+    assert specs["tolerable_rate"].description == "Tolerable deviation rate, as a fraction."
+    assert specs["confidence"].default == 0.95
+    assert specs["method"].choices == ("binomial", "hypergeometric", "poisson")
+
+
+def test_each_kind_of_list_in_the_schemas_is_recognised() -> None:
+    selection = by_name(SelectionRequest())
+    assert selection["population_ranges"].kind == flags.PAIRS
+    assert selection["population_ranges"].pair == ("first", "last")
+    assert selection["population_exclude"].kind == flags.NUMBERS  # data_key, not the attribute
+    assert selection["population_items"].kind == flags.STRINGS
+    assert by_name(EstimationRequest())["methods"].kind == flags.CHOICES
+    assert by_name(BatchRequest())["operations"].kind == flags.RAW_JSON
+
+
+def test_a_field_added_to_a_schema_is_a_flag_without_new_code() -> None:
+    class Future(Schema):
+        risk_weight = Rate(metadata={"description": "A new rate."})
+        region = StrictString()
+        flagged = fields.Boolean()
+        tags = fields.List(fields.Dict())
+
+    specs = by_name(Future())
+    assert [(s.name, s.kind) for s in specs.values()] == [
+        ("risk_weight", flags.NUMBER), ("region", flags.STRING), ("flagged", flags.BOOLEAN),
+        ("tags", flags.RAW_JSON)]
+    parser = argparse.ArgumentParser()
+    flags.add_flags(parser, list(specs.values()))
+    args = parser.parse_args(["--risk-weight", "0.2", "--no-flagged", "--tags", '[{"a": 1}]'])
+    assert flags.build_body(args, list(specs.values())) == {
+        "risk_weight": 0.2, "flagged": False, "tags": [{"a": 1}]}
+
+
+def test_the_issue_example_builds_typed_json() -> None:
+    assert body("sample-size", "--tolerable-rate", "0.05", "--expected-rate", "0.01",
+                "--confidence", "0.95", "--population-size", "4200") == {
+        "population": {"size": 4200}, "tolerable_rate": 0.05, "expected_rate": 0.01,
+        "confidence": 0.95}
+
+
+def test_numbers_are_not_coerced_so_the_service_can_judge_them() -> None:
+    sent = body("sample-size", "--tolerable-rate", "5", "--population-size", "60.5")
+    assert sent == {"population": {"size": 60.5}, "tolerable_rate": 5}
+    assert isinstance(sent["tolerable_rate"], int)
+    assert body("evaluation", "--sample-size", "1e2") == {"sample_size": 100.0}
+
+
+@pytest.mark.parametrize(("text", "words"), [
+    ("5%", "rates are fractions: 5% is 0.05"),
+    ("0,05", "use a point, not a comma"),
+    ("five", "is not a number"),
+    ("", "is blank"),
+    ("0x10", "is not a number"),
+    ("nan", "is not a number"),
+])
+def test_a_value_that_is_not_a_number_is_a_usage_error(
+    text: str, words: str, capsys: pytest.CaptureFixture[str]
+) -> None:
+    with pytest.raises(SystemExit) as caught:
+        parse("sample-size", "--tolerable-rate", text)
+    assert caught.value.code == 2
+    error = capsys.readouterr().err
+    assert "argument --tolerable-rate:" in error
+    assert words in error
+
+
+def test_text_and_choices_are_passed_as_given() -> None:
+    # The service, not the command line, says that a method is unknown.
+    assert body("sample-size", "--method", "Binomial ", "--population-label", " Q3 ") == {
+        "population": {"label": " Q3 "}, "method": "Binomial "}
+
+
+def test_choice_lists_take_commas_and_repeats() -> None:
+    assert body("estimation-sample-size", "--methods", "exact,wilson", "--methods",
+                "hoeffding") == {"methods": ["exact", "wilson", "hoeffding"]}
+
+
+def test_ranges_and_excluded_numbers() -> None:
+    assert body("selection", "--population-ranges", "10001-14200,20001-20010",
+                "--population-exclude", "10007,10233", "--population-exclude", "20005") == {
+        "population": {"ranges": [{"first": 10001, "last": 14200},
+                                  {"first": 20001, "last": 20010}],
+                       "exclude": [10007, 10233, 20005]}}
+
+
+@pytest.mark.parametrize("text", ["10001", "10001-", "a-b", "10001-14200,"])
+def test_a_range_that_is_not_first_last_is_a_usage_error(text: str) -> None:
+    with pytest.raises(SystemExit) as caught:
+        parse("selection", "--population-ranges", text)
+    assert caught.value.code == 2
+
+
+def test_identifiers_are_one_per_flag_commas_kept() -> None:
+    assert body("selection", "--population-items", "PO-1,a", "--population-items", "PO-2") == {
+        "population": {"items": ["PO-1,a", "PO-2"]}}
+
+
+def test_identifiers_from_a_file_exactly_as_written(tmp_path: Path) -> None:
+    path = tmp_path / "items.txt"
+    path.write_bytes("\ufeffPO-1\r\n PO-2 \nPO,3\n".encode())
+    assert body("selection", "--items-file", str(path)) == {
+        "population": {"items": ["PO-1", " PO-2 ", "PO,3"]}}
+    assert body("selection", "--population-items-file", str(path))["population"]["items"][0] == (
+        "PO-1")
+
+
+def test_a_bad_line_of_a_number_file_names_the_line(tmp_path: Path) -> None:
+    path = tmp_path / "voided.txt"
+    path.write_text("10007\n10,233\n")
+    args = parse("selection", "--exclude-file", str(path))
+    with pytest.raises(flags.ValueProblem, match=r"voided.txt, line 2: '10,233' is not a number"):
+        flags.build_body(args, args.specs)
+
+
+def test_a_missing_file_is_named(tmp_path: Path) -> None:
+    args = parse("selection", "--items-file", str(tmp_path / "none.txt"))
+    with pytest.raises(flags.ValueProblem, match=r"none\.txt: no such file"):
+        flags.build_body(args, args.specs)
+
+
+def test_a_list_and_its_file_cannot_both_be_given(tmp_path: Path) -> None:
+    with pytest.raises(SystemExit):
+        parse("selection", "--population-items", "a", "--items-file", str(tmp_path / "x"))
+
+
+def test_free_shaped_json_from_a_flag_or_a_file(tmp_path: Path) -> None:
+    items = '[{"id": "a", "operation": "sample-size", "request": {"tolerable_rate": 0.05}}]'
+    path = tmp_path / "operations.json"
+    path.write_text(items)
+    expected = {"operations": [{"id": "a", "operation": "sample-size",
+                                "request": {"tolerable_rate": 0.05}}]}
+    assert body("batch", "--operations", items) == expected
+    assert body("batch", "--operations-file", str(path)) == expected
+    with pytest.raises(SystemExit):
+        parse("batch", "--operations", "[NaN]")
+
+
+def test_flags_are_set_on_top_of_a_base_body() -> None:
+    args = parse("evaluation", "--deviations", "1", "--population-label", "POs")
+    base = {"sample_size": 60, "deviations": 3, "population": {"size": 4200}}
+    assert flags.build_body(args, args.specs, base) == {
+        "sample_size": 60, "deviations": 1, "population": {"size": 4200, "label": "POs"}}
+    assert base["deviations"] == 3  # the base itself is left alone
+
+
+def test_the_help_shows_description_default_and_requirement(
+    capsys: pytest.CaptureFixture[str]
+) -> None:
+    with pytest.raises(SystemExit):
+        parse("evaluation", "--help")
+    text = " ".join(capsys.readouterr().out.split())
+    assert "--sample-size SAMPLE_SIZE Items tested. Required." in text
+    assert "Service default: 0.95." in text
+    assert "Required when population is given." in text
+    assert "exit status:" in text
+
+
+def test_every_operation_of_the_service_is_a_command() -> None:
+    parser = build_parser()
+    for operation in all_operations():
+        args = parser.parse_args([operation.name])
+        assert args.operation is operation
+        assert [s.name for s in args.specs] == [
+            s.name for s in flags.field_specs(operation.request())]
+
+
+def test_evaluation_fields_cover_the_schema() -> None:
+    # Every top-level field of the schema is reached by some flag.
+    schema = EvaluationRequest()
+    roots = {spec.path[0] for spec in flags.field_specs(schema)}
+    assert roots == {field.data_key or name for name, field in schema.fields.items()}

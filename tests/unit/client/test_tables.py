@@ -1,0 +1,139 @@
+"""Text for people: aligned tables, labels, percentages, the caution last; batch CSV."""
+
+from __future__ import annotations
+
+import csv
+import io
+from typing import Any
+
+from flask.testing import FlaskClient
+
+from sampling_client import tables
+from service.sampling.wording import CAUTION
+
+
+def answer(client: FlaskClient, path: str, body: dict[str, Any]) -> dict[str, Any]:
+    response = client.post(path, json=body)
+    assert response.status_code == 200, response.get_data(as_text=True)
+    document: dict[str, Any] = response.get_json()
+    return document
+
+
+def test_labels_and_values() -> None:
+    assert tables.label("risk_of_overreliance") == "Risk of overreliance"
+    assert tables.label("interval.low") == "Interval, lower bound"
+    assert tables.value_text("tolerable_rate", 0.05) == "5%"
+    assert tables.value_text("risk_of_overreliance", 0.04825581725606304) == "4.82558%"
+    assert tables.value_text("population_size", 4200) == "4,200"
+    assert tables.value_text("population_size", None) == "none"
+    assert tables.value_text("seed_generated", False) == "no"
+    assert tables.value_text("interval", 70.01666) == "70.0167"  # a systematic interval
+    assert tables.value_text("methods", ["exact", "wilson"]) == "exact, wilson"
+
+
+def test_columns_are_aligned_and_the_header_underlined() -> None:
+    assert tables.aligned([["a", "1"], ["bbb", "22"]], ["Key", "V"]) == [
+        "Key  V", "---  --", "a    1", "bbb  22"]
+
+
+def test_a_plan_reads_as_a_table_and_ends_with_the_caution_once(client: FlaskClient) -> None:
+    plan = answer(client, "/v1/sample-size", {"tolerable_rate": 0.05, "expected_rate": 0.01,
+                                              "population": {"size": 4200}})
+    text = tables.document_text("Sample size for a test of controls", plan)
+    lines = text.splitlines()
+    assert lines[0] == "Sample size for a test of controls"
+    assert "Sample size            93" in lines
+    assert "Allowed deviations     1" in lines
+    assert "Population size        4,200" in lines
+    assert "Curve request" not in text and "Links" not in text  # they are for programs
+    assert " ".join(text.split()).endswith(CAUTION)
+    assert text.count(CAUTION[:40]) == 1
+    assert "Test 93 items from a population of 4,200 items" in " ".join(text.split())
+
+
+def test_warnings_are_listed(client: FlaskClient) -> None:
+    plan = answer(client, "/v1/sample-size", {"tolerable_rate": 0.05, "population": {"size": 60}})
+    assert plan["warnings"]
+    text = tables.document_text("Sample size", plan)
+    assert "\nWarnings:\n- " in text
+
+
+def test_a_selection_lists_draw_item_and_position(client: FlaskClient) -> None:
+    chosen = answer(client, "/v1/selection", {"population": {"ranges": [
+        {"first": 10001, "last": 10100}]}, "sample_size": 3, "seed": "nt-2026"})
+    text = tables.document_text("Select sample items reproducibly", chosen)
+    lines = text.splitlines()
+    start = lines.index("Selected items:")
+    assert lines[start + 2].split() == ["Draw", "Item", "Position"]
+    rows = [line.split() for line in lines[start + 4:start + 7]]
+    assert rows == [[str(k + 1), str(item), str(position)] for k, (item, position) in
+                    enumerate(zip(chosen["items"], chosen["positions"], strict=True))]
+    assert "10,0" not in text  # document numbers are not grouped like amounts
+
+
+def test_lists_of_objects_become_tables(client: FlaskClient) -> None:
+    sizes = answer(client, "/v1/estimation/sample-size",
+                   {"margin": 0.05, "methods": ["exact", "hoeffding"]})
+    text = tables.document_text("Estimation", sizes)
+    assert "Rows:" in text
+    assert any(line.split()[:2] == ["exact", str(sizes["rows"][0]["sample_size"])]
+               for line in text.splitlines() if line.strip())
+
+
+RESULTS = [
+    {"id": "NT-1", "status": 200, "result": {"sample_size": 93, "allowed_deviations": 1}},
+    {"id": "=SUM(A1)", "status": 200, "result": {"sample_size": 59, "allowed_deviations": 0}},
+    {"id": "NT-3", "status": 422, "problem": {
+        "title": "Invalid input", "status": 422,
+        "errors": {"operations[2].request.expected_rate": [
+            "expected_rate 0.06 must be below tolerable_rate 0.05"]}}},
+]
+IDS = ["NT-1", "=SUM(A1)", "NT-3"]
+
+
+def test_a_controls_table_shows_each_row_or_its_problem() -> None:
+    text = tables.controls_text(IDS, "sample-size", RESULTS)
+    lines = text.splitlines()
+    assert lines[0].split() == ["Control", "Sample", "size", "Allowed", "deviations", "Problem"]
+    assert lines[2].split() == ["NT-1", "93", "1"]
+    assert lines[4].split()[0] == "NT-3"
+    assert lines[4].endswith("refused (HTTP 422): expected_rate: expected_rate 0.06 must be "
+                             "below tolerable_rate 0.05")
+    assert "2 of 3 answered; 1 refused." in text
+    assert " ".join(text.split()).endswith(CAUTION)
+
+
+def test_a_controls_table_without_refusals_has_no_problem_column() -> None:
+    text = tables.controls_text(IDS[:2], "sample-size", RESULTS[:2])
+    assert "Problem" not in text
+    assert "2 of 2 answered; 0 refused." in text
+
+
+def test_the_controls_csv() -> None:
+    text = tables.controls_csv(IDS, "sample-size", RESULTS)
+    assert text.startswith("\ufeffcontrol_id,status,sample_size,allowed_deviations,problem\r\n")
+    rows = list(csv.reader(io.StringIO(text.removeprefix("\ufeff"))))
+    assert rows[1] == ["NT-1", "200", "93", "1", ""]
+    assert rows[2] == ["'=SUM(A1)", "200", "59", "0", ""]  # the formula guard of the selection CSV
+    assert rows[3] == ["NT-3", "422", "", "",
+                       "expected_rate: expected_rate 0.06 must be below tolerable_rate 0.05"]
+
+
+def test_an_evaluation_batch_has_its_own_columns() -> None:
+    results = [{"id": "NT-1", "status": 200, "result": {
+        "sample_deviation_rate": 0.0107, "upper_deviation_limit": 0.0495,
+        "conclusion": "supports_reliance", "method": "binomial"}}]
+    text = tables.controls_text(["NT-1"], "evaluation", results)
+    assert text.splitlines()[2].split() == ["NT-1", "1.07%", "4.95%", "supports_reliance"]
+
+
+def test_a_generic_batch_table() -> None:
+    operations = [{"id": "a", "operation": "sample-size", "request": {}},
+                  {"id": "b", "operation": "new-thing", "request": {}}]
+    results = [{"id": "a", "status": 200, "result": {"sample_size": 59, "allowed_deviations": 0,
+                                                      "summary": "x"}},
+               {"id": "b", "status": 200, "result": {"score": 3, "rows": [1]}}]
+    lines = tables.batch_text(operations, results).splitlines()
+    assert lines[2].split() == ["a", "sample-size", "200", "Sample", "size", "59;", "Allowed",
+                                "deviations", "0"]
+    assert lines[3].split() == ["b", "new-thing", "200", "Score", "3"]
