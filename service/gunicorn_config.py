@@ -34,7 +34,7 @@ from pathlib import Path
 from typing import Any
 
 __all__ = [
-    "access_log_format", "accesslog", "bind", "child_exit", "errorlog", "graceful_timeout",
+    "access_log_format", "accesslog", "bind", "child_exit", "control_socket_disable", "errorlog", "graceful_timeout",
     "keepalive", "limit_request_fields", "limit_request_line", "max_requests",
     "max_requests_jitter", "on_starting", "preload_app", "threads", "timeout", "workers",
 ]
@@ -80,6 +80,9 @@ access_log_format = (
     '{"time":"%(t)s","remote":"%(h)s","method":"%(m)s","path":"%(U)s",'
     '"status":%(s)s,"bytes":%(B)s,"duration_us":%(D)s,"request_id":"%({x-request-id}o)s"}'
 )
+# gunicorn 27 would otherwise open a control socket in the home folder, shared by every
+# server of the user and impossible on the image's read-only file system.
+control_socket_disable = True
 # The app is imported once in the master, so a bad setting stops start-up before any
 # worker is forked, with the message on standard error.
 preload_app = True
