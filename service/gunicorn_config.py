@@ -34,9 +34,10 @@ from pathlib import Path
 from typing import Any
 
 __all__ = [
-    "access_log_format", "accesslog", "bind", "child_exit", "control_socket_disable", "errorlog", "graceful_timeout",
-    "keepalive", "limit_request_fields", "limit_request_line", "max_requests",
-    "max_requests_jitter", "on_starting", "preload_app", "threads", "timeout", "workers",
+    "access_log_format", "accesslog", "bind", "child_exit", "control_socket_disable",
+    "errorlog", "graceful_timeout", "keepalive", "limit_request_fields",
+    "limit_request_line", "max_requests", "max_requests_jitter", "on_starting",
+    "preload_app", "threads", "timeout", "workers",
 ]
 
 METRICS_DIR_VARIABLE = "PROMETHEUS_MULTIPROC_DIR"
