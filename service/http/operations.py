@@ -12,6 +12,7 @@ from __future__ import annotations
 
 from collections.abc import Callable, Mapping
 from dataclasses import dataclass, field
+from functools import cached_property
 from typing import Any
 
 from flask import Blueprint, Response, current_app, request
@@ -58,6 +59,16 @@ class Operation:
     # (so that an oversized list is refused without validating every element).
     precheck: Callable[[Any, Settings], None] | None = None
 
+    @cached_property
+    def request_schema(self) -> Schema:
+        """One instance per operation and process: building a schema costs more than
+        loading a body with it, and loading keeps no state in the instance."""
+        return self.request()
+
+    @cached_property
+    def response_schema(self) -> Schema:
+        return self.response()
+
     @property
     def media_types(self) -> list[str]:
         """JSON first (it wins ties), then the operation's own types, then Markdown."""
@@ -70,7 +81,7 @@ class Operation:
             return jsonio.dumps(document)
         if media_type in self.renderers:
             return self.renderers[media_type](document, result)
-        fields = tuple(self.request().fields)
+        fields = tuple(self.request_schema.fields)
         return markdown.render(self.summary, self.ticket, payload, document, fields)
 
 
@@ -137,14 +148,14 @@ def run(operation: Operation, payload: Any, settings: Settings) -> tuple[dict[st
         except SamplingError as exc:
             raise from_sampling_error(exc) from None
     try:
-        inputs = operation.request().load(payload)
+        inputs = operation.request_schema.load(payload)
     except ValidationError as exc:
         raise from_validation_error(exc) from None
     try:
         result = operation.run(inputs, settings)
     except SamplingError as exc:
         raise from_sampling_error(exc) from None
-    document: dict[str, Any] = operation.response().dump(result)
+    document: dict[str, Any] = operation.response_schema.dump(result)
     return document, result
 
 

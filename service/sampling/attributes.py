@@ -182,7 +182,7 @@ def _tail_within(tail: Callable[[Any, Any], Any], k: int, alpha: float, n: int) 
 
 def _normal_size_estimate(tolerable: float, expected: float, confidence: float) -> float:
     """Rough size from the normal approximation, used only to refuse absurd requests fast."""
-    z = float(stats.norm.ppf(confidence))
+    z = float(special.ndtri(confidence))
     return z * z * tolerable * (1.0 - tolerable) / (tolerable - expected) ** 2
 
 
@@ -340,7 +340,9 @@ def size_sample(
 
     risk_over = float(model.lower_tail(k, n, tolerable, population_size))
     risk_under = 0.0 if expected == 0 else float(model.upper_tail(k, n, expected, population_size))
-    warnings = _plan_warnings(model, n, population_size, tolerable, alpha, max_n)
+    # With no deviations expected the plan is its own zero-deviation plan.
+    zero_size = n if expected == 0 else None
+    warnings = _plan_warnings(model, n, population_size, tolerable, alpha, max_n, zero_size)
     return SampleSizePlan(
         method=model.name,
         tolerable_rate=tolerable_rate,
@@ -376,6 +378,7 @@ def _plan_warnings(
     tolerable: Fraction,
     alpha: float,
     max_n: int,
+    zero_size: int | None,
 ) -> tuple[str, ...]:
     warnings: list[str] = []
     if population_size is not None:
@@ -398,11 +401,13 @@ def _plan_warnings(
                 "The sample is more than 10% of the population; the hypergeometric method "
                 "would give a smaller sample (common practice threshold)."
             )
-    zero_plan = _plan_search(model, tolerable, Fraction(0), alpha, population_size, max_n)
-    if zero_plan is not None and n > _LARGE_PLAN_FACTOR * zero_plan[0]:
+    if zero_size is None:
+        zero_plan = _plan_search(model, tolerable, Fraction(0), alpha, population_size, max_n)
+        zero_size = None if zero_plan is None else zero_plan[0]
+    if zero_size is not None and n > _LARGE_PLAN_FACTOR * zero_size:
         warnings.append(
             f"The expected rate is close to the tolerable rate: the sample of {n:,} is more "
-            f"than {_LARGE_PLAN_FACTOR} times the zero-deviation sample of {zero_plan[0]:,}; "
+            f"than {_LARGE_PLAN_FACTOR} times the zero-deviation sample of {zero_size:,}; "
             "consider whether testing this control is efficient."
         )
     return tuple(warnings)

@@ -17,6 +17,12 @@ from service.metrics import MetricsDirectoryError
 from service.settings import Settings
 
 
+@pytest.fixture(autouse=True)
+def _single_process(monkeypatch: pytest.MonkeyPatch) -> None:
+    # These tests read the process's own values, as a single process serves them.
+    monkeypatch.delenv("PROMETHEUS_MULTIPROC_DIR", raising=False)
+
+
 def _samples(client: FlaskClient) -> dict[tuple[str, tuple[tuple[str, str], ...]], float]:
     response = client.get("/metrics")
     assert response.status_code == 200
