@@ -6,7 +6,7 @@ HOST ?= 127.0.0.1
 PORT ?= 8000
 export HOST PORT
 
-.PHONY: run test lint fuzz spec bench clean
+.PHONY: run test lint fuzz spec bench load clean
 
 # Examples per operation and generation mode for `make fuzz`.
 FUZZ_EXAMPLES ?= 500
@@ -26,7 +26,7 @@ run: $(VENV)/.installed
 lint: $(VENV)/.installed
 	$(BIN)/ruff check .
 	$(BIN)/mypy
-	$(BIN)/bandit -q -c pyproject.toml -r service schemas
+	$(BIN)/bandit -q -c pyproject.toml -r service schemas sampling_client
 
 test: lint
 	$(BIN)/python -m pytest
@@ -42,6 +42,13 @@ bench: $(VENV)/.installed
 	$(BIN)/python bench/bench_selection.py
 	$(BIN)/python bench/bench_estimation.py
 	$(BIN)/python bench/bench_hypergeometric.py
+
+# Seconds of each wrk run of `make load` (20 runs, then one during which a worker is killed).
+LOAD_SECONDS ?= 10
+
+# Not part of `make test`: drives the real server with wrk (apt-get install -y wrk).
+load: $(VENV)/.installed
+	$(BIN)/python bench/load/run_load.py --seconds $(LOAD_SECONDS)
 
 clean:
 	rm -rf $(VENV) .pytest_cache .mypy_cache .ruff_cache .hypothesis .coverage

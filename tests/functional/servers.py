@@ -43,6 +43,27 @@ class Server:
         return self.log_path.read_text(errors="replace")
 
 
+def stat_fields(pid: int) -> list[str] | None:
+    """The fields of /proc/<pid>/stat after the command name (which sits in parentheses
+    and may hold spaces): state, parent pid, ...; None once the process has gone."""
+    try:
+        text = Path(f"/proc/{pid}/stat").read_text()
+    except OSError:
+        return None
+    return text[text.rindex(")") + 2:].split()
+
+
+def worker_pids(master: int) -> set[int]:
+    """Pids of the live processes whose parent is ``master``: the gunicorn workers."""
+    children = set()
+    for entry in Path("/proc").iterdir():
+        if entry.name.isdigit():
+            fields = stat_fields(int(entry.name))
+            if fields is not None and int(fields[1]) == master and fields[0] != "Z":
+                children.add(int(entry.name))
+    return children
+
+
 def free_port() -> int:
     """A TCP port on 127.0.0.1 that was free a moment ago."""
     with socket.socket(socket.AF_INET, socket.SOCK_STREAM) as sock:
