@@ -10,16 +10,26 @@ mathematics lives in :mod:`service.sampling` and knows nothing of HTTP.
 
 from __future__ import annotations
 
-from flask import Flask
+from typing import TYPE_CHECKING
 
-from service import access, context, cors, metrics, problems
-from service.http import RESOURCES, meta
-from service.settings import Settings
+if TYPE_CHECKING:
+    from flask import Flask
+
+    from service.settings import Settings
 
 
 def create_app(settings: Settings | None = None) -> Flask:
     """Build the application; ``settings`` defaults to those read from the environment."""
+    # Imported here, not at the top: importing the package must stay free of side
+    # effects, because gunicorn loads ``service.gunicorn_config`` before the app, and that
+    # module must export PROMETHEUS_MULTIPROC_DIR before the Prometheus client is first
+    # imported (the client picks single- or multiprocess values at import).
+    from flask import Flask
+
+    from service import access, context, cors, metrics, problems
+    from service.http import RESOURCES, meta
     from service.openapi import build_yaml
+    from service.settings import Settings
 
     settings = settings or Settings.from_environ()
     app = Flask(__name__)

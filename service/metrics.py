@@ -35,6 +35,7 @@ from prometheus_client import (
     Histogram,
     disable_created_metrics,
     multiprocess,
+    values,
 )
 from prometheus_client.exposition import choose_encoder
 
@@ -94,7 +95,12 @@ class MetricsDirectoryError(SettingsError):
 
 
 def check_multiprocess_directory() -> None:
-    """Stop start-up with a clear message when the multiprocess folder is unusable."""
+    """Stop start-up with a clear message when the multiprocess folder is unusable.
+
+    The client chooses between single- and multiprocess values when it is first imported;
+    a folder named only afterwards would be read by ``/metrics`` but never written, and
+    every scrape would come back empty.
+    """
     chosen = os.environ.get(MULTIPROCESS_VARIABLE)
     if chosen is None:
         return
@@ -102,6 +108,11 @@ def check_multiprocess_directory() -> None:
     if not folder.is_dir() or not os.access(folder, os.W_OK):
         raise MetricsDirectoryError(
             f"{MULTIPROCESS_VARIABLE}={chosen[:200]!r}: must name a writable folder"
+        )
+    if values.ValueClass is values.MutexValue:
+        raise MetricsDirectoryError(
+            f"{MULTIPROCESS_VARIABLE} was set after the Prometheus client was imported; "
+            "set it before the application is imported (service.gunicorn_config does)"
         )
 
 

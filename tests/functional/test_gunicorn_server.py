@@ -11,6 +11,7 @@ from typing import Any
 import pytest
 import requests
 import yaml
+from prometheus_client.parser import text_string_to_metric_families
 from scipy import stats
 
 from service.openapi import build_yaml
@@ -178,3 +179,21 @@ def test_request_id_headers_markdown_and_batch_through_the_server(
     )
     assert [r["status"] for r in batch.json()["results"]] == [200, 422]
     assert http.get(f"{server}/v1/ready", timeout=REQUEST_SECONDS).json() == {"status": "ready"}
+
+
+def test_metrics_count_requests_with_the_default_metrics_folder(
+    server: str, http: requests.Session
+) -> None:
+    # The server was started without PROMETHEUS_MULTIPROC_DIR: the settings module makes
+    # the folder, and must do so before the Prometheus client is imported.
+    assert "PROMETHEUS_MULTIPROC_DIR" not in os.environ
+    assert _post(http, f"{server}/v1/evaluation",
+                 {"sample_size": 60, "deviations": 0}).status_code == 200
+    text = http.get(f"{server}/metrics", timeout=REQUEST_SECONDS).text
+    counted = {
+        (sample.labels["endpoint"], sample.labels["status"]): sample.value
+        for family in text_string_to_metric_families(text)
+        for sample in family.samples
+        if sample.name == "sampling_http_requests_total"
+    }
+    assert counted.get(("/v1/evaluation", "200"), 0) >= 1

@@ -113,6 +113,19 @@ def test_every_gunicorn_setting_is_read_from_its_variable(tmp_path: Path) -> Non
     assert values["preload_app"] is True
 
 
+def test_loading_the_settings_imports_neither_flask_nor_the_metrics_client(
+    tmp_path: Path,
+) -> None:
+    # The settings export PROMETHEUS_MULTIPROC_DIR; the Prometheus client reads it once,
+    # when first imported, so nothing may import it before (the package's __init__ too).
+    probe = ("import sys, service.gunicorn_config; "
+             "print(sorted({'flask', 'prometheus_client'} & set(sys.modules)))")
+    result = subprocess.run([sys.executable, "-c", probe], cwd=ROOT, capture_output=True,
+                            text=True, env=child_environment(tmp_path), timeout=CHILD_SECONDS)
+    assert result.returncode == 0, result.stderr
+    assert result.stdout.strip() == "[]"
+
+
 def test_gunicorn_defaults(tmp_path: Path) -> None:
     values = loaded_settings(child_environment(tmp_path))
     assert values["bind"] == "127.0.0.1:8000"

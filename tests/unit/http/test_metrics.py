@@ -97,6 +97,16 @@ def test_no_body_or_item_reaches_the_metrics(client: FlaskClient) -> None:
     assert "SECRET" not in client.get("/metrics").get_data(as_text=True)
 
 
+def test_a_folder_named_after_the_client_was_imported_stops_start_up(
+    tmp_path: Path, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    # This process imported the client without the variable, so its values are single
+    # process: a scrape would read the (empty) folder and report nothing.
+    monkeypatch.setenv("PROMETHEUS_MULTIPROC_DIR", str(tmp_path))
+    with pytest.raises(MetricsDirectoryError, match="set after the Prometheus client"):
+        create_app(Settings())
+
+
 @pytest.mark.parametrize("make", ["missing", "file"])
 def test_an_unusable_multiprocess_folder_stops_start_up(
     tmp_path: Path, monkeypatch: pytest.MonkeyPatch, make: str
