@@ -28,10 +28,13 @@ from __future__ import annotations
 
 import multiprocessing
 import os
-import re
 import tempfile
 from pathlib import Path
 from typing import Any
+
+# The settings module needs only the standard library, so this import does not load the
+# Prometheus client before _metrics_dir has exported its folder.
+from service.settings import whole_number
 
 __all__ = [
     "access_log_format", "accesslog", "bind", "child_exit", "control_socket_disable",
@@ -41,16 +44,16 @@ __all__ = [
 ]
 
 METRICS_DIR_VARIABLE = "PROMETHEUS_MULTIPROC_DIR"
-_WHOLE = re.compile(r"[0-9]{1,9}")
 
 
 def _int(name: str, default: int) -> int:
     raw = os.environ.get(name)
     if raw is None:
         return default
-    if not _WHOLE.fullmatch(raw.strip()) or int(raw) < 1:
-        raise SystemExit(f"{name}={raw[:40]!r}: must be a positive whole number")
-    return int(raw)
+    try:
+        return whole_number(raw)
+    except ValueError as exc:
+        raise SystemExit(f"{name}={exc}") from None
 
 
 def _metrics_dir() -> str:

@@ -66,9 +66,8 @@ def instruments() -> Instruments:
 
     Not at import: in multiprocess mode making a gauge opens its file, and a bad
     PROMETHEUS_MULTIPROC_DIR must first get the clear message of
-    :func:`check_multiprocess_directory`.
+    :func:`check_multiprocess_directory`, which :func:`register` runs before this.
     """
-    check_multiprocess_directory()
     return Instruments(
         requests=Counter(
             "sampling_http_requests", "HTTP requests answered.", ["endpoint", "method", "status"]

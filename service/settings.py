@@ -57,7 +57,8 @@ class SettingsError(ValueError):
     """A setting in the environment is invalid."""
 
 
-def _whole_number(raw: str) -> int:
+def whole_number(raw: str) -> int:
+    """A positive whole number written in ASCII digits, underscores allowed between them."""
     if not _WHOLE_NUMBER.fullmatch(raw.strip()):
         raise ValueError(
             f"{raw[:40]!r}: must be a positive whole number of at most {_MAX_DIGITS} digits "
@@ -121,13 +122,13 @@ def _origins(raw: str) -> tuple[str, ...]:
 
 @dataclass(frozen=True)
 class Settings:
-    max_body_bytes: int = field(default=1_048_576, metadata={"parse": _whole_number})
-    max_sample_size: int = field(default=10_000_000, metadata={"parse": _whole_number})
-    max_items: int = field(default=1_000_000, metadata={"parse": _whole_number})
+    max_body_bytes: int = field(default=1_048_576, metadata={"parse": whole_number})
+    max_sample_size: int = field(default=10_000_000, metadata={"parse": whole_number})
+    max_items: int = field(default=1_000_000, metadata={"parse": whole_number})
     # A million identifiers of a dozen characters are about 16 MB of JSON.
-    max_list_body_bytes: int = field(default=67_108_864, metadata={"parse": _whole_number})
-    max_batch_operations: int = field(default=1_000, metadata={"parse": _whole_number})
-    max_batch_work: int = field(default=1_000_000, metadata={"parse": _whole_number})
+    max_list_body_bytes: int = field(default=67_108_864, metadata={"parse": whole_number})
+    max_batch_operations: int = field(default=1_000, metadata={"parse": whole_number})
+    max_batch_work: int = field(default=1_000_000, metadata={"parse": whole_number})
     api_keys: frozenset[bytes] = field(default=frozenset(), metadata={"parse": _key_list})
     api_keys_file: frozenset[bytes] = field(default=frozenset(), metadata={"parse": _key_file})
     cors_origins: tuple[str, ...] = field(default=(), metadata={"parse": _origins})
