@@ -17,6 +17,7 @@ from contextlib import contextmanager
 from dataclasses import dataclass
 from pathlib import Path
 
+import pytest
 import requests
 
 ROOT = Path(__file__).resolve().parents[2]
@@ -112,7 +113,8 @@ def running_server(
 ) -> Iterator[Server]:
     """gunicorn with the production config on a free port; ``env`` adds or overrides variables.
 
-    The server's own output (access and service logs) goes to ``log_dir/server.log``.
+    The server's own output (access and service logs) goes to ``log_dir/server-PORT.log``.
+    A server that exits or does not answer in time fails the test, with the end of its log.
     """
     port = free_port()
     full_env = {**os.environ, "HOST": HOST, "PORT": str(port),
@@ -124,7 +126,10 @@ def running_server(
         )
         server = Server(url=f"http://{HOST}:{port}", process=process, log_path=log_path)
         try:
-            wait_until_healthy(server)
+            try:
+                wait_until_healthy(server)
+            except ServerFailed as failure:
+                pytest.fail(str(failure))
             yield server
         finally:
             stop(process)

@@ -17,7 +17,7 @@ import requests
 
 from service.sampling.attributes import size_sample
 from service.sampling.wording import CAUTION
-from tests.functional.servers import ROOT, START_SECONDS, ServerFailed, free_port, running_server
+from tests.functional.servers import ROOT, START_SECONDS, free_port, running_server
 
 pytestmark = pytest.mark.functional
 
@@ -29,11 +29,8 @@ RUN_SECONDS = 60.0  # only keeps a hung run from hanging the suite
 @pytest.fixture(scope="module")
 def url(tmp_path_factory: pytest.TempPathFactory) -> Iterator[str]:
     assert CLI.exists(), f"{CLI} is missing: install the package (pip install -e .)"
-    try:
-        with running_server(tmp_path_factory.mktemp("cli")) as server:
-            yield server.url
-    except ServerFailed as failure:
-        pytest.fail(str(failure))
+    with running_server(tmp_path_factory.mktemp("cli")) as server:
+        yield server.url
 
 
 def commands(down_url: str) -> dict[str, list[str]]:

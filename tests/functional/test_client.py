@@ -18,7 +18,7 @@ from sampling_client import (
     api,
 )
 from service.sampling.wording import CAUTION
-from tests.functional.servers import ServerFailed, free_port, running_server
+from tests.functional.servers import free_port, running_server
 
 pytestmark = pytest.mark.functional
 
@@ -27,25 +27,19 @@ KEY = secrets.token_urlsafe(32)
 
 @pytest.fixture(scope="module")
 def client(tmp_path_factory: pytest.TempPathFactory) -> Iterator[SamplingClient]:
-    try:
-        with running_server(tmp_path_factory.mktemp("client")) as server, SamplingClient(
-            server.url
-        ) as client:
-            yield client
-    except ServerFailed as failure:
-        pytest.fail(str(failure))
+    with running_server(tmp_path_factory.mktemp("client")) as server, SamplingClient(
+        server.url
+    ) as client:
+        yield client
 
 
 @pytest.fixture(scope="module")
 def keyed_url(tmp_path_factory: pytest.TempPathFactory) -> Iterator[str]:
     """A server that accepts only KEY, configured by the digest of the key."""
     digest = "sha256:" + hashlib.sha256(KEY.encode("utf-8")).hexdigest()
-    try:
-        with running_server(tmp_path_factory.mktemp("keyed"), env={"SAMPLING_API_KEYS": digest},
-                            workers=1) as server:
-            yield server.url
-    except ServerFailed as failure:
-        pytest.fail(str(failure))
+    with running_server(tmp_path_factory.mktemp("keyed"), env={"SAMPLING_API_KEYS": digest},
+                        workers=1) as server:
+        yield server.url
 
 
 def test_published_sample_sizes(client: SamplingClient) -> None:

@@ -20,7 +20,6 @@ from tests.functional.servers import (
     HOST,
     ROOT,
     START_SECONDS,
-    ServerFailed,
     free_port,
     gunicorn_command,
     running_server,
@@ -35,11 +34,8 @@ REQUEST_SECONDS = 10.0
 def server(tmp_path_factory: pytest.TempPathFactory) -> Iterator[str]:
     """The real gunicorn with two workers; its base URL."""
     assert GUNICORN.exists(), f"gunicorn not found beside {sys.executable}"
-    try:
-        with running_server(tmp_path_factory.mktemp("gunicorn")) as running:
-            yield running.url
-    except ServerFailed as failure:
-        pytest.fail(str(failure))
+    with running_server(tmp_path_factory.mktemp("gunicorn")) as running:
+        yield running.url
 
 
 @pytest.fixture

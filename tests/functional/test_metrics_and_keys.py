@@ -12,7 +12,7 @@ import pytest
 import requests
 from prometheus_client.parser import text_string_to_metric_families
 
-from tests.functional.servers import Server, ServerFailed, running_server
+from tests.functional.servers import Server, running_server
 
 pytestmark = pytest.mark.functional
 
@@ -24,12 +24,9 @@ SIZING_REQUESTS = 60
 @pytest.fixture(scope="module")
 def metrics_server(tmp_path_factory: pytest.TempPathFactory) -> Iterator[tuple[Server, Path]]:
     folder = tmp_path_factory.mktemp("metrics")
-    try:
-        with running_server(tmp_path_factory.mktemp("log"),
-                            env={"PROMETHEUS_MULTIPROC_DIR": str(folder)}) as server:
-            yield server, folder
-    except ServerFailed as failure:
-        pytest.fail(str(failure))
+    with running_server(tmp_path_factory.mktemp("log"),
+                        env={"PROMETHEUS_MULTIPROC_DIR": str(folder)}) as server:
+        yield server, folder
 
 
 def _sizing_count(url: str) -> float:
@@ -67,12 +64,9 @@ def test_every_scrape_counts_the_requests_of_both_workers(
 @pytest.fixture(scope="module")
 def locked_server(tmp_path_factory: pytest.TempPathFactory) -> Iterator[Server]:
     digest = "sha256:" + hashlib.sha256(KEY.encode()).hexdigest()
-    try:
-        with running_server(tmp_path_factory.mktemp("locked"),
-                            env={"SAMPLING_API_KEYS": digest}) as server:
-            yield server
-    except ServerFailed as failure:
-        pytest.fail(str(failure))
+    with running_server(tmp_path_factory.mktemp("locked"),
+                        env={"SAMPLING_API_KEYS": digest}) as server:
+        yield server
 
 
 def test_a_real_server_with_keys_refuses_without_one(locked_server: Server) -> None:
