@@ -130,82 +130,49 @@ def build_spec() -> APISpec:
             },
         )
 
-    spec.path(
-        path="/v1/health",
-        operations={
-            "get": {
-                "operationId": "health",
-                "summary": "Liveness and version",
-                "tags": ["service"],
-                "responses": {
-                    "200": {
-                        "description": "The service is up.",
-                        "content": {"application/json": {"schema": "Health"}},
-                    }
-                },
-            }
-        },
-    )
-    spec.path(
-        path="/v1/ready",
-        operations={
-            "get": {
-                "operationId": "ready",
-                "summary": "Readiness",
-                "description": "200 once the application is built and can answer requests.",
-                "tags": ["service"],
-                "responses": {
-                    "200": {
-                        "description": "The service is ready.",
-                        "content": {"application/json": {"schema": "Ready"}},
-                    },
-                    "503": {
-                        "description": "The service is starting.",
-                        "content": {"application/json": {"schema": "Ready"}},
-                    },
-                },
-            }
-        },
-    )
-    spec.path(
-        path="/metrics",
-        operations={
-            "get": {
-                "operationId": "metrics",
-                "summary": "Prometheus metrics",
-                "description": METRICS_DESCRIPTION,
-                "tags": ["service"],
-                "security": _SECURITY,
-                "responses": {
-                    "200": {
-                        "description": "The metrics, summed over every worker process.",
-                        "content": {
-                            "text/plain": {"schema": {"type": "string"}},
-                            "application/openmetrics-text": {"schema": {"type": "string"}},
-                        },
-                    },
-                    "401": _problem_response(UNAUTHORIZED_DESCRIPTION, "401"),
-                },
-            }
-        },
-    )
-    spec.path(
-        path="/openapi.yaml",
-        operations={
-            "get": {
-                "operationId": "openapi",
-                "summary": "This document",
-                "tags": ["service"],
-                "responses": {
-                    "200": {
-                        "description": "The OpenAPI 3.1 document.",
-                        "content": {"application/yaml": {"schema": {"type": "string"}}},
-                    }
-                },
-            }
-        },
-    )
+    _service_get(spec, "/v1/health", "health", "Liveness and version", {
+        "200": _answer("The service is up.", "application/json", "Health"),
+    })
+    _service_get(spec, "/v1/ready", "ready", "Readiness", {
+        "200": _answer("The service is ready.", "application/json", "Ready"),
+        "503": _answer("The service is starting.", "application/json", "Ready"),
+    }, description="200 once the application is built and can answer requests.")
+    metrics = _answer("The metrics, summed over every worker process.", "text/plain")
+    metrics["content"]["application/openmetrics-text"] = {"schema": {"type": "string"}}
+    _service_get(spec, "/metrics", "metrics", "Prometheus metrics", {
+        "200": metrics,
+        "401": _problem_response(UNAUTHORIZED_DESCRIPTION, "401"),
+    }, description=METRICS_DESCRIPTION, security=_SECURITY)
+    _service_get(spec, "/openapi.yaml", "openapi", "This document", {
+        "200": _answer("The OpenAPI 3.1 document.", "application/yaml"),
+    })
     return spec
+
+
+def _answer(description: str, media_type: str, schema: str | None = None) -> dict[str, Any]:
+    """A response of one media type: a named component schema, or plain text."""
+    body: Any = schema if schema is not None else {"type": "string"}
+    return {"description": description, "content": {media_type: {"schema": body}}}
+
+
+def _service_get(
+    spec: APISpec,
+    path: str,
+    operation_id: str,
+    summary: str,
+    responses: dict[str, Any],
+    description: str | None = None,
+    security: list[dict[str, list[str]]] | None = None,
+) -> None:
+    """One ``GET`` endpoint of the service itself (health, readiness, metrics, spec)."""
+    operation: dict[str, Any] = {"operationId": operation_id, "summary": summary}
+    if description is not None:
+        operation["description"] = description
+    operation["tags"] = ["service"]
+    if security is not None:
+        operation["security"] = security
+    operation["responses"] = responses
+    spec.path(path=path, operations={"get": operation})
 
 
 def _schema_name(schema: Any) -> str:
