@@ -136,7 +136,7 @@ def _output_options(parser: argparse.ArgumentParser, operation: Any, single: boo
 
 
 def _add_operation(subparsers: Any, operation: Any, common: argparse.ArgumentParser) -> None:
-    schema = operation.request()
+    schema = operation.request_schema
     specs = flags.field_specs(schema)
     single = operation.name != "batch"
     parser = subparsers.add_parser(
