@@ -19,7 +19,7 @@ WIDTH = 100
 
 def caution() -> str:
     """The service's caution sentence (service.sampling.wording.CAUTION)."""
-    # Imported when needed: the service package loads the computation core (scipy), which
+    # Imported when needed: the wording module loads the computation core (scipy), which
     # the commands that only ask a server for its health, or start one, do without.
     from service.sampling.wording import CAUTION
 
