@@ -39,6 +39,8 @@ _NOT_SHOWN = frozenset({"summary", "warnings", "links", "curve_request"})
 _LABELS = {
     "interval.low": "Interval, lower bound",
     "interval.high": "Interval, upper bound",
+    "confidence_interval.low": "Confidence interval, lower bound",
+    "confidence_interval.high": "Confidence interval, upper bound",
     "upper_deviation_count": "Upper deviation count",
     "ratio_to_exact": "Ratio to exact",
     "finite_population_correction": "Finite population correction",

@@ -16,7 +16,12 @@ from schemas.common import IntervalSchema, PopulationSchema, ResultSchema, Stric
 from schemas.fields import Rate, StrictFloat, StrictInteger, StrictString
 from service.sampling.attributes import MAX_CONFIDENCE, MIN_CONFIDENCE, MIN_TOLERABLE_RATE
 from service.sampling.distributions import MODELS
-from service.sampling.wording import evaluation_summary, plan_summary
+from service.sampling.wording import (
+    NEXT_STEPS,
+    comparison_with_plan,
+    evaluation_summary,
+    plan_summary,
+)
 
 METHOD_NAMES = sorted(MODELS)
 
@@ -100,7 +105,7 @@ class SampleSizePlanSchema(ResultSchema):
     underreliance are this plan's. Send it with ``Accept: image/svg+xml`` for the chart.
     """
 
-    absent_when_none = ("population_label",)
+    absent_when_none = ("population_label", "tolerable_deviant_items")
 
     sample_size = fields.Integer(required=True, metadata={"description": "Items to test."})
     allowed_deviations = fields.Integer(
@@ -131,6 +136,19 @@ class SampleSizePlanSchema(ResultSchema):
     )
     population_size = fields.Integer(required=True, allow_none=True)
     population_label = fields.String()
+    whole_population = fields.Boolean(
+        required=True,
+        metadata={
+            "description": "True when the plan tests every item of the population: the "
+            "result will carry no sampling risk."
+        },
+    )
+    tolerable_deviant_items = fields.Integer(
+        metadata={
+            "description": "ceil(tolerable_rate × population.size): the deviant items the "
+            "population holds at the tolerable rate. Present when population.size is given."
+        }
+    )
     summary = fields.Function(
         plan_summary,
         required=True,
@@ -196,12 +214,27 @@ class EvaluationRequest(StrictSchema):
             "example": 0.05,
         },
     )
+    expected_rate = Rate(
+        allow_zero=True,
+        metadata={
+            "description": "The plan's expected population deviation rate, as a fraction "
+            "(optional): the answer then compares the deviations found with the "
+            "ceil(expected_rate × sample_size) the plan allowed. The same body can so be sent "
+            "to /v1/sample-size and, with sample_size and deviations added, here.",
+            "example": 0.01,
+        },
+    )
     method = StrictString(**_METHOD)
 
     @validates_schema
     def _consistent(self, data: dict[str, Any], **kwargs: Any) -> None:
         n, d = data.get("sample_size"), data.get("deviations")
         errors: dict[str, list[str]] = {}
+        tolerable, expected = data.get("tolerable_rate"), data.get("expected_rate")
+        if tolerable is not None and expected is not None and expected >= tolerable:
+            errors["expected_rate"] = [
+                f"expected_rate {expected!r} must be below tolerable_rate {tolerable!r}"
+            ]
         if n is not None and d is not None and d > n:
             errors["deviations"] = [f"deviations {d} must not exceed sample_size {n}"]
         size = (data.get("population") or {}).get("size")
@@ -224,6 +257,10 @@ class EvaluationSchema(ResultSchema):
         "upper_deviation_count",
         "risk_at_tolerable_rate",
         "conclusion",
+        "expected_rate",
+        "planned_allowed_deviations",
+        "comparison_with_plan",
+        "tolerable_deviant_items",
     )
 
     method = fields.String(required=True)
@@ -244,16 +281,58 @@ class EvaluationSchema(ResultSchema):
     allowance_for_sampling_risk = fields.Float(
         required=True, metadata={"description": "upper_deviation_limit − sample_deviation_rate."}
     )
-    interval = fields.Nested(
+    confidence_interval = fields.Nested(
         IntervalSchema,
         required=True,
-        metadata={"description": "Two-sided exact interval at the same confidence."},
+        attribute="interval",
+        metadata={"description": "Two-sided exact confidence interval at the same confidence."},
     )
     risk_at_tolerable_rate = fields.Float(
         metadata={
             "description": "Probability of this many deviations or fewer if the true rate were "
             "the tolerable rate; reliance is supported when it is at most 1 − confidence."
         }
+    )
+    expected_rate = fields.Float(
+        metadata={"description": "The plan's expected rate, when the request gave it."}
+    )
+    planned_allowed_deviations = fields.Integer(
+        metadata={
+            "description": "ceil(expected_rate × sample_size): the deviations the plan allowed "
+            "for this sample size. Present when expected_rate is given."
+        }
+    )
+    comparison_with_plan = fields.Function(
+        comparison_with_plan,
+        metadata={
+            "type": "string",
+            "description": "The deviations found against those the plan allowed, in words.",
+            "example": "Planned to allow 1 deviation; found 2.",
+        },
+    )
+    whole_population = fields.Boolean(
+        required=True,
+        metadata={
+            "description": "True when every item of the population was tested (sample_size "
+            "equals population.size): there is no sampling risk, and the limits and interval "
+            "are the population's exact deviation rate."
+        },
+    )
+    tolerable_deviant_items = fields.Integer(
+        metadata={
+            "description": "ceil(tolerable_rate × population.size): the deviant items the "
+            "population holds at the tolerable rate. Present when both are given."
+        }
+    )
+    next_steps = fields.Function(
+        lambda result: list(NEXT_STEPS) if result.supports_reliance is False else [],
+        required=True,
+        metadata={
+            "type": "array",
+            "items": {"type": "string"},
+            "description": "When the sample does not support reliance: what the standards "
+            "expect next (ISA 530 ¶12-13, AU-C 530), in plain words; empty otherwise.",
+        },
     )
     conclusion = fields.Function(
         lambda result: (

@@ -8,7 +8,9 @@ what was wrong otherwise.
 
 from __future__ import annotations
 
+import json
 import math
+from decimal import Decimal
 from typing import Any
 
 from marshmallow import fields
@@ -43,6 +45,31 @@ class StrictFloat(fields.Float):
         return result
 
 
+def _string_rate_message(value: str) -> str:
+    """Why a string is refused as a rate, with the number to send when it reads as one.
+
+    >>> print(_string_rate_message("5%").split("; ")[1])
+    "5%" looks like a percentage: rates are fractions, so send 0.05
+    """
+    message = "must be a number, not a string"
+    text = value.strip()
+    number_text = text.removesuffix("%").strip()
+    try:
+        number = Decimal(number_text)
+    except ArithmeticError:
+        return message
+    if not number.is_finite():
+        return message
+    shown = json.dumps(value[:40], ensure_ascii=False)
+    if text.endswith("%") or 1 <= number <= 100:
+        fraction = number / 100
+        return (
+            f"{message}; {shown} looks like a percentage: rates are fractions, so send "
+            f"{fraction.normalize():f}"
+        )
+    return f"{message}; send {shown} as the JSON number {number.normalize():f}"
+
+
 class Rate(StrictFloat):
     """A rate as a fraction strictly between 0 and 1, with a hint when it looks like a percentage.
 
@@ -59,6 +86,8 @@ class Rate(StrictFloat):
         super().__init__(metadata=metadata, **kwargs)
 
     def _deserialize(self, value: Any, attr: str | None, data: Any, **kwargs: Any) -> float:
+        if isinstance(value, str):
+            raise self.make_error("validator_failed", message=_string_rate_message(value))
         result = super()._deserialize(value, attr, data, **kwargs)
         low_ok = result >= 0 if self.allow_zero else result > 0
         if low_ok and result < 1:

@@ -365,10 +365,11 @@ def selection_summary(result: SelectionResult) -> str:
     else:
         text += (
             " by simple random sampling without replacement (partial Fisher–Yates shuffle). "
-            "Items are listed in the order drawn; the first "
-            f"{n:,} items of a larger selection with the same population and seed are these "
-            "same items, so the sample can be extended, or unusable items replaced, in draw "
-            "order."
+            "Items are listed in the order drawn; "
+            + ("the first item" if n == 1 else f"the first {n:,} items")
+            + " of a larger selection with the same population and seed "
+            + ("is this same item" if n == 1 else "are these same items")
+            + ", so the sample can be extended, or unusable items replaced, in draw order."
         )
     text += (
         f" Seed {json.dumps(chosen.seed, ensure_ascii=False)} ({origin}), algorithm "
@@ -411,7 +412,7 @@ _ITEM = {"oneOf": [{"type": "integer"}, {"type": "string"}]}
 class SelectionSchema(ResultSchema):
     """A reproducible selection of sample items."""
 
-    absent_when_none = ("interval", "interval_exact", "start", "start_exact")
+    absent_when_none = ("sampling_interval", "sampling_interval_exact", "start", "start_exact")
 
     items = fields.Function(
         lambda result: list(result.selection.items),
@@ -450,7 +451,9 @@ class SelectionSchema(ResultSchema):
         required=True,
         attribute="selection.algorithm",
         metadata={
-            "description": "Selection algorithm and version; fixed for each version.",
+            "description": "Selection algorithm and version, one per method "
+            "(sha256-counter-fisher-yates/v1 for random, hmac-sha256-systematic/v1 for "
+            "systematic); fixed for each version.",
             "example": ALGORITHM_ID,
         },
     )
@@ -467,20 +470,22 @@ class SelectionSchema(ResultSchema):
             "sample size and algorithm version."
         },
     )
-    interval = fields.Float(
+    sampling_interval = fields.Float(
         attribute="selection.interval",
         metadata={"description": "Systematic only: population size / sample size."},
     )
-    interval_exact = fields.String(
+    sampling_interval_exact = fields.String(
         attribute="selection.interval_exact",
         metadata={
-            "description": "Systematic only: the interval exactly, as N/n.",
+            "description": "Systematic only: the sampling interval exactly, as N/n.",
             "example": "4201/60",
         },
     )
     start = fields.Float(
         attribute="selection.start",
-        metadata={"description": "Systematic only: the random start, 0 ≤ start < interval."},
+        metadata={
+            "description": "Systematic only: the random start, 0 ≤ start < sampling_interval."
+        },
     )
     start_exact = fields.String(
         attribute="selection.start_exact",

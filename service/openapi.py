@@ -60,9 +60,12 @@ METRICS_DESCRIPTION = (
 )
 
 MARKDOWN_DESCRIPTION = (
-    "A short block for a ticket or workpaper: heading, inputs, answer, method and its "
-    "reference, warnings, service version, request fingerprint (SHA-256 of the canonical "
-    'JSON of the request: keys sorted, separators "," and ":", UTF-8) and the caution.'
+    "A complete block for a ticket or workpaper: heading, summary sentence, inputs as "
+    "written (lists in full), answer with rates as rounded percentages and conclusions in "
+    "words, the selected items (selections), method and its reference, every warning, next "
+    "steps, service version, request fingerprint (SHA-256 of the canonical JSON of the "
+    'request: keys sorted, separators "," and ":", UTF-8) and the caution last. A batch '
+    "answers one overview table, then one such block per operation."
 )
 
 

@@ -73,7 +73,7 @@ OPERATIONS = [
                 "sample_deviation_rate",
                 "upper_deviation_limit",
                 "allowance_for_sampling_risk",
-                "interval",
+                "confidence_interval",
                 "risk_at_tolerable_rate",
                 "conclusion",
             ),

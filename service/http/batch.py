@@ -16,10 +16,12 @@ from collections.abc import Mapping
 from typing import Any
 
 from schemas.batch import BatchRequest, BatchSchema
+from service.http import markdown
 from service.http.markdown import TicketLayout
 from service.http.operations import Operation, blueprint, execute
 from service.problems import Problem, invalid_input
 from service.sampling.errors import ComputationTooLarge
+from service.sampling.wording import CAUTION
 from service.settings import Settings
 
 NAME = "batch"
@@ -126,8 +128,76 @@ def _run(inputs: dict[str, Any], settings: Settings) -> dict[str, Any]:
     _check_work(items, settings)
     operations = single_operations()
     return {
-        "results": [_answer(i, item, operations, settings) for i, item in enumerate(items)]
+        "results": [_answer(i, item, operations, settings) for i, item in enumerate(items)],
+        # Not part of the JSON answer: the Markdown answer shows each item's inputs.
+        "items": items,
     }
+
+
+def _headline(operation: Operation, result: Mapping[str, Any]) -> str:
+    """The first answers of an item's block, in one cell: "sample size 59; ..."."""
+    names = [n for n in operation.ticket.answer[:3] if n in result]
+    if "conclusion" in result and "conclusion" not in names:
+        names.append("conclusion")
+    parts = []
+    for name in names:
+        value = result[name]
+        if isinstance(value, list):
+            continue
+        shown = (
+            markdown.number(name, value)
+            if isinstance(value, float)
+            else markdown.CODE_WORDS.get(str(value), str(value))
+        )
+        parts.append(f"{name.replace('_', ' ')} {shown}")
+    return markdown.escape("; ".join(parts), limit=None)
+
+
+def render_markdown(document: dict[str, Any], result: Any) -> str:
+    """One overview table, then one complete block per operation, in order."""
+    operations = single_operations()
+    lines = [
+        "## Answer several requests in one call",
+        "",
+        f"{len(document['results']):,} operations, answered each on its own, in order.",
+        "",
+        "| # | id | operation | status | answer |",
+        "|---|---|---|---|---|",
+    ]
+    blocks: list[str] = []
+    for index, (answer, item) in enumerate(
+        zip(document["results"], result["items"], strict=True), start=1
+    ):
+        name = item.get("operation")
+        operation = operations.get(name) if isinstance(name, str) else None
+        if answer["status"] == 200 and operation is not None:
+            headline = _headline(operation, answer["result"])
+            request_fields = tuple(operation.request_schema.fields)
+            block = markdown.render(
+                operation.summary, operation.ticket, item["request"], answer["result"],
+                request_fields, caution=False,
+            )
+        else:
+            problem = answer["problem"]
+            headline = markdown.escape(f"refused: {problem.get('detail', '')}")
+            block = _problem_block(problem)
+        label = markdown.escape(str(answer["id"]))
+        shown_name = markdown.escape(str(name))
+        lines.append(f"| {index} | {label} | {shown_name} | {answer['status']} | {headline} |")
+        blocks += ["", "---", "", f"**{index}. {label}**", "", block.rstrip()]
+    lines += blocks
+    lines += ["", f"> {CAUTION}", ""]
+    return "\n".join(lines)
+
+
+def _problem_block(problem: Mapping[str, Any]) -> str:
+    lines = [f"### {markdown.escape(str(problem.get('title', 'Refused')))}", ""]
+    if not problem.get("errors"):
+        lines.append(markdown.escape(str(problem.get("detail", "")), limit=None))
+    for field, messages in (problem.get("errors") or {}).items():
+        for message in messages if isinstance(messages, list) else [messages]:
+            lines.append(f"- {markdown.escape(field)}: {markdown.escape(str(message))}")
+    return "\n".join(lines)
 
 
 OPERATIONS = [
@@ -156,6 +226,7 @@ OPERATIONS = [
         run=_run,
         precheck=_count_operations,
         tag="batch",
+        renderers={markdown.MARKDOWN: render_markdown},
         ticket=TicketLayout(
             answer=("results",),
             method=lambda document: "each operation answered on its own, as by its endpoint",

@@ -1,18 +1,27 @@
-"""Ticket-ready text: any operation's answer as a short Markdown block.
+"""Ticket-ready text: any operation's answer as a complete Markdown workpaper block.
 
 Every operation answers ``Accept: text/markdown`` with the same layout, built from the
-validated request and the response document, so a new endpoint gets it without code of
-its own:
+validated request and the response document, so that a reviewer reading the block alone
+can tell the population, the items, the findings, their meaning and every warning:
 
-- a heading (the operation's summary);
+- a heading (the operation's summary), then the answer's summary sentence (without its
+  caution, which closes the block);
 - **Inputs**: the scalar fields of the request as sent, nested ones by dotted path
-  (``population.size``), then the defaults the service applied; a list of more than
-  ``MAX_TABLE_ROWS`` values is shown by its length;
-- **Answer**: the fields named by the operation's :class:`TicketLayout` (by default every
-  scalar field of the document that is not an input); a list of objects becomes a table;
+  (``population.size``), rates also as percentages, then the defaults the service applied;
+  lists follow the table in full (identifiers, ranges and exclusions), up to
+  ``MAX_LISTED_VALUES`` values, beyond which their count is given;
+- **Answer**: the fields named by the operation's :class:`TicketLayout`, rates and
+  probabilities as percentages (see :func:`number`), coded conclusions in words; a list of
+  objects becomes a table;
+- **Selected items** for a selection: draw order, item and position, every item up to
+  ``MAX_TABLE_ROWS``; beyond that the count and a pointer to the CSV answer;
 - **Method**: the method and its reference, when the layout says how to find them;
-- any warnings, the service version and the request fingerprint;
-- the caution sentence.
+- **Warnings**, every one; **Next steps** when the answer lists them;
+- the service version and the request fingerprint, and the caution last.
+
+Percentages are rounded for reading, to two decimals (``8.1%``) or, below 1%, to two
+significant digits (``0.012%``); the JSON answer keeps full precision. Other decimals are
+shown to six significant digits.
 
 The request fingerprint is the SHA-256 of the canonical JSON of the validated request:
 ``json.dumps(payload, sort_keys=True, separators=(",", ":"), ensure_ascii=False)`` encoded
@@ -31,17 +40,32 @@ from collections.abc import Callable, Mapping
 from dataclasses import dataclass
 from typing import Any
 
-from service.sampling.wording import CAUTION
+from service.sampling.wording import CAUTION, percent
 from service.version import VERSION
 
 MARKDOWN = "text/markdown"
 
-# Rows of a table of objects shown before "… and N more rows".
-MAX_TABLE_ROWS = 25
+# Rows of a table shown before "… and N more rows".
+MAX_TABLE_ROWS = 500
+# Values of one input list shown before only its count is given.
+MAX_LISTED_VALUES = 1_000
+# Fields (by their last name) that hold rates or probabilities: shown as percentages.
+RATE_FIELDS = frozenset({
+    "confidence", "tolerable_rate", "expected_rate", "achieved_confidence",
+    "risk_of_overreliance", "risk_of_underreliance", "sample_deviation_rate",
+    "upper_deviation_limit", "allowance_for_sampling_risk", "risk_at_tolerable_rate",
+    "low", "high", "margin", "anticipated_rate", "miss_probability", "rate",
+    "probability", "achieved_miss_probability",
+})
+# Coded values shown in words.
+CODE_WORDS = {
+    "supports_reliance": "supports reliance on the control as tested",
+    "does_not_support_reliance": "does not support reliance on the control as tested",
+}
 # Characters of one value shown before it is cut with an ellipsis.
 MAX_VALUE_CHARS = 200
 # Document fields that are never part of the answer table.
-_NOT_ANSWERS = frozenset({"summary", "warnings", "links", "curve_request"})
+_NOT_ANSWERS = frozenset({"summary", "warnings", "links", "curve_request", "next_steps"})
 # Backslash-escaped: emphasis, code, links and images, HTML, tables, strike-through, and
 # the "." and ":" of web addresses (which some renderers turn into links on their own).
 _MARKDOWN_SPECIAL = re.compile(r"([\\`*_\[\]<>#|~&$.:])")
@@ -59,6 +83,9 @@ class TicketLayout:
 
     answer: tuple[str, ...] = ()
     method: Callable[[Mapping[str, Any]], str] | None = None
+    # Parallel lists of the document listed as one table, in order (e.g. a selection's
+    # items and positions), under "Selected items"; the CSV answer holds them all.
+    listed: tuple[str, ...] = ()
 
 
 def request_fingerprint(payload: Any) -> str:
@@ -87,22 +114,48 @@ def escape(text: str, limit: int | None = MAX_VALUE_CHARS) -> str:
     return _MARKDOWN_SPECIAL.sub(r"\\\1", one_line)
 
 
-def _value(value: Any) -> str:
+def number(name: str, value: float) -> str:
+    """A number for reading: a rate field as a percentage, other decimals to 6 digits.
+
+    >>> number("upper_deviation_limit", 0.08100961538461539), number("interval", 70.01666)
+    ('8.1%', '70.0167')
+    """
+    if name.rsplit(".", 1)[-1] in RATE_FIELDS and 0.0 <= value <= 1.0:
+        return percent(value)
+    if float(value).is_integer():
+        return repr(value)
+    return f"{value:.6g}"
+
+
+def _value(value: Any, name: str = "") -> str:
     if value is None:
         return "none"
     if isinstance(value, bool):
         return "yes" if value else "no"
-    if isinstance(value, int | float):
-        return repr(value)
+    if isinstance(value, int):
+        return str(value)
+    if isinstance(value, float):
+        return escape(number(name, value))
     if isinstance(value, str):
-        return escape(value)
+        return escape(CODE_WORDS.get(value, value))
     if isinstance(value, list):
-        if len(value) <= MAX_TABLE_ROWS and not any(isinstance(v, Mapping | list) for v in value):
-            return ", ".join(_value(v) for v in value) if value else "empty list"
-        return f"list of {len(value):,}"
+        if not value:
+            return "empty list"
+        return f"{len(value):,} values, listed below"
     if isinstance(value, Mapping):
-        return f"object of {len(value):,} fields"
+        return ", ".join(f"{escape(str(k))} {_value(v, str(k))}" for k, v in value.items())
     return escape(str(value))
+
+
+def _input_value(name: str, value: Any) -> str:
+    """An input as written; a rate also as a percentage."""
+    if isinstance(value, float) and not isinstance(value, bool):
+        shown = repr(value)
+        field = name.removesuffix(" (default)").rsplit(".", 1)[-1]
+        if field in RATE_FIELDS and 0.0 <= value <= 1.0:
+            shown += f" ({percent(value)})"
+        return escape(shown)
+    return _value(value, name)
 
 
 def _scalars(value: Any, prefix: str = "") -> list[tuple[str, Any]]:
@@ -116,9 +169,43 @@ def _scalars(value: Any, prefix: str = "") -> list[tuple[str, Any]]:
     return [(prefix or "body", value)]
 
 
-def _pairs_table(rows: list[tuple[str, Any]]) -> list[str]:
+def _pairs_table(rows: list[tuple[str, Any]], inputs: bool = False) -> list[str]:
+    show = _input_value if inputs else (lambda name, value: _value(value, name))
     lines = ["| field | value |", "|---|---|"]
-    lines += [f"| {escape(name)} | {_value(value)} |" for name, value in rows]
+    lines += [f"| {escape(name)} | {show(name, value)} |" for name, value in rows]
+    return lines
+
+
+def _listed_inputs(rows: list[tuple[str, Any]]) -> list[str]:
+    """Each input list in full (up to MAX_LISTED_VALUES values): identifiers, ranges..."""
+    lines: list[str] = []
+    for name, value in rows:
+        if not isinstance(value, list) or not value:
+            continue
+        shown = value[:MAX_LISTED_VALUES]
+        text = "; ".join(_value(v, name) for v in shown)
+        more = len(value) - len(shown)
+        tail = f"; … and {more:,} more (the request holds them all)" if more else ""
+        lines += ["", f"{escape(name)} ({len(value):,}): {text}{tail}"]
+    return lines
+
+
+def _listed_table(layout: TicketLayout, document: Mapping[str, Any]) -> list[str]:
+    columns = [name for name in layout.listed if isinstance(document.get(name), list)]
+    if not columns:
+        return []
+    count = len(document[columns[0]])
+    lines = ["", f"**Selected items** ({count:,}, in draw order)", ""]
+    lines.append("| draw | " + " | ".join(escape(c.removesuffix("s")) for c in columns) + " |")
+    lines.append("|---|" + "---|" * len(columns))
+    for row in range(min(count, MAX_TABLE_ROWS)):
+        cells = [escape(str(document[c][row])) for c in columns]
+        lines.append(f"| {row + 1} | " + " | ".join(cells) + " |")
+    if count > MAX_TABLE_ROWS:
+        lines.append(
+            f"\n… and {count - MAX_TABLE_ROWS:,} more items: ask for Accept: text/csv for "
+            "the whole list."
+        )
     return lines
 
 
@@ -132,7 +219,7 @@ def _objects_table(name: str, items: list[Any]) -> list[str]:
     lines.append("| " + " | ".join(escape(c) for c in columns) + " |")
     lines.append("|" + "---|" * len(columns))
     for item in items[:MAX_TABLE_ROWS]:
-        lines.append("| " + " | ".join(_value(item.get(c)) for c in columns) + " |")
+        lines.append("| " + " | ".join(_value(item.get(c), c) for c in columns) + " |")
     if len(items) > MAX_TABLE_ROWS:
         lines.append(f"\n… and {len(items) - MAX_TABLE_ROWS:,} more rows in the JSON answer.")
     return lines
@@ -148,6 +235,8 @@ def render(
     payload: Any,
     document: Mapping[str, Any],
     request_fields: tuple[str, ...] = (),
+    *,
+    caution: bool = True,
 ) -> str:
     """The Markdown block for one answered request.
 
@@ -178,29 +267,39 @@ def render(
     scalar_answers = [
         row
         for name in names
-        if not _is_objects(document[name])
+        if not _is_objects(document[name]) and name not in layout.listed
         for row in _scalars(document[name], name)
     ]
-    lines = [f"### {escape(title, limit=None)}", "", "**Inputs**", ""]
-    lines += _pairs_table(inputs) if inputs else ["none"]
+    lines = [f"### {escape(title, limit=None)}", ""]
+    summary = document.get("summary")
+    if isinstance(summary, str) and summary:
+        lines += [escape(summary.removesuffix(CAUTION).strip(), limit=None), ""]
+    lines += ["**Inputs**", ""]
+    lines += _pairs_table(inputs, inputs=True) if inputs else ["none"]
+    lines += _listed_inputs(inputs)
     lines += ["", "**Answer**"]
     if scalar_answers:
         lines += ["", *_pairs_table(scalar_answers)]
     for name in names:
         if _is_objects(document[name]):
             lines += ["", *_objects_table(name, document[name])]
+    lines += _listed_table(layout, document)
     if layout.method is not None:
         lines += ["", f"**Method**: {escape(layout.method(document), limit=None)}"]
     warnings = document.get("warnings")
     if isinstance(warnings, list) and warnings:
         lines += ["", "**Warnings**", ""]
-        lines += [f"- {_value(w)}" for w in warnings]
+        lines += [f"- {escape(str(w), limit=None)}" for w in warnings]
+    steps = document.get("next_steps")
+    if isinstance(steps, list) and steps:
+        lines += ["", "**Next steps**", ""]
+        lines += [f"- {escape(str(step), limit=None)}" for step in steps]
     lines += [
         "",
         f"Service version: `{VERSION}`  ",
         f"Request fingerprint (SHA-256): `{request_fingerprint(payload)}`",
         "",
-        f"> {CAUTION}",
-        "",
     ]
+    if caution:
+        lines += [f"> {CAUTION}", ""]
     return "\n".join(lines)

@@ -52,9 +52,58 @@ def _chart_points(curve: OperatingCharacteristic) -> list[tuple[float, float]]:
     return sorted(points.items())
 
 
+def _whole_population(curve: OperatingCharacteristic) -> bool:
+    return curve.population_size is not None and curve.sample_size == curve.population_size
+
+
+def _whole_population_points(curve: OperatingCharacteristic) -> list[tuple[float, float]]:
+    """The exact curve when every item is tested: a single step at k / N.
+
+    With n = N the test finds every deviant item, so it supports reliance exactly when the
+    population holds at most k of them: probability 1 up to the rate k / N, 0 beyond. A
+    grid of rates would draw that step as a slope between two grid points.
+    """
+    size = curve.population_size or curve.sample_size
+    step = curve.allowed_deviations / size
+    end = max(min(1.0, 2 * step + 2 / size), (curve.tolerable_rate or 0.0) * 1.5)
+    below_step = [(0.0, 1.0), (step, 1.0)] if step > 0 else [(0.0, 1.0)]
+    return [*below_step, (min(step + 1e-9, 1.0), 0.0), (min(end, 1.0), 0.0)]
+
+
+def _description(curve: OperatingCharacteristic) -> str:
+    """The chart in words: the SVG's <desc>."""
+    k = curve.allowed_deviations
+    if _whole_population(curve):
+        size = curve.population_size or curve.sample_size
+        return (
+            f"Every item of the population of {size:,} is tested, so there is no sampling "
+            "risk: the test supports reliance exactly when the population holds "
+            + ("no deviant item" if k == 0 else f"at most {k:,} deviant items")
+            + f" (a rate of {percent(k / size)}); the curve is a single step from 100% to 0% "
+            "at that rate."
+        )
+    text = (
+        f"Probability that a sample of {curve.sample_size:,} items shows at most {k:,} "
+        f"deviations, against the true deviation rate ({curve.method} model)."
+    )
+    if curve.tolerable_rate is not None and curve.risk_of_overreliance is not None:
+        text += (
+            f" At the tolerable rate of {percent(curve.tolerable_rate)} it is "
+            f"{percent(curve.risk_of_overreliance)} (risk of overreliance)."
+        )
+    if curve.expected_rate is not None and curve.risk_of_underreliance is not None:
+        text += (
+            f" At the expected rate of {percent(curve.expected_rate)} the sample fails to "
+            f"support reliance with probability {percent(curve.risk_of_underreliance)} "
+            "(risk of underreliance)."
+        )
+    return text
+
+
 def _svg(document: dict[str, Any], curve: OperatingCharacteristic) -> str:
+    points = _whole_population_points(curve) if _whole_population(curve) else _chart_points(curve)
     return render_operating_characteristic_svg(
-        _chart_points(curve),
+        points,
         sample_size=curve.sample_size,
         allowed_deviations=curve.allowed_deviations,
         tolerable_rate=curve.tolerable_rate,
@@ -62,6 +111,8 @@ def _svg(document: dict[str, Any], curve: OperatingCharacteristic) -> str:
         risk_of_overreliance=curve.risk_of_overreliance,
         risk_of_underreliance=curve.risk_of_underreliance,
         caption=_caption(curve),
+        population_label=curve.population_label,
+        description=_description(curve),
     )
 
 

@@ -71,7 +71,10 @@ _SELECTION_METHODS = {
 
 def _selection_method(document: Mapping[str, Any]) -> str:
     method = _SELECTION_METHODS.get(document["method"], document["method"])
-    return f"{method}; random stream from SHA-256 (FIPS 180-4), algorithm {document['algorithm']}"
+    return (
+        f"{method}; random stream from HMAC-SHA256 in counter mode (RFC 2104, FIPS 180-4), "
+        f"algorithm {document['algorithm']}"
+    )
 
 
 OPERATIONS = [
@@ -101,13 +104,13 @@ OPERATIONS = [
             answer=(
                 "sample_size",
                 "population_size",
-                "items",
                 "seed",
                 "seed_generated",
                 "population_fingerprint",
                 "selection_fingerprint",
             ),
             method=_selection_method,
+            listed=("items", "positions"),
         ),
     ),
 ]

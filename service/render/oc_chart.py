@@ -94,6 +94,8 @@ def render_operating_characteristic_svg(
     risk_of_overreliance: float | None,
     risk_of_underreliance: float | None,
     caption: str,
+    population_label: str | None = None,
+    description: str = "",
 ) -> str:
     """Draw the operating characteristic curve of a plan and return it as SVG text.
 
@@ -116,6 +118,11 @@ def render_operating_characteristic_svg(
         at the expected rate at or above one minus the risk of underreliance.
     caption : str
         Text set under the chart.
+    population_label : str, optional
+        The population's name, shown under the plan title and in the SVG ``<title>``.
+    description : str
+        The SVG ``<desc>``: the plan and its curve in words, for screen readers and for
+        anyone reading the file without drawing it.
 
     Returns
     -------
@@ -123,7 +130,9 @@ def render_operating_characteristic_svg(
         A standalone SVG document.  Element ids: ``oc-curve``, ``mark-tolerable``,
         ``mark-expected``, ``risk-overreliance``, ``risk-underreliance`` (when drawn),
         ``legend`` with ``label-curve``, ``label-tolerable``, ``label-expected``,
-        ``axis-x-label``, ``axis-y-label``, ``plan-title`` and ``caption``.
+        ``axis-x-label``, ``axis-y-label``, ``plan-title``, ``population-label`` (when a
+        label is given) and ``caption``; the root's first children are ``<title>`` (the plan
+        and the population label) and ``<desc>``.
 
     Raises
     ------
@@ -210,11 +219,28 @@ def render_operating_characteristic_svg(
             else f"with up to {allowed_deviations:,} {noun}"
         )
         items = "item" if sample_size == 1 else "items"
-        axes.set_title(f"Sample of {sample_size:,} {items}, reliance {allowance}", loc="left",
-                       fontsize=9.5, color=_INK, gid="plan-title")
+        title = f"Sample of {sample_size:,} {items}, reliance {allowance}"
+        axes.set_title(title, loc="left", fontsize=9.5, color=_INK, gid="plan-title",
+                       pad=18 if population_label else 6)
+        if population_label:
+            shown = population_label if len(population_label) <= 90 else (
+                population_label[:90] + "…")
+            axes.text(0.0, 1.015, f"Population: {shown}", transform=axes.transAxes,
+                      ha="left", va="bottom", fontsize=8, color=_MUTED, gid="population-label")
         figure.text(0.11, 0.035, caption, ha="left", va="bottom", fontsize=8, color=_MUTED,
                     wrap=True, gid="caption")
 
         buffer = io.StringIO()
         figure.savefig(buffer, format="svg", metadata={"Date": None})
-    return buffer.getvalue()
+    full_title = title if not population_label else f"{title}; population: {population_label}"
+    return _with_title(buffer.getvalue(), full_title, description or caption)
+
+
+def _with_title(svg: str, title: str, description: str) -> str:
+    """``svg`` with ``<title>`` and ``<desc>`` as the first children of its root element."""
+    from xml.sax.saxutils import escape
+
+    root = svg.index("<svg")
+    end = svg.index(">", root) + 1
+    extra = f"\n <title>{escape(title)}</title>\n <desc>{escape(description)}</desc>"
+    return svg[:end] + extra + svg[end:]

@@ -47,7 +47,7 @@ from scipy import special, stats
 from service.sampling import hypergeometric
 from service.sampling.distributions import Model, deviant_items, resolve_model
 from service.sampling.errors import ComputationTooLarge, InvalidInput, NoFeasiblePlan
-from service.sampling.rates import exact_rate, floor_quotient
+from service.sampling.rates import ceil_product, exact_rate, floor_quotient
 
 DEFAULT_MAX_SAMPLE_SIZE = 10_000_000
 # A computation cap: a plan allowing more deviations than this (a sample of
@@ -83,6 +83,12 @@ class SampleSizePlan:
     risk_of_overreliance: float
     risk_of_underreliance: float
     warnings: tuple[str, ...]
+    tolerable_deviant_items: int | None = None
+
+    @property
+    def whole_population(self) -> bool:
+        """True when the plan tests every item of the population (no sampling risk)."""
+        return self.population_size is not None and self.sample_size == self.population_size
 
 
 @dataclass(frozen=True)
@@ -104,6 +110,10 @@ class Evaluation:
     risk_at_tolerable_rate: float | None
     supports_reliance: bool | None
     warnings: tuple[str, ...]
+    expected_rate: float | None = None
+    planned_allowed_deviations: int | None = None
+    whole_population: bool = False
+    tolerable_deviant_items: int | None = None
 
 
 class _TooManyDeviations(Exception):
@@ -111,6 +121,10 @@ class _TooManyDeviations(Exception):
 
 
 # --- validation -------------------------------------------------------------
+
+
+def _items(count: int) -> str:
+    return f"{count:,} item" + ("" if count == 1 else "s")
 
 
 def _check_open_unit(field: str, value: float) -> None:
@@ -356,6 +370,9 @@ def size_sample(
         risk_of_overreliance=risk_over,
         risk_of_underreliance=risk_under,
         warnings=warnings,
+        tolerable_deviant_items=(
+            None if population_size is None else deviant_items(tolerable, population_size)
+        ),
     )
 
 
@@ -384,13 +401,18 @@ def _plan_warnings(
     if population_size is not None:
         if n > population_size:
             warnings.append(
-                f"The sample of {n:,} exceeds the population of {population_size:,} items; "
+                f"The sample of {n:,} exceeds the population of {_items(population_size)}; "
                 "the hypergeometric method sizes samples drawn without replacement."
+            )
+        elif n == population_size:
+            warnings.append(
+                f"The plan tests every item of the population ({n:,} of {n:,}): the result "
+                "will be the population's exact deviation count, with no sampling risk."
             )
         elif 2 * n > population_size:
             warnings.append(
                 f"The sample of {n:,} is more than half the population of "
-                f"{population_size:,} items; consider testing every item."
+                f"{_items(population_size)}; consider testing every item."
             )
         if (
             not model.needs_population
@@ -523,6 +545,7 @@ def evaluate_sample(
     method: str | None = None,
     *,
     population_label: str | None = None,
+    expected_rate: float | None = None,
 ) -> Evaluation:
     """Evaluate the deviations found in a test of controls.
 
@@ -539,6 +562,10 @@ def evaluate_sample(
     population_size : int, optional
         N, required by the hypergeometric method (the default when given).
     method : {"binomial", "hypergeometric", "poisson"}, optional
+    expected_rate : float, optional
+        The expected population deviation rate of the plan, in [0, tolerable rate): the
+        result then reports the deviations the plan allowed for this sample size,
+        ``ceil(expected_rate × n)``, beside those found.
 
     Returns
     -------
@@ -553,6 +580,12 @@ def evaluate_sample(
     The two-sided interval puts ``(1 − confidence) / 2`` in each tail.
     The sample supports reliance when ``P(X ≤ d) ≤ 1 − confidence`` at the
     tolerable rate, the same condition the sample size plan uses.
+
+    When every item of the population was tested (``n = N``) there is no sampling risk:
+    the deviation rate is known exactly, the limits and both ends of the interval are
+    ``d / N`` and the allowance is 0, whatever the model; reliance is supported when
+    ``d`` is below the ``ceil(t N)`` deviant items the population holds at the tolerable
+    rate (the hypergeometric condition at ``n = N``).
 
     References
     ----------
@@ -581,35 +614,65 @@ def evaluate_sample(
             "sample_size",
             f"sample_size {sample_size} exceeds population.size {population_size}",
         )
+    if expected_rate is not None and not (
+        0.0 <= expected_rate < (1.0 if tolerable_rate is None else tolerable_rate)
+    ):
+        raise InvalidInput(
+            "expected_rate",
+            f"expected_rate {expected_rate!r} must be at least 0 and below "
+            + ("1" if tolerable_rate is None else f"tolerable_rate {tolerable_rate!r}"),
+        )
     model = resolve_model(method, population_size)
+    whole = population_size is not None and sample_size == population_size
 
-    limits = _LIMITS[model.name](deviations, sample_size, confidence, population_size)
     rate = Fraction(deviations, sample_size)
+    if whole:
+        exact = float(rate)
+        count = deviations if model.needs_population else None
+        limits = _Limits(exact, count, Interval(exact, exact))
+    else:
+        limits = _LIMITS[model.name](deviations, sample_size, confidence, population_size)
     upper = (
         Fraction(limits.upper_count, population_size)
         if limits.upper_count is not None and population_size is not None
         else Fraction(limits.upper)
     )
-    upper = max(upper, rate)
+    upper = rate if whole else max(upper, rate)
 
     risk: float | None = None
     supports: bool | None = None
+    tolerable_count: int | None = None
     if tolerable_rate is not None:
-        risk = float(
-            model.lower_tail(deviations, sample_size, exact_rate(tolerable_rate), population_size)
-        )
+        if population_size is not None:
+            tolerable_count = deviant_items(exact_rate(tolerable_rate), population_size)
+        if whole:
+            assert tolerable_count is not None  # noqa: S101 (whole implies a population size)
+            risk = 1.0 if deviations >= tolerable_count else 0.0
+        else:
+            risk = float(
+                model.lower_tail(
+                    deviations, sample_size, exact_rate(tolerable_rate), population_size
+                )
+            )
         supports = risk <= 1.0 - confidence
 
     warnings: list[str] = []
+    if whole and not model.needs_population:
+        warnings.append(
+            f"Every item of the population was tested, so the {model.name} model (sampling "
+            "with replacement) does not apply: the limits are the population's exact "
+            "deviation rate."
+        )
     if model.name == "poisson" and rate > Fraction(1, 10):
         warnings.append(
             "The sample deviation rate is above 10%, where the Poisson approximation is "
             "markedly conservative; the binomial or hypergeometric method is more accurate."
         )
-    if model.name == "poisson" and limits.upper >= 1.0:
+    if model.name == "poisson" and limits.upper >= 1.0 and not whole:
         warnings.append("The Poisson bound reached 1 and was capped there.")
     if (
         population_size is not None
+        and not whole
         and not model.needs_population
         and Fraction(sample_size, population_size) > _LARGE_SAMPLING_FRACTION
     ):
@@ -617,6 +680,9 @@ def evaluate_sample(
             "The sample is more than 10% of the population; the hypergeometric method "
             "would give a tighter limit (common practice threshold)."
         )
+    planned: int | None = None
+    if expected_rate is not None:
+        planned = ceil_product(exact_rate(expected_rate), sample_size)
 
     return Evaluation(
         method=model.name,
@@ -635,6 +701,10 @@ def evaluate_sample(
         risk_at_tolerable_rate=risk,
         supports_reliance=supports,
         warnings=tuple(warnings),
+        expected_rate=expected_rate,
+        planned_allowed_deviations=planned,
+        whole_population=whole,
+        tolerable_deviant_items=tolerable_count,
     )
 
 

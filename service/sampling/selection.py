@@ -38,12 +38,14 @@ from service.sampling.errors import ComputationTooLarge, InvalidInput
 __all__ = [
     "ALGORITHM",
     "ALGORITHM_ID",
+    "ALGORITHM_IDS",
     "ALGORITHM_VERSION",
     "DEFAULT_MAX_ITEMS",
     "MAX_IDENTIFIER_LENGTH",
     "MAX_NUMBER",
     "MAX_SEED_LENGTH",
     "METHODS",
+    "SYSTEMATIC_ALGORITHM_ID",
     "ItemPopulation",
     "NumberedPopulation",
     "Population",
@@ -60,7 +62,16 @@ ALGORITHM_VERSION: Final = 1
 """Version of the byte-level specification; bumped whenever any selected item could change."""
 
 ALGORITHM_ID: Final = f"{ALGORITHM}/v{ALGORITHM_VERSION}"
-"""Identifier reported with every selection: ``"sha256-counter-fisher-yates/v1"``."""
+"""Identifier reported with every random selection: ``"sha256-counter-fisher-yates/v1"``."""
+
+SYSTEMATIC_ALGORITHM_ID: Final = "hmac-sha256-systematic/v1"
+"""Identifier reported with every systematic selection (a random start, no shuffle)."""
+
+ALGORITHM_IDS: Final[Mapping[str, str]] = {
+    "random": ALGORITHM_ID,
+    "systematic": SYSTEMATIC_ALGORITHM_ID,
+}
+"""The algorithm identifier of each method; each is bound into the selection fingerprint."""
 
 MAX_SEED_LENGTH: Final = 256
 """Longest seed accepted, in characters (Unicode code points)."""
@@ -172,7 +183,7 @@ class Selection:
     method : str
         ``"random"`` or ``"systematic"``.
     algorithm : str
-        :data:`ALGORITHM_ID`, the algorithm name with its version.
+        The method's algorithm name with its version (:data:`ALGORITHM_IDS`).
     population_fingerprint : str
         Hex SHA-256 of the canonical encoding of the population.
     selection_fingerprint : str
@@ -292,9 +303,11 @@ def select(
        * items: ``b"items" || 0x00 || u64(K)`` followed by ``UTF-8(identifier) || 0x00`` for
          each of the K identifiers in canonical order.
 
-    7. *Selection fingerprint*, SHA-256 of ``b"selection" || 0x00 || ASCII(ALGORITHM_ID) ||
+    7. *Selection fingerprint*, SHA-256 of ``b"selection" || 0x00 || ASCII(algorithm id) ||
        0x00 || population fingerprint (32 raw bytes) || ASCII(method) || 0x00 || u64(n) ||
-       u64(byte length of UTF-8 seed) || UTF-8 seed``.
+       u64(byte length of UTF-8 seed) || UTF-8 seed``. The algorithm id is the method's:
+       ``"sha256-counter-fisher-yates/v1"`` for random, ``"hmac-sha256-systematic/v1"`` for
+       systematic (which draws one start and shuffles nothing).
 
     References
     ----------
@@ -341,7 +354,7 @@ def select(
         population_size=prepared.size,
         seed=seed,
         method=method,
-        algorithm=ALGORITHM_ID,
+        algorithm=ALGORITHM_IDS[method],
         population_fingerprint=prepared.fingerprint.hex(),
         selection_fingerprint=_selection_fingerprint(
             prepared.fingerprint, key, method, sample_size
@@ -422,7 +435,7 @@ def _selection_fingerprint(population: bytes, key: bytes, method: str, n: int) -
     payload = b"".join(
         (
             b"selection\x00",
-            ALGORITHM_ID.encode("ascii"),
+            ALGORITHM_IDS[method].encode("ascii"),
             b"\x00",
             population,
             method.encode("ascii"),

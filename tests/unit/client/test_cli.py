@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import json
 import os
+import re
 from pathlib import Path
 from typing import Any
 
@@ -66,7 +67,7 @@ def test_sample_size_prints_a_table(through_app: requests.Session, adapter: AppA
                            "0.01", "--confidence", "0.95", "--population-size", "4200")
     assert status == 0
     assert "attribute-sampling" not in err  # the app's own log lines go to stderr too
-    assert "Sample size            93" in out
+    assert re.search(r"^Sample size +93$", out, re.MULTILINE)
     assert " ".join(out.split()).endswith(CAUTION)
     (sent,) = adapter.sent
     assert json.loads(sent.body or b"") == {"population": {"size": 4200}, "tolerable_rate": 0.05,

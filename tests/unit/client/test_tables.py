@@ -42,9 +42,10 @@ def test_a_plan_reads_as_a_table_and_ends_with_the_caution_once(client: FlaskCli
     text = tables.document_text("Sample size for a test of controls", plan)
     lines = text.splitlines()
     assert lines[0] == "Sample size for a test of controls"
-    assert "Sample size            93" in lines
-    assert "Allowed deviations     1" in lines
-    assert "Population size        4,200" in lines
+    width = lines[2].index("93")  # the value column starts where the first value does
+    assert "Sample size".ljust(width) + "93" in lines
+    assert "Allowed deviations".ljust(width) + "1" in lines
+    assert "Population size".ljust(width) + "4,200" in lines
     assert "Curve request" not in text and "Links" not in text  # they are for programs
     assert " ".join(text.split()).endswith(CAUTION)
     assert text.count(CAUTION[:40]) == 1

@@ -223,7 +223,37 @@ def test_markdown_lists_each_items_status(client: FlaskClient) -> None:
     response = client.post(PATH, json={"operations": items}, headers={"Accept": "text/markdown"})
     assert response.status_code == 200
     text = response.get_data(as_text=True)
-    assert "| good | 200 |" in text and "| bad | 422 |" in text
+    assert "| 1 | good | evaluation | 200 |" in text and "| 2 | bad | evaluation | 422 |" in text
+
+
+def test_batch_markdown_has_an_overview_and_one_complete_block_per_operation(
+    client: FlaskClient,
+) -> None:
+    items = [
+        {"id": "purchase approvals", "operation": "sample-size",
+         "request": {"tolerable_rate": 0.05, "population": {"size": 4200}}},
+        {"id": "three-way match", "operation": "evaluation",
+         "request": {"sample_size": 60, "deviations": 2, "tolerable_rate": 0.05}},
+        {"id": "picks", "operation": "selection",
+         "request": {"population": {"size": 300}, "sample_size": 4, "seed": "fictional-4"}},
+    ]
+    json_answer = client.post(PATH, json={"operations": items}).get_json()["results"]
+    text = client.post(
+        PATH, json={"operations": items}, headers={"Accept": "text/markdown"}
+    ).get_data(as_text=True)
+    plan, evaluation, picks = (answer["result"] for answer in json_answer)
+    overview = text.split("\n---\n")[0]
+    assert f"sample size {plan['sample_size']}" in overview
+    assert "does not support reliance on the control as tested" in overview
+    # One block per operation, in order, each with its summary, inputs and answer.
+    assert text.count("**Inputs**") == 3 and text.count("**Answer**") == 3
+    assert text.index("**1. purchase approvals**") < text.index("**2. three-way match**")
+    assert "| sample\\_size | " + str(plan["sample_size"]) + " |" in text
+    assert "**Next steps**" in text and evaluation["next_steps"]
+    for draw, item in enumerate(picks["items"], start=1):
+        assert f"| {draw} | {item} |" in text
+    assert text.rstrip().endswith("apply to the engagement.")
+    assert text.count("> These figures support") == 1
 
 
 def test_answer_matches_the_documented_schema(client: FlaskClient) -> None:

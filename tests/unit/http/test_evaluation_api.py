@@ -34,7 +34,9 @@ EVALUATION_FIELDS = {
     "sample_deviation_rate",
     "upper_deviation_limit",
     "allowance_for_sampling_risk",
-    "interval",
+    "confidence_interval",
+    "whole_population",
+    "next_steps",
     "summary",
     "warnings",
 }
@@ -100,15 +102,15 @@ def test_two_deviations_in_one_hundred(client: Any) -> None:
     assert result["allowance_for_sampling_risk"] == pytest.approx(upper - 0.02, rel=1e-12)
     # Two-sided interval at the same 95%: statsmodels' exact (beta) interval.
     low, high = proportion_confint(2, 100, alpha=0.05, method="beta")
-    assert result["interval"]["low"] == pytest.approx(low, rel=1e-9)
-    assert result["interval"]["high"] == pytest.approx(high, rel=1e-9)
+    assert result["confidence_interval"]["low"] == pytest.approx(low, rel=1e-9)
+    assert result["confidence_interval"]["high"] == pytest.approx(high, rel=1e-9)
 
 
 def test_no_deviation_bound(client: Any) -> None:
     result = _evaluate(client, {"sample_size": 59, "deviations": 0})
     # With no deviation the bound solves (1 − p)^59 = 0.05 in closed form.
     assert result["upper_deviation_limit"] == pytest.approx(1 - 0.05 ** (1 / 59), rel=1e-12)
-    assert result["interval"]["low"] == 0.0
+    assert result["confidence_interval"]["low"] == 0.0
     assert result["sample_deviation_rate"] == 0.0
 
 
@@ -172,7 +174,7 @@ def test_fields_without_tolerable_rate(client: Any) -> None:
         assert absent not in result
     assert result["confidence"] == 0.95  # the documented default
     assert result["population_size"] is None
-    assert set(result["interval"]) == {"low", "high"}
+    assert set(result["confidence_interval"]) == {"low", "high"}
 
 
 def test_population_label_is_echoed(client: Any) -> None:
@@ -214,7 +216,7 @@ def test_numbers_are_finite_and_ordered(client: Any, body: dict[str, Any]) -> No
     result = _evaluate(client, body)
     assert all(math.isfinite(x) for x in _numbers(result))
     rate, upper = result["sample_deviation_rate"], result["upper_deviation_limit"]
-    low, high = result["interval"]["low"], result["interval"]["high"]
+    low, high = result["confidence_interval"]["low"], result["confidence_interval"]["high"]
     assert 0.0 <= low <= rate <= upper <= high <= 1.0
     assert result["allowance_for_sampling_risk"] >= 0.0
 

@@ -10,6 +10,7 @@ import pytest
 from flask.testing import FlaskClient
 
 from service.http import all_operations
+from service.http.markdown import escape
 from service.version import VERSION
 
 CAUTION = (
@@ -32,6 +33,14 @@ EXAMPLES: dict[str, tuple[dict[str, Any], str]] = {
     "plan-curve": ({"sample_size": 60, "allowed_deviations": 1, "tolerable_rate": 0.05},
                    "risk_of_overreliance"),
 }
+
+
+def _shown(name: str, value: Any) -> str:
+    """How the block shows an answer: a rate as a two-decimal percentage, else as is."""
+    if isinstance(value, float):
+        percent = f"{value * 100:.2f}".rstrip("0").rstrip(".")
+        return escape(f"{percent}%")
+    return escape(str(value))
 
 
 def _canonical_sha256(payload: Any) -> str:
@@ -58,7 +67,11 @@ def test_markdown_block_for_each_endpoint(client: FlaskClient, operation: Any) -
     text = response.get_data(as_text=True)
     assert text.startswith(f"### {operation.summary.split()[0]}")
     answer = document[answer_field]
-    assert f"| {answer_field.replace('_', chr(92) + '_')} | {answer} |" in text
+    shown_name = answer_field.replace("_", chr(92) + "_")
+    assert f"| {shown_name} | {_shown(answer_field, answer)} |" in text
+    # The summary sentence follows the heading, without its caution (which closes the block).
+    summary = document["summary"].removesuffix(CAUTION).strip()
+    assert text.splitlines()[2] == escape(summary, limit=None)
     assert "**Inputs**" in text and "**Answer**" in text and "**Method**: " in text
     assert f"Service version: `{VERSION}`" in text
     assert f"`{_canonical_sha256(body)}`" in text
@@ -69,7 +82,7 @@ def test_inputs_are_listed_by_dotted_path(client: FlaskClient) -> None:
     body, _ = EXAMPLES["sample-size"]
     text = client.post("/v1/sample-size", json=body, headers=MARKDOWN).get_data(as_text=True)
     assert "| population\\.size | 4200 |" in text
-    assert "| tolerable\\_rate | 0.05 |" in text
+    assert "| tolerable\\_rate | 0\\.05 (5%) |" in text
     assert "hypergeometric model; hypergeometric distribution; Wright (1991)" in text
 
 
@@ -102,13 +115,53 @@ def test_caller_text_cannot_add_markdown_structure(client: FlaskClient) -> None:
     assert text.count("### ") == 1
 
 
-def test_long_lists_are_shown_by_length(client: FlaskClient) -> None:
+def test_selection_block_lists_the_population_and_every_selected_item(
+    client: FlaskClient,
+) -> None:
     items = [f"INV-{i:05d}" for i in range(200)]
     body = {"population": {"items": items}, "sample_size": 30, "seed": "fictional-2"}
+    document = client.post("/v1/selection", json=body).get_json()
     text = client.post("/v1/selection", json=body, headers=MARKDOWN).get_data(as_text=True)
-    assert "| population\\.items | list of 200 |" in text
-    assert "| items | list of 30 |" in text
-    assert "INV" not in text
+    assert "list of" not in text
+    assert "| population\\.items | 200 values, listed below |" in text
+    listed = next(line for line in text.splitlines() if line.startswith("population\\.items (200)"))
+    assert listed.count("INV") == 200
+    assert "**Selected items** (30, in draw order)" in text
+    for draw, (item, position) in enumerate(
+        zip(document["items"], document["positions"], strict=True), start=1
+    ):
+        assert f"| {draw} | {escape(item)} | {position} |" in text
+    assert f"`{document['selection_fingerprint']}`" in text or document[
+        "selection_fingerprint"
+    ] in text
+
+
+def test_ranges_and_exclusions_are_listed(client: FlaskClient) -> None:
+    body = {
+        "population": {
+            "ranges": [{"first": 1001, "last": 1500}, {"first": 2001, "last": 2100}],
+            "exclude": [1007, 2050],
+        },
+        "sample_size": 3,
+        "seed": "fictional-3",
+    }
+    response = client.post("/v1/selection", json=body, headers=MARKDOWN)
+    assert response.status_code == 200, response.get_data(as_text=True)
+    text = response.get_data(as_text=True)
+    assert "population\\.ranges (2): first 1001, last 1500; first 2001, last 2100" in text
+    assert "population\\.exclude (2): 1007; 2050" in text
+
+
+def test_evaluation_block_reads_in_words(client: FlaskClient) -> None:
+    body = {"sample_size": 104, "deviations": 3, "tolerable_rate": 0.05}
+    document = client.post("/v1/evaluation", json=body).get_json()
+    text = client.post("/v1/evaluation", json=body, headers=MARKDOWN).get_data(as_text=True)
+    assert document["conclusion"] == "does_not_support_reliance"
+    assert "does_not_support" not in text and "does\\_not" not in text
+    assert "does not support reliance on the control as tested" in text
+    # No float printed to 17 digits: every rate is a rounded percentage.
+    assert repr(document["upper_deviation_limit"]) not in text
+    assert "**Next steps**" in text and len(document["next_steps"]) >= 3
 
 
 def test_q_values_choose_markdown_when_preferred(client: FlaskClient) -> None:
@@ -165,10 +218,10 @@ def test_spec_documents_markdown_for_every_operation() -> None:
 def test_defaults_the_service_applied_are_listed_as_inputs(client: FlaskClient) -> None:
     text = client.post("/v1/sample-size", json={"tolerable_rate": 0.05}, headers=MARKDOWN)
     lines = text.get_data(as_text=True).splitlines()
-    assert "| confidence (default) | 0.95 |" in lines
-    assert "| expected\\_rate (default) | 0.0 |" in lines
+    assert "| confidence (default) | 0\\.95 (95%) |" in lines
+    assert "| expected\\_rate (default) | 0\\.0 (0%) |" in lines
     assert "| method (default) | binomial |" in lines
     sent = client.post(
         "/v1/sample-size", json={"tolerable_rate": 0.05, "confidence": 0.9}, headers=MARKDOWN
     ).get_data(as_text=True)
-    assert "| confidence | 0.9 |" in sent and "confidence (default)" not in sent
+    assert "| confidence | 0\\.9 (90%) |" in sent and "confidence (default)" not in sent

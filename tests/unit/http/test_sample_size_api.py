@@ -36,6 +36,7 @@ PLAN_FIELDS = {
     "risk_of_overreliance",
     "risk_of_underreliance",
     "population_size",
+    "whole_population",
     "summary",
     "warnings",
 }
@@ -186,7 +187,8 @@ def test_fields_of_a_plan_without_population(client: Any) -> None:
 def test_population_label_is_echoed(client: Any) -> None:
     label = "Purchase orders PO-70001 to PO-74200, Northwind Trading, Q3"
     plan = _post(client, {"tolerable_rate": 0.05, "population": {"size": 4200, "label": label}})
-    assert set(plan) == PLAN_FIELDS | {"population_label"}
+    assert set(plan) == PLAN_FIELDS | {"population_label", "tolerable_deviant_items"}
+    assert plan["tolerable_deviant_items"] == 210  # ceil(0.05 × 4,200)
     assert plan["population_label"] == label
     assert plan["population_size"] == 4200
     assert label in plan["summary"]

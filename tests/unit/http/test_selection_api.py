@@ -126,7 +126,7 @@ def test_published_vectors(
     assert document["method"] == "random"
     assert document["algorithm"] == "sha256-counter-fisher-yates/v1"
     assert document["warnings"] == []
-    assert "interval" not in document and "start" not in document
+    assert "sampling_interval" not in document and "start" not in document
 
 
 def test_published_vector_fingerprints(api: FlaskClient) -> None:
@@ -231,9 +231,9 @@ def test_systematic_reports_interval_and_start(api: FlaskClient) -> None:
     }
     document = _select(api, body)
     # Published vector: r = 976, so interval 4201/60 and start 976/60.
-    assert document["interval_exact"] == "4201/60"
+    assert document["sampling_interval_exact"] == "4201/60"
     assert document["start_exact"] == "976/60"
-    assert document["interval"] == float(Fraction(4201, 60))
+    assert document["sampling_interval"] == float(Fraction(4201, 60))
     assert document["start"] == float(Fraction(976, 60))
     assert document["items"][:10] == [17, 87, 157, 227, 297, 367, 437, 507, 577, 647]
     # Selection k is floor((r + k*N) / n) + 1, written out from the definition.
@@ -246,7 +246,7 @@ def test_systematic_over_identifiers_warns_of_the_order(api: FlaskClient) -> Non
     document = _select(api, _with(QUILLBROOK, method="systematic", sample_size=9))
     canonical = sorted(QUILLBROOK_ORDERS, key=lambda s: s.encode("utf-8"))
     assert [canonical[p - 1] for p in document["positions"]] == document["items"]
-    assert document["interval_exact"] == f"{len(QUILLBROOK_ORDERS)}/9"
+    assert document["sampling_interval_exact"] == f"{len(QUILLBROOK_ORDERS)}/9"
     assert any("code point order" in warning for warning in document["warnings"])
 
 
