@@ -15,6 +15,8 @@ GUNICORN_GRACEFUL_TIMEOUT 30                      seconds in-flight requests get
 GUNICORN_MAX_REQUESTS    2000                     requests before a worker is recycled (+10 %
                                                   random jitter, so workers do not all restart
                                                   at once)
+GUNICORN_ACCESS_LOG      unset                    1 adds gunicorn's own access line to the
+                                                  app's one JSON line per request
 PROMETHEUS_MULTIPROC_DIR a new temporary folder   where workers keep their metric files
 ======================== ======================== =============================================
 
@@ -78,7 +80,9 @@ max_requests_jitter = max(1, max_requests // 10)
 # Refuse oversized request lines and headers early; bodies are capped by the app.
 limit_request_line = 8190
 limit_request_fields = 100
-accesslog = "-"
+# The app writes one JSON line per request (service.context); gunicorn's own access line,
+# in the layout below, is added only when GUNICORN_ACCESS_LOG=1.
+accesslog = "-" if os.environ.get("GUNICORN_ACCESS_LOG") == "1" else None
 errorlog = "-"
 access_log_format = (
     '{"time":"%(t)s","remote":"%(h)s","method":"%(m)s","path":"%(U)s",'

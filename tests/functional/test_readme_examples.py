@@ -1,0 +1,248 @@
+"""The README's examples, pasted into a shell against the real server, give what it shows.
+
+Each ``sh`` block that calls the service with curl and is followed by a ``json`` block is
+run with bash (the address rewritten to the test server's port); the answer is compared
+with the README's JSON field by field. Blocks followed by ``markdown`` or ``text`` are
+compared line by line. Each ``python`` block followed by an output block is run as a
+script, and its standard output compared the same way.
+
+A README value may be the placeholder ``"..."`` (a generated seed, a request id, a time):
+the field must then be present, with any value. Blocks that show something other than the
+service's answer are marked with an HTML comment ``<!-- readme-test: skip -->`` just above
+them.
+"""
+
+from __future__ import annotations
+
+import json
+import re
+import shutil
+import subprocess
+import sys
+from collections.abc import Iterator
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Any
+
+import pytest
+
+from tests.functional.servers import ROOT, Server, running_server
+
+README = ROOT / "README.md"
+PLACEHOLDER = "..."
+# A list the README cuts short ends with an unquoted ellipsis: [17, 87, …].
+ELLIPSIS = "…"
+_CUT_LIST = re.compile(r",\s*…\s*\]")
+SKIP = "<!-- readme-test: skip -->"
+_FENCE = re.compile(r"^```(\w*)\s*$")
+_OUTPUT_KINDS = {"json", "markdown", "text"}
+
+
+@dataclass(frozen=True)
+class Example:
+    line: int
+    kind: str  # "sh" or "python"
+    code: str
+    output_kind: str
+    output: str
+
+    @property
+    def name(self) -> str:
+        return f"README line {self.line}"
+
+
+def _blocks(text: str) -> Iterator[tuple[int, str, str, bool]]:
+    """(first line, language, content, skipped) of each fenced block."""
+    lines = text.splitlines()
+    index = 0
+    while index < len(lines):
+        match = _FENCE.match(lines[index])
+        if match is None:
+            index += 1
+            continue
+        start, language = index, match.group(1)
+        end = start + 1
+        while end < len(lines) and not lines[end].startswith("```"):
+            end += 1
+        previous = next((line for line in reversed(lines[:start]) if line.strip()), "")
+        yield start + 1, language, "\n".join(lines[start + 1:end]), previous.strip() == SKIP
+        index = end + 1
+
+
+def examples(text: str) -> list[Example]:
+    """Each runnable block of ``text`` paired with the output block right after it."""
+    found: list[Example] = []
+    blocks = list(_blocks(text))
+    for (line, language, code, skipped), (_, out_kind, output, _) in zip(
+        blocks, blocks[1:], strict=False
+    ):
+        if skipped or out_kind not in _OUTPUT_KINDS:
+            continue
+        if language == "sh" and code.lstrip().startswith("curl ") and "127.0.0.1:8000" in code:
+            found.append(Example(line, "sh", code, out_kind, output))
+        elif language == "python" and "127.0.0.1:8000" in code:
+            found.append(Example(line, "python", code, out_kind, output))
+    return found
+
+
+EXAMPLES = examples(README.read_text(encoding="utf-8"))
+
+
+def readme_json(text: str) -> Any:
+    """A README JSON block, whose cut lists end with an unquoted ellipsis."""
+    return json.loads(_CUT_LIST.sub(', "…"]', text))
+
+
+def _same(shown: Any, got: Any, path: str = "") -> list[str]:
+    """Differences between the README's value and the answer, by field path."""
+    if shown == PLACEHOLDER:
+        return []
+    if isinstance(shown, dict) and isinstance(got, dict):
+        problems = [f"{path}.{key}: missing from the answer" for key in shown if key not in got]
+        problems += [f"{path}.{key}: in the answer, not in the README"
+                     for key in got if key not in shown]
+        for key in shown.keys() & got.keys():
+            problems += _same(shown[key], got[key], f"{path}.{key}")
+        return problems
+    if isinstance(shown, list) and shown and shown[-1] == ELLIPSIS and isinstance(got, list):
+        head = shown[:-1]
+        if len(got) <= len(head):
+            return [f"{path}: the README shows more than the {len(got)} elements answered"]
+        return _same(head, got[:len(head)], path)
+    if isinstance(shown, list) and isinstance(got, list):
+        if len(shown) != len(got):
+            return [f"{path}: {len(shown)} elements in the README, {len(got)} in the answer"]
+        return [p for i, (a, b) in enumerate(zip(shown, got, strict=True))
+                for p in _same(a, b, f"{path}[{i}]")]
+    if shown != got or type(shown) is not type(got):
+        return [f"{path}: README {shown!r}, answer {got!r}"]
+    return []
+
+
+@pytest.fixture(scope="module")
+def server(tmp_path_factory: pytest.TempPathFactory) -> Iterator[Server]:
+    with running_server(tmp_path_factory.mktemp("readme")) as running:
+        yield running
+
+
+def _run(example: Example, server: Server, tmp_path: Path) -> str:
+    port = server.url.rsplit(":", 1)[1]
+    code = example.code.replace("127.0.0.1:8000", f"127.0.0.1:{port}")
+    if example.kind == "sh":
+        command = ["bash", "-c", "set -o pipefail\n" + code.replace("python3 ", f"{sys.executable} ")]
+    else:
+        script = tmp_path / "example.py"
+        script.write_text(code, encoding="utf-8")
+        command = [sys.executable, str(script)]
+    done = subprocess.run(  # noqa: S603 - the README's own examples, on a loopback server
+        command, capture_output=True, text=True, timeout=60, cwd=tmp_path, check=False
+    )
+    assert done.returncode == 0, f"{example.name} failed:\n{done.stderr}"
+    return done.stdout
+
+
+def test_the_readme_has_examples_to_check() -> None:
+    assert sum(e.kind == "sh" for e in EXAMPLES) >= 10
+    assert any(e.kind == "python" for e in EXAMPLES)
+
+
+@pytest.mark.skipif(shutil.which("curl") is None, reason="curl is not installed")
+@pytest.mark.parametrize("example", EXAMPLES, ids=lambda e: e.name)
+def test_readme_example_gives_what_it_shows(
+    example: Example, server: Server, tmp_path: Path
+) -> None:
+    out = _run(example, server, tmp_path)
+    if example.output_kind == "json":
+        problems = _same(readme_json(example.output), json.loads(out))
+        assert not problems, f"{example.name}:\n" + "\n".join(problems)
+    else:
+        shown = [line.rstrip() for line in example.output.strip().splitlines()]
+        # A CSV answer starts with a byte order mark, which a README cannot show.
+        got = [line.rstrip() for line in out.removeprefix("\ufeff").strip().splitlines()]
+        assert got == shown, example.name
+
+
+def refresh(text: str, base_url: str) -> str:
+    """``text`` with each example's output block replaced by what the server at
+    ``base_url`` answers now; placeholders (``"..."``) in JSON outputs are kept.
+
+    Run ``python -m tests.functional.test_readme_examples http://127.0.0.1:8000`` against
+    ``make run`` after changing an answer, then read the diff before committing it.
+    """
+    import tempfile
+
+    lines = text.splitlines(keepends=True)
+    port_server = Server(url=base_url, process=None, log_path=Path("/dev/null"))  # type: ignore[arg-type]
+    replacements: list[tuple[int, int, str]] = []
+    blocks = list(_blocks(text))
+    for example in examples(text):
+        index = next(i for i, block in enumerate(blocks) if block[0] == example.line)
+        out_line = blocks[index + 1][0]
+        with tempfile.TemporaryDirectory() as tmp:
+            out = _run(example, port_server, Path(tmp)).removeprefix("\ufeff")
+        if example.output_kind == "json":
+            out = _keep_placeholders(example.output, out)
+        end = out_line
+        while not lines[end].startswith("```"):
+            end += 1
+        replacements.append((out_line, end, out.rstrip("\n") + "\n"))
+    for start, end, new in reversed(replacements):
+        lines[start:end] = [new]
+    return "".join(lines)
+
+
+def _keep_placeholders(block: str, out: str) -> str:
+    """The answer as the README shows it: placeholders and cut lists kept, in the block's
+    layout (json.tool's four-space indent, or one top-level field per line)."""
+    got = json.loads(out)
+    placed = _placed(readme_json(block), got)
+    if placed == got and _layout(block) == _layout(out):
+        return out
+    if _layout(block) == "indented":
+        second = block.strip().splitlines()[1]
+        indent = len(second) - len(second.lstrip())
+        text = json.dumps(placed, indent=indent, ensure_ascii=False)
+    elif _layout(block) == "one line":
+        text = json.dumps(placed, ensure_ascii=False)
+        text = json.dumps(placed, indent=4, ensure_ascii=False)
+    elif isinstance(placed, dict):  # one top-level field per line
+        rows = [f"  {json.dumps(k)}: {json.dumps(v, ensure_ascii=False)}"
+                for k, v in placed.items()]
+        text = "{\n" + ",\n".join(rows) + "\n}"
+    else:
+        text = json.dumps(placed, ensure_ascii=False)
+    return text.replace(f', "{ELLIPSIS}"]', f", {ELLIPSIS}]")
+
+
+def _layout(text: str) -> str:
+    """ "one line"; "fields" (one top-level field per line, each value on its line); or
+    "indented" (json.tool or json.dumps with an indent)."""
+    lines = text.strip().splitlines()
+    if len(lines) == 1:
+        return "one line"
+    depths = {len(line) - len(line.lstrip()) for line in lines[1:-1]}
+    return "fields" if depths == {2} else "indented"
+
+
+def _placed(shown: Any, got: Any) -> Any:
+    if shown == PLACEHOLDER:
+        return PLACEHOLDER
+    if isinstance(shown, list) and shown and shown[-1] == ELLIPSIS and isinstance(got, list):
+        return [*got[:len(shown) - 1], ELLIPSIS]
+    if isinstance(shown, dict) and isinstance(got, dict):
+        return {
+            key: PLACEHOLDER
+            if key in _VARYING and shown.get(key) != value
+            else _placed(shown.get(key), value)
+            for key, value in got.items()
+        }
+    return got
+
+
+# Fields whose value changes on every call: shown as the placeholder.
+_VARYING = frozenset({"request_id"})
+
+
+if __name__ == "__main__":
+    base = sys.argv[1] if len(sys.argv) > 1 else "http://127.0.0.1:8000"
+    README.write_text(refresh(README.read_text(encoding="utf-8"), base), encoding="utf-8")
