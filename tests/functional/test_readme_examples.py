@@ -15,12 +15,14 @@ them.
 from __future__ import annotations
 
 import json
+import os
 import re
 import shutil
 import subprocess
 import sys
 from collections.abc import Iterator
 from dataclasses import dataclass
+from itertools import pairwise
 from pathlib import Path
 from typing import Any
 
@@ -73,9 +75,7 @@ def examples(text: str) -> list[Example]:
     """Each runnable block of ``text`` paired with the output block right after it."""
     found: list[Example] = []
     blocks = list(_blocks(text))
-    for (line, language, code, skipped), (_, out_kind, output, _) in zip(
-        blocks, blocks[1:], strict=False
-    ):
+    for (line, language, code, skipped), (_, out_kind, output, _) in pairwise(blocks):
         if skipped or out_kind not in _OUTPUT_KINDS:
             continue
         if language == "sh" and code.lstrip().startswith("curl ") and "127.0.0.1:8000" in code:
@@ -129,12 +129,14 @@ def _run(example: Example, server: Server, tmp_path: Path) -> str:
     port = server.url.rsplit(":", 1)[1]
     code = example.code.replace("127.0.0.1:8000", f"127.0.0.1:{port}")
     if example.kind == "sh":
-        command = ["bash", "-c", "set -o pipefail\n" + code.replace("python3 ", f"{sys.executable} ")]
+        shell = "set -o pipefail\n" + code.replace("python3 ", f"{sys.executable} ")
+        command = ["bash", "-c", shell]
     else:
         script = tmp_path / "example.py"
         script.write_text(code, encoding="utf-8")
         command = [sys.executable, str(script)]
-    done = subprocess.run(  # noqa: S603 - the README's own examples, on a loopback server
+    # The README's own examples, on a loopback server.
+    done = subprocess.run(
         command, capture_output=True, text=True, timeout=60, cwd=tmp_path, check=False
     )
     assert done.returncode == 0, f"{example.name} failed:\n{done.stderr}"
@@ -172,7 +174,7 @@ def refresh(text: str, base_url: str) -> str:
     import tempfile
 
     lines = text.splitlines(keepends=True)
-    port_server = Server(url=base_url, process=None, log_path=Path("/dev/null"))  # type: ignore[arg-type]
+    port_server = Server(url=base_url, process=None, log_path=Path(os.devnull))  # type: ignore[arg-type]
     replacements: list[tuple[int, int, str]] = []
     blocks = list(_blocks(text))
     for example in examples(text):
