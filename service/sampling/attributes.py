@@ -645,8 +645,7 @@ def evaluate_sample(
     if tolerable_rate is not None:
         if population_size is not None:
             tolerable_count = deviant_items(exact_rate(tolerable_rate), population_size)
-        if whole:
-            assert tolerable_count is not None  # noqa: S101 (whole implies a population size)
+        if whole and tolerable_count is not None:
             risk = 1.0 if deviations >= tolerable_count else 0.0
         else:
             risk = float(
