@@ -35,10 +35,13 @@ def csv_cell(item: int | str) -> int | str:
 # Fields that are not shown in the table: links and ready-made bodies are for programs.
 _NOT_SHOWN = frozenset({"summary", "warnings", "links", "curve_request"})
 
-# Labels where turning the name into words would not read well.
+# Labels where turning the name into words would not read well. An evaluation's two-sided
+# interval is ``confidence_interval`` (``interval`` on services before the rename).
 _LABELS = {
     "interval.low": "Interval, lower bound",
     "interval.high": "Interval, upper bound",
+    "confidence_interval.low": "Confidence interval, lower bound",
+    "confidence_interval.high": "Confidence interval, upper bound",
     "upper_deviation_count": "Upper deviation count",
     "ratio_to_exact": "Ratio to exact",
     "finite_population_correction": "Finite population correction",
@@ -53,7 +56,8 @@ _RATE_NAMES = frozenset({
 #: The columns of a controls batch, by operation, after the control id.
 HEADLINES: dict[str, tuple[str, ...]] = {
     "sample-size": ("sample_size", "allowed_deviations"),
-    "evaluation": ("sample_deviation_rate", "upper_deviation_limit", "conclusion"),
+    "evaluation": ("sample_size", "deviations", "sample_deviation_rate",
+                   "upper_deviation_limit", "conclusion"),
     "plan-curve": ("risk_of_overreliance", "risk_of_underreliance"),
     "estimation-sample-size": ("recommended",),
     "selection": ("sample_size", "seed", "selection_fingerprint"),
@@ -228,39 +232,72 @@ def headline(operation: str, result: Mapping[str, Any]) -> tuple[str, ...]:
                  if k not in _NOT_SHOWN and not isinstance(v, Mapping | list))
 
 
-def _rows(ids: Sequence[str], operation: str, results: Sequence[Mapping[str, Any]],
-          columns: Sequence[str]) -> tuple[list[list[str]], bool]:
+#: How the warnings of one control are joined in the ``warnings`` cell of the controls CSV.
+WARNING_SEPARATOR = " | "
+
+
+def row_warnings(answer: Mapping[str, Any]) -> list[str]:
+    """The warnings of one batch answer (none for a refused item)."""
+    result = answer.get("result")
+    warnings = result.get("warnings") if isinstance(result, Mapping) else None
+    return [str(w) for w in warnings] if isinstance(warnings, list) else []
+
+
+def _rows(ids: Sequence[str], results: Sequence[Mapping[str, Any]],
+          columns: Sequence[str]) -> tuple[list[list[str]], list[str], bool]:
+    """One row per control (its cells, note numbers, problem), the notes, whether refused."""
     rows: list[list[str]] = []
+    notes: list[str] = []
     refused = False
     for index, (control, answer) in enumerate(zip(ids, results, strict=True)):
         result = answer.get("result")
+        numbers = []
+        for warning in row_warnings(answer):
+            notes.append(f"{control}: {warning}")
+            numbers.append(f"[{len(notes)}]")
         if isinstance(result, Mapping):
             cells = [value_text(c, result.get(c)) for c in columns]
-            rows.append([control, *cells, ""])
+            rows.append([control, *cells, " ".join(numbers), ""])
         else:
             refused = True
             problem = answer.get("problem") or {}
-            rows.append([control, *([""] * len(columns)),
+            rows.append([control, *([""] * len(columns)), "",
                          f"refused (HTTP {answer.get('status')}): "
                          + problem_text(problem, _item_prefix(index))])
-    return rows, refused
+    return rows, notes, refused
+
+
+def _notes(notes: Sequence[str]) -> list[str]:
+    """The numbered warnings under a controls table, each wrapped under its number."""
+    lines = ["", "Warnings:"]
+    width = len(f"[{len(notes)}] ")
+    for number, note in enumerate(notes, 1):
+        lines += textwrap.wrap(note, WIDTH, initial_indent=f"[{number}] ".ljust(width),
+                               subsequent_indent=" " * width)
+    return lines
 
 
 def controls_text(
     ids: Sequence[str], operation: str, results: Sequence[Mapping[str, Any]]
 ) -> str:
-    """One row per control: its id, the operation's headline fields, or why it was refused."""
+    """One row per control: its id, the operation's headline fields, or why it was refused.
+
+    Every warning of every control is listed, numbered, under the table; the Warnings
+    column gives each row's note numbers.
+    """
     columns = _columns(operation, results)
-    rows, refused = _rows(ids, operation, results, columns)
-    header = ["Control", *(label(c) for c in columns)]
-    if refused:
-        header.append("Problem")
-    else:
-        rows = [row[:-1] for row in rows]
-    lines = aligned(rows, header)
+    rows, notes, refused = _rows(ids, results, columns)
+    header = ["Control", *(label(c) for c in columns), "Warnings", "Problem"]
+    keep = [True] * (len(header) - 2) + [bool(notes), refused]
+    lines = aligned([[c for c, k in zip(row, keep, strict=True) if k] for row in rows],
+                    [c for c, k in zip(header, keep, strict=True) if k])
     done = sum(1 for r in results if isinstance(r.get("result"), Mapping))
-    lines += ["", f"{done} of {len(results)} answered; {len(results) - done} refused.",
-              "", *_paragraph(caution())]
+    warned = sum(1 for r in results if row_warnings(r))
+    lines += ["", f"{done} of {len(results)} answered; {len(results) - done} refused; "
+              f"{warned} with warnings."]
+    if notes:
+        lines += _notes(notes)
+    lines += ["", *_paragraph(caution())]
     return "\n".join(lines) + "\n"
 
 
@@ -278,13 +315,14 @@ def controls_csv(
     """The same rows as CSV, as the service writes its own (UTF-8 BOM, CRLF, RFC 4180).
 
     Numbers are written exactly as the service gave them; a text cell that a spreadsheet
-    would run as a formula is guarded as in the selection CSV.
+    would run as a formula is guarded as in the selection CSV. The ``warnings`` cell holds
+    every warning of the row, in the service's order, joined by :data:`WARNING_SEPARATOR`.
     """
     columns = _columns(operation, results)
     out = io.StringIO()
     out.write("\ufeff")
     writer = csv.writer(out, lineterminator="\r\n")
-    writer.writerow(("control_id", "status", *columns, "problem"))
+    writer.writerow(("control_id", "status", *columns, "warnings", "problem"))
     for index, (control, answer) in enumerate(zip(ids, results, strict=True)):
         result = answer.get("result")
         if isinstance(result, Mapping):
@@ -293,7 +331,9 @@ def controls_csv(
         else:
             cells = [""] * len(columns)
             problem = problem_text(answer.get("problem") or {}, _item_prefix(index))
-        writer.writerow((csv_cell(control), answer.get("status"), *cells, csv_cell(problem)))
+        warnings = WARNING_SEPARATOR.join(row_warnings(answer))
+        writer.writerow((csv_cell(control), answer.get("status"), *cells, csv_cell(warnings),
+                         csv_cell(problem)))
     return out.getvalue()
 
 

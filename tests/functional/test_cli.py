@@ -129,7 +129,8 @@ def test_the_month_end_batch_of_forty_controls(runs: Runs) -> None:
     done = runs["month_end_csv"]
     assert done.returncode == 0, done.stderr
     text = done.stdout.decode("utf-8")
-    assert text.startswith("\ufeffcontrol_id,status,sample_size,allowed_deviations,problem\r\n")
+    assert text.startswith(
+        "\ufeffcontrol_id,status,sample_size,allowed_deviations,warnings,problem\r\n")
     answers = list(csv.DictReader(io.StringIO(text.removeprefix("\ufeff"))))
     with EXAMPLE.open(encoding="utf-8", newline="") as handle:
         controls = list(csv.DictReader(handle))

@@ -142,7 +142,12 @@ def test_the_month_end_file_is_one_batch(through_app: requests.Session, adapter:
     assert {op["operation"] for op in operations} == {"sample-size"}
     lines = out.splitlines()
     assert lines[2].split() == ["NT-P2P-01", "93", "1"]
-    assert "40 of 40 answered; 0 refused." in out
+    # NT-ITG-03 plans a Poisson (with-replacement) sample above 10% of its population: the
+    # row keeps its warning.
+    (warned,) = [line.split() for line in lines if line.startswith("NT-ITG-03 ")]
+    assert warned[-1] == "[1]"
+    assert "40 of 40 answered; 0 refused; 1 with warnings." in out
+    assert "\nWarnings:\n[1] NT-ITG-03: " in out
 
 
 def test_flags_apply_to_every_row(through_app: requests.Session, adapter: AppAdapter,
@@ -178,7 +183,7 @@ def test_some_refused_rows_print_every_row_and_exit_3(
     assert "expected_rate: expected_rate 0.06 must be below tolerable_rate 0.05" in out
     status, out, _ = run(capsys, "sample-size", "--controls", str(path), "--csv")
     assert status == 3
-    assert out.splitlines()[2].startswith("B,422,,,expected_rate:")
+    assert out.splitlines()[2].startswith("B,422,,,,expected_rate:")
     status, out, _ = run(capsys, "sample-size", "--controls", str(path), "--json")
     assert status == 3
     assert [r["status"] for r in json.loads(out)["results"]] == [200, 422]
@@ -399,7 +404,7 @@ def test_more_controls_than_one_batch_takes_are_sent_in_chunks(
     assert [len(json.loads(r.body or b"")["operations"]) for r in adapter.sent] == [3, 3, 1]
     lines = out.removeprefix("\ufeff").splitlines()
     # AICPA table A-1 (recalled from memory): 59 items with 0% expected, 93 with 1%.
-    assert lines[1:] == [f"NT-{i},200,{'93,1' if i % 2 else '59,0'}," for i in range(7)]
+    assert lines[1:] == [f"NT-{i},200,{'93,1' if i % 2 else '59,0'},," for i in range(7)]
     status, out, _ = run(capsys, "sample-size", "--controls", str(path), "--json")
     assert [r["id"] for r in json.loads(out)["results"]] == [f"NT-{i}" for i in range(7)]
 
