@@ -15,6 +15,7 @@ import re
 import sys
 import textwrap
 from collections.abc import Mapping, Sequence
+from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any, NoReturn
 
@@ -315,7 +316,7 @@ def _run_controls(args: argparse.Namespace, shared: dict[str, Any]) -> int:
         raise UsageProblem(f"{args.controls}: {', '.join(twice)} is given both on the command "
                            "line and in the file; give each field in one place")
     items = controls.batch_operations(
-        [controls.Control(r.control_id, r.row, _merge(shared, r.request)) for r in rows],
+        [controls.Control(r.control_id, r.line, _merge(shared, r.request)) for r in rows],
         operation.name,
     )
     ids = [r.control_id for r in rows]
@@ -368,24 +369,51 @@ def _serve(args: argparse.Namespace) -> NoReturn:
 
 
 _ITEM_FIELD = re.compile(r"operations\[([0-9]+)\](?:\.request)?\.?(.*)")
+_ENTRY_FIELD = re.compile(r"(.*)\[([0-9]+)\](.*)")
 
 
-def _field_flag(field: str, specs: Sequence[flags.FieldSpec],
-                rows: Sequence[controls.Control] = ()) -> str:
+@dataclass(frozen=True)
+class Sources:
+    """The files a request was read from, so that a refusal names their own lines.
+
+    ``lists`` maps a list field (``population.items``) to the ``-file`` it was read from;
+    ``controls_file`` is the controls file and ``rows`` its controls, in batch order.
+    """
+
+    lists: Mapping[str, str] = field(default_factory=dict)
+    controls_file: str | None = None
+    rows: Sequence[controls.Control] = ()
+
+
+def sources(args: argparse.Namespace) -> Sources:
+    """Where the request of ``args`` came from (see :class:`Sources`)."""
+    lists = {spec.dotted: path for spec in getattr(args, "specs", ())
+             if (path := getattr(args, flags.file_dest(spec), None)) is not None}
+    return Sources(lists, getattr(args, "controls", None), getattr(args, "control_rows", ()))
+
+
+def _field_flag(name: str, specs: Sequence[flags.FieldSpec], where: Sources = Sources()) -> str:
     """``tolerable_rate`` → ``--tolerable-rate (tolerable_rate)``, when a flag sets it;
-    ``operations[3].id`` → ``row 5 (control 'NT-P2P-04'), id`` in a controls batch."""
-    item = _ITEM_FIELD.fullmatch(field) if rows else None
-    if item is not None and int(item.group(1)) < len(rows):
-        row = rows[int(item.group(1))]
-        return f"row {row.row} (control {row.control_id!r}), {item.group(2) or 'request'}"
+    ``population.items[4]`` → ``line 5 of items.txt (population.items[4])`` when the list
+    was read from that file; ``operations[3].id`` → ``line 5 of controls.csv (control
+    'NT-P2P-04'), id`` in a controls batch."""
+    item = _ITEM_FIELD.fullmatch(name) if where.rows else None
+    if item is not None and int(item.group(1)) < len(where.rows):
+        row = where.rows[int(item.group(1))]
+        return (f"line {row.line} of {where.controls_file} (control {row.control_id!r}), "
+                f"{item.group(2) or 'request'}")
+    entry = _ENTRY_FIELD.fullmatch(name)
+    if entry is not None and entry.group(1) in where.lists:
+        # file_lines keeps every line up to the last entry, so entry k is on line k + 1.
+        return f"line {int(entry.group(2)) + 1} of {where.lists[entry.group(1)]} ({name})"
     for spec in specs:
-        if field == spec.dotted or field.startswith((spec.dotted + "[", spec.dotted + ".")):
-            return f"{spec.flag} ({field})"
-    return field
+        if name == spec.dotted or name.startswith((spec.dotted + "[", spec.dotted + ".")):
+            return f"{spec.flag} ({name})"
+    return name
 
 
 def explain(error: ServiceError, specs: Sequence[flags.FieldSpec] = (),
-            rows: Sequence[controls.Control] = ()) -> list[str]:
+            where: Sources = Sources()) -> list[str]:
     """The lines printed for ``error``: what happened, each field, and what to do."""
     if isinstance(error, AuthenticationFailed):
         lines = [str(error)]
@@ -397,8 +425,8 @@ def explain(error: ServiceError, specs: Sequence[flags.FieldSpec] = (),
         if not error.errors:
             return [f"{head}: {error.detail}"]
         lines = [f"{head}:"]
-        for field, messages in error.errors.items():
-            lines.append(f"  {_field_flag(field, specs, rows)}: {' '.join(messages)}")
+        for name, messages in error.errors.items():
+            lines.append(f"  {_field_flag(name, specs, where)}: {' '.join(messages)}")
         if error.request_id:
             lines.append(f"  (request id {error.request_id})")
         return lines
@@ -435,8 +463,7 @@ def main(argv: Sequence[str] | None = None) -> int:
               file=sys.stderr)
         return EXIT_USAGE
     except ServiceError as error:
-        first, *rest = explain(error, getattr(args, "specs", ()),
-                               getattr(args, "control_rows", ()))
+        first, *rest = explain(error, getattr(args, "specs", ()), sources(args))
         print("\n".join([f"{PROG}: {first}", *rest]), file=sys.stderr)
         return exit_status(error)
     except BrokenPipeError:

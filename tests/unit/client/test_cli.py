@@ -122,6 +122,29 @@ def test_a_nested_field_is_named_by_its_flag(through_app: requests.Session,
     assert "--population-items (population.items" in err
 
 
+def test_a_refused_entry_of_an_items_file_is_named_by_its_line(
+    through_app: requests.Session, adapter: AppAdapter, tmp_path: Path,
+    capsys: pytest.CaptureFixture[bytes]
+) -> None:
+    # Harbour Lane Provisions Ltd (fictional) goods-received notes: a blank line between
+    # the second and the fourth note, and blank lines after the last one.
+    path = tmp_path / "grn.txt"
+    path.write_text("HLP-GRN-0001\nHLP-GRN-0002\n\nHLP-GRN-0004\n\n\n", encoding="utf-8")
+    status, out, err = run(capsys, "selection", "--items-file", str(path), "--sample-size", "2",
+                           "--seed", "hlp-2026-11")
+    assert (status, out) == (3, "")
+    # The service names the entry by its 0-based index; the file's own line is 1-based.
+    assert json.loads(adapter.sent[0].body or b"")["population"]["items"][2] == ""
+    assert f"  line 3 of {path} (population.items[2]): identifiers must not be empty" in err
+    assert "items[5]" not in err and "items[4]" not in err  # the trailing blanks were not sent
+
+    path.write_text("HLP-GRN-0001\nHLP-GRN-0002\nHLP-GRN-0004\n\n", encoding="utf-8")
+    status, out, _ = run(capsys, "selection", "--items-file", str(path), "--sample-size", "2",
+                         "--seed", "hlp-2026-11", "--json")
+    assert status == 0
+    assert json.loads(out)["population_size"] == 3
+
+
 def test_a_missing_required_field_is_the_services_message(
     through_app: requests.Session, capsys: pytest.CaptureFixture[bytes]
 ) -> None:
@@ -197,7 +220,7 @@ def test_a_bad_controls_file_sends_nothing_and_exits_2(
     path.write_text("control_id,tolerable_rate\nA,0.05\nB,5%\n")
     status, out, err = run(capsys, "sample-size", "--controls", str(path))
     assert (status, out) == (2, "")
-    assert f"{path}, row 3, column tolerable_rate: '5%' is not a number" in err
+    assert f"{path}, line 3, column tolerable_rate: '5%' is not a number" in err
     assert adapter.sent == []
 
 
@@ -211,7 +234,7 @@ def test_a_whole_batch_refusal_names_the_file_row(
     scripted(monkeypatch, (422, problem, None))
     status, _, err = run(capsys, "sample-size", "--controls", str(path))
     assert status == 3
-    assert "row 3 (control 'BBB" in err
+    assert f"line 3 of {path} (control 'BBB" in err
     assert "), id: must be from 1 to 200 characters" in err
 
 
