@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import csv
 import io
+import json
 import textwrap
 from collections.abc import Iterable, Mapping, Sequence
 from typing import Any
@@ -60,7 +61,8 @@ HEADLINES: dict[str, tuple[str, ...]] = {
                    "upper_deviation_limit", "conclusion"),
     "plan-curve": ("risk_of_overreliance", "risk_of_underreliance"),
     "estimation-sample-size": ("recommended",),
-    "selection": ("sample_size", "seed", "selection_fingerprint"),
+    "selection": ("population_size", "sample_size", "seed", "seed_generated",
+                  "selection_fingerprint"),
 }
 
 
@@ -278,12 +280,14 @@ def _notes(notes: Sequence[str]) -> list[str]:
 
 
 def controls_text(
-    ids: Sequence[str], operation: str, results: Sequence[Mapping[str, Any]]
+    ids: Sequence[str], operation: str, results: Sequence[Mapping[str, Any]],
+    items_file: str | None = None,
 ) -> str:
     """One row per control: its id, the operation's headline fields, or why it was refused.
 
     Every warning of every control is listed, numbered, under the table; the Warnings
-    column gives each row's note numbers.
+    column gives each row's note numbers. The selected items of selections follow the
+    table, or, when ``items_file`` is given, a line saying that they were written there.
     """
     columns = _columns(operation, results)
     rows, notes, refused = _rows(ids, results, columns)
@@ -295,10 +299,76 @@ def controls_text(
     warned = sum(1 for r in results if row_warnings(r))
     lines += ["", f"{done} of {len(results)} answered; {len(results) - done} refused; "
               f"{warned} with warnings."]
+    chosen = selected_items(ids, results)
+    if items_file is not None:
+        lines += ["", f"Selected items: {len(chosen):,} rows written to {items_file}."]
+    elif chosen:
+        lines += ["", *_items_paragraphs(ids, results)]
     if notes:
         lines += _notes(notes)
     lines += ["", *_paragraph(caution())]
     return "\n".join(lines) + "\n"
+
+
+def selected_items(ids: Sequence[str], results: Sequence[Mapping[str, Any]]
+                   ) -> list[tuple[str, int, Any, Any]]:
+    """``(control, draw, item, position)`` for every item the answered selections chose."""
+    rows: list[tuple[str, int, Any, Any]] = []
+    for control, answer in zip(ids, results, strict=True):
+        result = answer.get("result")
+        if not isinstance(result, Mapping):
+            continue
+        items, positions = result.get("items"), result.get("positions")
+        if not isinstance(items, list):
+            continue
+        if not (isinstance(positions, list) and len(positions) == len(items)):
+            positions = [None] * len(items)
+        rows += [(control, draw, item, position) for draw, (item, position)
+                 in enumerate(zip(items, positions, strict=True), 1)]
+    return rows
+
+
+def _item_text(item: Any) -> str:
+    # An identifier that holds a comma or starts or ends with a space is quoted, so that
+    # the comma-separated list still reads one way.
+    if isinstance(item, str) and ("," in item or item != item.strip() or not item):
+        return json.dumps(item, ensure_ascii=False)
+    return str(item)
+
+
+def _items_paragraphs(ids: Sequence[str], results: Sequence[Mapping[str, Any]]) -> list[str]:
+    lines = ["Selected items, in draw order:"]
+    for control, answer in zip(ids, results, strict=True):
+        result = answer.get("result")
+        items = result.get("items") if isinstance(result, Mapping) else None
+        if not isinstance(items, list):
+            continue
+        size = result.get("population_size") if isinstance(result, Mapping) else None
+        of = f" of {size:,}" if isinstance(size, int) else ""
+        text = f"{control} ({len(items):,}{of}): " + ", ".join(_item_text(i) for i in items)
+        lines += textwrap.wrap(text, WIDTH, subsequent_indent="    ", break_on_hyphens=False)
+    return lines
+
+
+#: The columns of the selected-items CSV of ``selection --controls --items-out``.
+ITEMS_COLUMNS = ("control_id", "draw", "item", "position")
+
+
+def selected_items_csv(ids: Sequence[str], results: Sequence[Mapping[str, Any]]) -> str:
+    """Every selected item, one row each: control id, draw (1 = first drawn), item, position.
+
+    Controls in the order of the file, each control's items in draw order; written as the
+    service writes its selection CSV (UTF-8 with a byte order mark, CRLF, RFC 4180, the
+    formula guard on text cells).
+    """
+    out = io.StringIO()
+    out.write("\ufeff")
+    writer = csv.writer(out, lineterminator="\r\n")
+    writer.writerow(ITEMS_COLUMNS)
+    writer.writerows((csv_cell(control), draw, csv_cell(item), "" if position is None
+                      else position)
+                     for control, draw, item, position in selected_items(ids, results))
+    return out.getvalue()
 
 
 def _columns(operation: str, results: Iterable[Mapping[str, Any]]) -> tuple[str, ...]:

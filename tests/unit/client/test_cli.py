@@ -2,8 +2,11 @@
 
 from __future__ import annotations
 
+import csv
+import io
 import json
 import os
+import re
 from pathlib import Path
 from typing import Any
 
@@ -441,3 +444,135 @@ def test_a_body_from_standard_input(through_app: requests.Session, adapter: AppA
     status, _, _ = run(capsys, "sample-size", "--body", "-", "--confidence", "0.95", "--json")
     assert status == 0
     assert json.loads(adapter.sent[0].body or b"") == {"tolerable_rate": 0.05, "confidence": 0.95}
+
+
+# Harbour Lane Provisions Ltd (fictional): three month-end selections, one without a seed.
+SELECTIONS = (
+    "control_id,population_size,sample_size,seed,method\n"
+    "HLP-BR-01,12,2,hlp-2026-11-bank,\n"
+    "HLP-GRN-02,400,5,,\n"
+    "HLP-INV-03,250,4,hlp-2026-11-inv,systematic\n"
+)
+
+
+def direct_selection(adapter: AppAdapter, size: int, n: int, seed: str,
+                     method: str = "random") -> dict[str, Any]:
+    answer = adapter.client.post("/v1/selection", json={
+        "population": {"size": size}, "sample_size": n, "seed": seed, "method": method})
+    assert answer.status_code == 200
+    document: dict[str, Any] = answer.get_json()
+    return document
+
+
+def generated_seeds(err: str) -> dict[str, str]:
+    found = re.findall(r"warning: control (\S+): no seed was given, so the service generated "
+                       r"(\"[^\"]*\"); record it", err)
+    return {control: json.loads(seed) for control, seed in found}
+
+
+def test_a_selection_file_writes_every_item_to_one_csv(
+    through_app: requests.Session, adapter: AppAdapter, tmp_path: Path,
+    capsys: pytest.CaptureFixture[bytes]
+) -> None:
+    path = tmp_path / "selections.csv"
+    path.write_text(SELECTIONS, encoding="utf-8")
+    out_file = tmp_path / "items.csv"
+    status, out, err = run(capsys, "selection", "--controls", str(path), "--items-out",
+                           str(out_file))
+    assert status == 0
+    seeds = generated_seeds(err)
+    assert list(seeds) == ["HLP-GRN-02"]
+    # Each control's rows against the same selection asked of the service on its own; the
+    # generated seed printed on standard error re-performs the selection.
+    expected = [("HLP-BR-01", direct_selection(adapter, 12, 2, "hlp-2026-11-bank")),
+                ("HLP-GRN-02", direct_selection(adapter, 400, 5, seeds["HLP-GRN-02"])),
+                ("HLP-INV-03", direct_selection(adapter, 250, 4, "hlp-2026-11-inv",
+                                                "systematic"))]
+    data = out_file.read_bytes()
+    assert data.startswith(b"\xef\xbb\xbfcontrol_id,draw,item,position\r\n")
+    assert data.count(b"\r\n") == 1 + 2 + 5 + 4
+    rows = list(csv.reader(io.StringIO(data.decode("utf-8-sig"), newline="")))
+    assert rows[1:] == [[control, str(draw), str(item), str(position)]
+                        for control, chosen in expected
+                        for draw, (item, position) in enumerate(
+                            zip(chosen["items"], chosen["positions"], strict=True), 1)]
+    assert f"Selected items: 11 rows written to {out_file}." in out
+    generated = out.splitlines()[3].split()
+    assert generated[0] == "HLP-GRN-02"
+    assert seeds["HLP-GRN-02"] in generated and "yes" in generated
+
+
+def test_a_selection_file_lists_the_items_under_the_table(
+    through_app: requests.Session, adapter: AppAdapter, tmp_path: Path,
+    capsys: pytest.CaptureFixture[bytes]
+) -> None:
+    path = tmp_path / "selections.csv"
+    path.write_text(SELECTIONS, encoding="utf-8")
+    status, out, err = run(capsys, "selection", "--controls", str(path))
+    assert status == 0
+    bank = direct_selection(adapter, 12, 2, "hlp-2026-11-bank")
+    listed = out[out.index("Selected items, in draw order:\n"):]
+    assert f"HLP-BR-01 (2 of 12): {', '.join(map(str, bank['items']))}\n" in listed
+    seed = generated_seeds(err)["HLP-GRN-02"]
+    grn = direct_selection(adapter, 400, 5, seed)
+    assert f"HLP-GRN-02 (5 of 400): {', '.join(map(str, grn['items']))}\n" in listed
+    # The control with the generated seed carries the service's warning, numbered.
+    row = out.splitlines()[3].split()
+    assert (row[0], row[-1]) == ("HLP-GRN-02", "[1]")
+    assert seed in row
+    assert "\nWarnings:\n[1] HLP-GRN-02: " in out
+
+
+def test_a_blank_seed_is_reported_on_every_run_and_kept_in_the_rows(
+    through_app: requests.Session, tmp_path: Path, capsys: pytest.CaptureFixture[bytes]
+) -> None:
+    path = tmp_path / "selections.csv"
+    path.write_text(SELECTIONS, encoding="utf-8")
+    first = run(capsys, "selection", "--controls", str(path), "--csv")
+    second = run(capsys, "selection", "--controls", str(path), "--json")
+    seeds = [generated_seeds(err)["HLP-GRN-02"] for _, _, err in (first, second)]
+    assert seeds[0] != seeds[1]  # a new seed each run, and each one said
+    rows = {row["control_id"]: row for row in csv.DictReader(
+        io.StringIO(first[1].removeprefix("\ufeff")))}
+    assert (rows["HLP-GRN-02"]["seed"], rows["HLP-GRN-02"]["seed_generated"]) == (seeds[0],
+                                                                                  "true")
+    assert rows["HLP-BR-01"]["seed_generated"] == "false"
+    assert "--items-out FILE writes them" in first[2]
+    answers = {r["id"]: r["result"] for r in json.loads(second[1])["results"]}
+    assert answers["HLP-GRN-02"]["seed"] == seeds[1]
+
+
+def test_items_out_is_refused_before_anything_is_sent(
+    through_app: requests.Session, adapter: AppAdapter, tmp_path: Path,
+    capsys: pytest.CaptureFixture[bytes]
+) -> None:
+    path = tmp_path / "selections.csv"
+    path.write_text(SELECTIONS, encoding="utf-8")
+    status, _, err = run(capsys, "selection", "--controls", str(path), "--items-out",
+                         str(tmp_path / "no-such-folder" / "items.csv"))
+    assert status == 2
+    assert "--items-out" in err and "no such folder" in err
+    status, _, err = run(capsys, "selection", "--controls", str(path), "--items-out",
+                         str(tmp_path))
+    assert status == 2
+    assert "is a folder" in err
+    status, _, err = run(capsys, "selection", "--population-size", "12", "--sample-size", "2",
+                         "--items-out", str(tmp_path / "items.csv"))
+    assert status == 2
+    assert "--items-out needs --controls" in err
+    assert adapter.sent == []
+    assert list(tmp_path.iterdir()) == [path]
+
+
+def test_a_single_selection_as_csv_without_a_seed_says_so(
+    through_app: requests.Session, capsys: pytest.CaptureFixture[bytes]
+) -> None:
+    status, out, err = run(capsys, "selection", "--population-size", "12", "--sample-size", "2",
+                           "--csv")
+    assert status == 0
+    assert out.startswith("\ufeffdraw,item,position\r\n")
+    assert "warning: no --seed given" in err
+    status, _, err = run(capsys, "selection", "--population-size", "12", "--sample-size", "2",
+                         "--seed", "hlp-2026-11-bank", "--csv")
+    assert status == 0
+    assert "warning" not in err

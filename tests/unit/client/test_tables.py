@@ -211,3 +211,23 @@ def test_a_generic_batch_table() -> None:
     assert lines[2].split() == ["a", "sample-size", "200", "Sample", "size", "59;", "Allowed",
                                 "deviations", "0"]
     assert lines[3].split() == ["b", "new-thing", "200", "Score", "3"]
+
+
+def test_selected_items_of_identifier_populations(client: FlaskClient) -> None:
+    # Harbour Lane Provisions Ltd (fictional) credit notes, one that a spreadsheet would
+    # run as a formula and one holding a comma.
+    notes = ["HLP-CN-1", "=HLP-CN-2", "HLP-CN,3", "HLP-CN-4"]
+    chosen = answer(client, "/v1/selection", {"population": {"items": notes},
+                                              "sample_size": 4, "seed": "hlp-2026-11-cn"})
+    results = [{"id": "HLP-CN", "status": 200, "result": chosen},
+               {"id": "HLP-X", "status": 422, "problem": {"title": "Invalid input"}}]
+    text = tables.selected_items_csv(["HLP-CN", "HLP-X"], results)
+    rows = list(csv.reader(io.StringIO(text.removeprefix("\ufeff"), newline="")))
+    assert rows[0] == list(tables.ITEMS_COLUMNS)
+    guarded = ["'" + item if item.startswith("=") else item for item in chosen["items"]]
+    assert rows[1:] == [["HLP-CN", str(draw), item, str(position)] for draw, (item, position)
+                        in enumerate(zip(guarded, chosen["positions"], strict=True), 1)]
+    listing = tables.controls_text(["HLP-CN", "HLP-X"], "selection", results)
+    shown = [item if item != "HLP-CN,3" else '"HLP-CN,3"' for item in chosen["items"]]
+    assert f"HLP-CN (4 of 4): {', '.join(shown)}\n" in listing
+    assert "HLP-X (" not in listing
