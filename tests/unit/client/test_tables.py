@@ -6,6 +6,7 @@ import csv
 import io
 from typing import Any
 
+import pytest
 from flask.testing import FlaskClient
 
 from sampling_client import tables
@@ -231,3 +232,22 @@ def test_selected_items_of_identifier_populations(client: FlaskClient) -> None:
     shown = [item if item != "HLP-CN,3" else '"HLP-CN,3"' for item in chosen["items"]]
     assert f"HLP-CN (4 of 4): {', '.join(shown)}\n" in listing
     assert "HLP-X (" not in listing
+
+
+@pytest.mark.parametrize(("interval", "sampling"), [
+    ("interval", "interval"),  # the names of services before the rename
+    ("confidence_interval", "sampling_interval"),
+])
+def test_interval_fields_read_under_either_name(interval: str, sampling: str) -> None:
+    evaluation = {"sample_size": 93, "deviations": 1,
+                  interval: {"low": 0.00047619, "high": 0.0578571}}
+    lines = tables.document_text("Evaluation", evaluation).splitlines()
+    words = "Confidence interval" if interval == "confidence_interval" else "Interval"
+    assert f"{words}, lower bound" in " ".join(lines)
+    assert any(line.split()[-1] == "0.047619%" for line in lines if "lower bound" in line)
+    chosen = {"sample_size": 60, sampling: 70.01666, f"{sampling}_exact": "4201/60"}
+    text = tables.document_text("Selection", chosen)
+    label = tables.label(sampling)
+    assert any(line.startswith(label) and line.split()[-1] == "70.0167"
+               for line in text.splitlines())
+    assert f"{tables.label(sampling + '_exact')}" in text
