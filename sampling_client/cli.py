@@ -472,6 +472,8 @@ def _field_flag(name: str, specs: Sequence[flags.FieldSpec], where: Sources = So
         row = where.rows[int(item.group(1))]
         return (f"line {row.line} of {where.controls_file} (control {row.control_id!r}), "
                 f"{item.group(2) or 'request'}")
+    if name in where.lists:
+        return f"{where.lists[name]} ({name})"
     entry = _ENTRY_FIELD.fullmatch(name)
     if entry is not None and entry.group(1) in where.lists:
         # file_lines keeps every line up to the last entry, so entry k is on line k + 1.
@@ -480,6 +482,29 @@ def _field_flag(name: str, specs: Sequence[flags.FieldSpec], where: Sources = So
         if name == spec.dotted or name.startswith((spec.dotted + "[", spec.dotted + ".")):
             return f"{spec.flag} ({name})"
     return name
+
+
+#: At most this many repeated entries of a list file are named, with their lines.
+SHOWN_REPEATS = 5
+
+
+def repeated_lines(path: str) -> list[str]:
+    """Each entry that a list file holds more than once, with the file's lines it is on."""
+    try:
+        entries = flags.file_lines(path)
+    except flags.ValueProblem:
+        return []  # read once already; a file changed since is not worth a second error
+    where: dict[str, list[int]] = {}
+    for number, entry in enumerate(entries, 1):
+        where.setdefault(entry, []).append(number)
+    repeated = [(entry, lines) for entry, lines in where.items() if len(lines) > 1]
+    texts = []
+    for entry, lines in repeated[:SHOWN_REPEATS]:
+        numbers = ", ".join(map(str, lines[:-1])) + f" and {lines[-1]}"
+        texts.append(f"{entry!r} is on lines {numbers}")
+    if len(repeated) > SHOWN_REPEATS:
+        texts.append(f"and {len(repeated) - SHOWN_REPEATS:,} more entries are repeated")
+    return texts
 
 
 def explain(error: ServiceError, specs: Sequence[flags.FieldSpec] = (),
@@ -497,6 +522,8 @@ def explain(error: ServiceError, specs: Sequence[flags.FieldSpec] = (),
         lines = [f"{head}:"]
         for name, messages in error.errors.items():
             lines.append(f"  {_field_flag(name, specs, where)}: {' '.join(messages)}")
+            if name in where.lists:
+                lines += [f"    {text}" for text in repeated_lines(where.lists[name])]
         if error.request_id:
             lines.append(f"  (request id {error.request_id})")
         return lines

@@ -148,6 +148,22 @@ def test_a_refused_entry_of_an_items_file_is_named_by_its_line(
     assert json.loads(out)["population_size"] == 3
 
 
+def test_repeated_entries_of_an_items_file_are_named_by_their_lines(
+    through_app: requests.Session, tmp_path: Path, capsys: pytest.CaptureFixture[bytes]
+) -> None:
+    # Harbour Lane Provisions Ltd (fictional) invoices, two of them listed twice.
+    path = tmp_path / "invoices.txt"
+    path.write_text("HLP-INV-7\nHLP-INV-8\nHLP-INV-7\nHLP-INV-9\nHLP-INV-8\nHLP-INV-7\n\n",
+                    encoding="utf-8")
+    status, _, err = run(capsys, "selection", "--items-file", str(path), "--sample-size", "2",
+                         "--seed", "hlp-2026-11-inv")
+    assert status == 3
+    lines = err.splitlines()
+    (at,) = [k for k, line in enumerate(lines) if line.startswith(f"  {path} (population.items)")]
+    assert lines[at + 1:at + 3] == ["    'HLP-INV-7' is on lines 1, 3 and 6",
+                                    "    'HLP-INV-8' is on lines 2 and 5"]
+
+
 def test_a_missing_required_field_is_the_services_message(
     through_app: requests.Session, capsys: pytest.CaptureFixture[bytes]
 ) -> None:
