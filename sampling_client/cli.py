@@ -161,7 +161,7 @@ def _add_operation(subparsers: Any, operation: Any, common: argparse.ArgumentPar
             f"{api.MAX_BATCH_OPERATIONS:,}): a CSV file whose header names {controls.ID_COLUMN} "
             f"and any of {columns}. Numbers are plain decimals (0.05, not 5%% or 0,05); a "
             "blank cell leaves the field to the service's default; flags given apply to "
-            "every row. Prints one row per control.",
+            "every row. Prints one row per control, its warnings numbered under the table.",
         )
     if operation.name == "selection":
         parser.add_argument(

@@ -592,3 +592,14 @@ def test_a_single_selection_as_csv_without_a_seed_says_so(
                          "--seed", "hlp-2026-11-bank", "--csv")
     assert status == 0
     assert "warning" not in err
+
+
+def test_the_selection_help_documents_the_items_file(
+    capsys: pytest.CaptureFixture[bytes]
+) -> None:
+    with pytest.raises(SystemExit):
+        cli.main(["selection", "--help"])
+    text = " ".join(capsys.readouterr().out.decode().split())
+    assert "--items-out FILE with --controls: write every selected item to FILE as one CSV " \
+        "of control_id,draw,item,position" in text
+    assert "prints it on standard error with the warning to record it" in text
