@@ -5,7 +5,7 @@ Its first row names the columns: ``control_id`` and the request fields of the op
 a nested field by its flag name with underscores (``population_size`` for
 ``population.size``). Each later row is one control; fully blank rows are skipped.
 
-Nothing is sent unless the whole file reads cleanly. A file is refused, naming the row
+Nothing is sent unless the whole file reads cleanly. A file is refused, naming the line
 and the column, when a column is unknown or missing, a control id is blank or repeated, a
 required cell is blank, or a number cell is not a plain decimal: ``0.05`` and ``4200``
 are numbers; ``5%``, ``0,05``, ``1e-2`` and ``4,200`` are not. A blank optional cell
@@ -16,6 +16,7 @@ from __future__ import annotations
 
 import csv
 import re
+from collections.abc import Iterable
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
@@ -29,14 +30,18 @@ _DECIMAL = re.compile(r"-?[0-9]+(\.[0-9]+)?")
 
 
 class ControlsFileError(ValueError):
-    """The controls file cannot be sent; the message names the file, row and column."""
+    """The controls file cannot be sent; the message names the file, line and column.
 
-    def __init__(self, path: str, message: str, row: int | None = None,
+    ``line`` is the file's own line number, 1-based: where the row starts, so a quoted cell
+    that holds a line break does not shift the rows after it.
+    """
+
+    def __init__(self, path: str, message: str, line: int | None = None,
                  column: str | None = None) -> None:
-        self.path, self.row, self.column = path, row, column
+        self.path, self.line, self.column = path, line, column
         where = path
-        if row is not None:
-            where += f", row {row}"
+        if line is not None:
+            where += f", line {line}"
         if column is not None:
             where += f", column {column}"
         super().__init__(f"{where}: {message}")
@@ -44,10 +49,10 @@ class ControlsFileError(ValueError):
 
 @dataclass(frozen=True)
 class Control:
-    """One row of the file: the control's id, its row number (header = 1), its request."""
+    """One row of the file: the control's id, the file line it starts on, its request."""
 
     control_id: str
-    row: int
+    line: int
     request: dict[str, Any]
 
 
@@ -90,12 +95,12 @@ def _header(path: str, header: list[str], specs: list[FieldSpec]) -> list[FieldS
     known = column_specs(specs)
     if len(names) == 1 and ";" in names[0]:
         raise ControlsFileError(path, "the header has one column holding semicolons; "
-                                "separate the columns with commas", row=1)
+                                "separate the columns with commas", line=1)
     for index, name in enumerate(names):
         if names.index(name) != index:
-            raise ControlsFileError(path, "appears twice in the header", row=1, column=name)
+            raise ControlsFileError(path, "appears twice in the header", line=1, column=name)
     if ID_COLUMN not in names:
-        raise ControlsFileError(path, f"the header has no {ID_COLUMN} column", row=1)
+        raise ControlsFileError(path, f"the header has no {ID_COLUMN} column", line=1)
     columns: list[FieldSpec | None] = []
     for name in names:
         if name == ID_COLUMN:
@@ -107,12 +112,12 @@ def _header(path: str, header: list[str], specs: list[FieldSpec]) -> list[FieldS
             why = ("is a list field, which a controls file cannot carry" if name in listed
                    else f"is not a request field; the columns are {ID_COLUMN}, "
                    + ", ".join(known))
-            raise ControlsFileError(path, why, row=1, column=name or "(blank)")
+            raise ControlsFileError(path, why, line=1, column=name or "(blank)")
         columns.append(spec)
     for spec in known.values():
         if spec.required and len(spec.path) == 1 and spec.name not in names:
             raise ControlsFileError(path, f"the header has no {spec.name} column, which is "
-                                    "required", row=1)
+                                    "required", line=1)
     return columns
 
 
@@ -120,10 +125,10 @@ def _row(path: str, number: int, cells: list[str],
          columns: list[FieldSpec | None]) -> Control:
     if len(cells) != len(columns):
         raise ControlsFileError(path, f"has {len(cells)} cells; the header has {len(columns)}",
-                                row=number)
+                                line=number)
     control_id = cells[columns.index(None)]
     if not control_id.strip():
-        raise ControlsFileError(path, "is blank; every control needs an id", row=number,
+        raise ControlsFileError(path, "is blank; every control needs an id", line=number,
                                 column=ID_COLUMN)
     request: dict[str, Any] = {}
     filled: set[tuple[str, ...]] = set()
@@ -133,14 +138,14 @@ def _row(path: str, number: int, cells: list[str],
         try:
             put(request, spec.path, _cell(spec, text))
         except ValueError as problem:
-            raise ControlsFileError(path, str(problem), row=number, column=spec.name) from None
+            raise ControlsFileError(path, str(problem), line=number, column=spec.name) from None
         filled.add(spec.path[:-1])
     for spec in columns:
         if spec is None or not spec.required:
             continue
         # A required field of a nested object is required only when the object is given.
         if (len(spec.path) == 1 or spec.path[:-1] in filled) and not _has(request, spec.path):
-            raise ControlsFileError(path, f"is blank, but {spec.dotted} is required", row=number,
+            raise ControlsFileError(path, f"is blank, but {spec.dotted} is required", line=number,
                                     column=spec.name)
     return Control(control_id, number, request)
 
@@ -154,11 +159,22 @@ def _has(body: dict[str, Any], path: tuple[str, ...]) -> bool:
     return True
 
 
+def _numbered_rows(lines: Iterable[str]) -> list[tuple[int, list[str]]]:
+    """Each CSV row with the file line it starts on (1-based; a blank line is a row)."""
+    reader = csv.reader(lines, strict=True)
+    rows: list[tuple[int, list[str]]] = []
+    start = 1
+    for cells in reader:
+        rows.append((start, cells))
+        start = reader.line_num + 1
+    return rows
+
+
 def read_controls(path: str, specs: list[FieldSpec]) -> list[Control]:
     """Every control of the file at ``path``, or :class:`ControlsFileError`."""
     try:
         with Path(path).open(encoding="utf-8-sig", newline="") as handle:
-            rows = list(csv.reader(handle, strict=True))
+            rows = _numbered_rows(handle)
     except FileNotFoundError:
         raise ControlsFileError(path, "no such file") from None
     except UnicodeDecodeError as exc:
@@ -169,17 +185,17 @@ def read_controls(path: str, specs: list[FieldSpec]) -> list[Control]:
         raise ControlsFileError(path, str(exc.strerror)) from None
     if not rows:
         raise ControlsFileError(path, "is empty; its first row must name the columns")
-    columns = _header(path, rows[0], specs)
+    columns = _header(path, rows[0][1], specs)
     controls: list[Control] = []
     first_row: dict[str, int] = {}
-    for number, cells in enumerate(rows[1:], start=2):
+    for number, cells in rows[1:]:
         if not any(cell.strip() for cell in cells):
             continue
         control = _row(path, number, cells, columns)
         if control.control_id in first_row:
             raise ControlsFileError(
-                path, f"repeats the control id {control.control_id!r} of row "
-                f"{first_row[control.control_id]}", row=number, column=ID_COLUMN)
+                path, f"repeats the control id {control.control_id!r} of line "
+                f"{first_row[control.control_id]}", line=number, column=ID_COLUMN)
         first_row[control.control_id] = number
         controls.append(control)
     if not controls:

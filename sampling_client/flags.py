@@ -235,14 +235,14 @@ def strict_json(text: str) -> Any:
 def file_lines(path: str) -> list[str]:
     """The lines of a UTF-8 text file, without their line ends, a leading BOM dropped.
 
-    Entries are taken exactly as written otherwise: no trimming, and a blank line in the
-    middle is an (empty) entry for the service to judge.
+    Blank lines (empty or only white space) at the end of the file are left out. Entries
+    are taken exactly as written otherwise: no trimming, and a blank line in the middle is
+    an (empty) entry for the service to judge, so entry k is always on line k + 1.
     """
-    text = _read_text(path)
-    lines = text.split("\n")
-    if lines and lines[-1] == "":
-        lines.pop()  # the line end of the last line
-    return [line.removesuffix("\r") for line in lines]
+    lines = [line.removesuffix("\r") for line in _read_text(path).split("\n")]
+    while lines and not lines[-1].strip():
+        lines.pop()
+    return lines
 
 
 def _read_text(path: str) -> str:

@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import csv
 import io
+import json
 import textwrap
 from collections.abc import Iterable, Mapping, Sequence
 from typing import Any
@@ -35,7 +36,8 @@ def csv_cell(item: int | str) -> int | str:
 # Fields that are not shown in the table: links and ready-made bodies are for programs.
 _NOT_SHOWN = frozenset({"summary", "warnings", "links", "curve_request"})
 
-# Labels where turning the name into words would not read well.
+# Labels where turning the name into words would not read well. An evaluation's two-sided
+# interval is ``confidence_interval`` (``interval`` on services before the rename).
 _LABELS = {
     "interval.low": "Interval, lower bound",
     "interval.high": "Interval, upper bound",
@@ -55,10 +57,12 @@ _RATE_NAMES = frozenset({
 #: The columns of a controls batch, by operation, after the control id.
 HEADLINES: dict[str, tuple[str, ...]] = {
     "sample-size": ("sample_size", "allowed_deviations"),
-    "evaluation": ("sample_deviation_rate", "upper_deviation_limit", "conclusion"),
+    "evaluation": ("sample_size", "deviations", "sample_deviation_rate",
+                   "upper_deviation_limit", "conclusion"),
     "plan-curve": ("risk_of_overreliance", "risk_of_underreliance"),
     "estimation-sample-size": ("recommended",),
-    "selection": ("sample_size", "seed", "selection_fingerprint"),
+    "selection": ("population_size", "sample_size", "seed", "seed_generated",
+                  "selection_fingerprint"),
 }
 
 
@@ -230,40 +234,141 @@ def headline(operation: str, result: Mapping[str, Any]) -> tuple[str, ...]:
                  if k not in _NOT_SHOWN and not isinstance(v, Mapping | list))
 
 
-def _rows(ids: Sequence[str], operation: str, results: Sequence[Mapping[str, Any]],
-          columns: Sequence[str]) -> tuple[list[list[str]], bool]:
+#: How the warnings of one control are joined in the ``warnings`` cell of the controls CSV.
+WARNING_SEPARATOR = " | "
+
+
+def row_warnings(answer: Mapping[str, Any]) -> list[str]:
+    """The warnings of one batch answer (none for a refused item)."""
+    result = answer.get("result")
+    warnings = result.get("warnings") if isinstance(result, Mapping) else None
+    return [str(w) for w in warnings] if isinstance(warnings, list) else []
+
+
+def _rows(ids: Sequence[str], results: Sequence[Mapping[str, Any]],
+          columns: Sequence[str]) -> tuple[list[list[str]], list[str], bool]:
+    """One row per control (its cells, note numbers, problem), the notes, whether refused."""
     rows: list[list[str]] = []
+    notes: list[str] = []
     refused = False
     for index, (control, answer) in enumerate(zip(ids, results, strict=True)):
         result = answer.get("result")
+        numbers = []
+        for warning in row_warnings(answer):
+            notes.append(f"{control}: {warning}")
+            numbers.append(f"[{len(notes)}]")
         if isinstance(result, Mapping):
             cells = [value_text(c, result.get(c)) for c in columns]
-            rows.append([control, *cells, ""])
+            rows.append([control, *cells, " ".join(numbers), ""])
         else:
             refused = True
             problem = answer.get("problem") or {}
-            rows.append([control, *([""] * len(columns)),
+            rows.append([control, *([""] * len(columns)), "",
                          f"refused (HTTP {answer.get('status')}): "
                          + problem_text(problem, _item_prefix(index))])
-    return rows, refused
+    return rows, notes, refused
+
+
+def _notes(notes: Sequence[str]) -> list[str]:
+    """The numbered warnings under a controls table, each wrapped under its number."""
+    lines = ["", "Warnings:"]
+    width = len(f"[{len(notes)}] ")
+    for number, note in enumerate(notes, 1):
+        lines += textwrap.wrap(note, WIDTH, initial_indent=f"[{number}] ".ljust(width),
+                               subsequent_indent=" " * width)
+    return lines
 
 
 def controls_text(
-    ids: Sequence[str], operation: str, results: Sequence[Mapping[str, Any]]
+    ids: Sequence[str], operation: str, results: Sequence[Mapping[str, Any]],
+    items_file: str | None = None,
 ) -> str:
-    """One row per control: its id, the operation's headline fields, or why it was refused."""
+    """One row per control: its id, the operation's headline fields, or why it was refused.
+
+    Every warning of every control is listed, numbered, under the table; the Warnings
+    column gives each row's note numbers. The selected items of selections follow the
+    table, or, when ``items_file`` is given, a line saying that they were written there.
+    """
     columns = _columns(operation, results)
-    rows, refused = _rows(ids, operation, results, columns)
-    header = ["Control", *(label(c) for c in columns)]
-    if refused:
-        header.append("Problem")
-    else:
-        rows = [row[:-1] for row in rows]
-    lines = aligned(rows, header)
+    rows, notes, refused = _rows(ids, results, columns)
+    header = ["Control", *(label(c) for c in columns), "Warnings", "Problem"]
+    keep = [True] * (len(header) - 2) + [bool(notes), refused]
+    lines = aligned([[c for c, k in zip(row, keep, strict=True) if k] for row in rows],
+                    [c for c, k in zip(header, keep, strict=True) if k])
     done = sum(1 for r in results if isinstance(r.get("result"), Mapping))
-    lines += ["", f"{done} of {len(results)} answered; {len(results) - done} refused.",
-              "", *_paragraph(caution())]
+    warned = sum(1 for r in results if row_warnings(r))
+    lines += ["", f"{done} of {len(results)} answered; {len(results) - done} refused; "
+              f"{warned} with warnings."]
+    chosen = selected_items(ids, results)
+    if items_file is not None:
+        lines += ["", f"Selected items: {len(chosen):,} rows written to {items_file}."]
+    elif chosen:
+        lines += ["", *_items_paragraphs(ids, results)]
+    if notes:
+        lines += _notes(notes)
+    lines += ["", *_paragraph(caution())]
     return "\n".join(lines) + "\n"
+
+
+def selected_items(ids: Sequence[str], results: Sequence[Mapping[str, Any]]
+                   ) -> list[tuple[str, int, Any, Any]]:
+    """``(control, draw, item, position)`` for every item the answered selections chose."""
+    rows: list[tuple[str, int, Any, Any]] = []
+    for control, answer in zip(ids, results, strict=True):
+        result = answer.get("result")
+        if not isinstance(result, Mapping):
+            continue
+        items, positions = result.get("items"), result.get("positions")
+        if not isinstance(items, list):
+            continue
+        if not (isinstance(positions, list) and len(positions) == len(items)):
+            positions = [None] * len(items)
+        rows += [(control, draw, item, position) for draw, (item, position)
+                 in enumerate(zip(items, positions, strict=True), 1)]
+    return rows
+
+
+def _item_text(item: Any) -> str:
+    # An identifier that holds a comma or starts or ends with a space is quoted, so that
+    # the comma-separated list still reads one way.
+    if isinstance(item, str) and ("," in item or item != item.strip() or not item):
+        return json.dumps(item, ensure_ascii=False)
+    return str(item)
+
+
+def _items_paragraphs(ids: Sequence[str], results: Sequence[Mapping[str, Any]]) -> list[str]:
+    lines = ["Selected items, in draw order:"]
+    for control, answer in zip(ids, results, strict=True):
+        result = answer.get("result")
+        items = result.get("items") if isinstance(result, Mapping) else None
+        if not isinstance(items, list):
+            continue
+        size = result.get("population_size") if isinstance(result, Mapping) else None
+        of = f" of {size:,}" if isinstance(size, int) else ""
+        text = f"{control} ({len(items):,}{of}): " + ", ".join(_item_text(i) for i in items)
+        lines += textwrap.wrap(text, WIDTH, subsequent_indent="    ", break_on_hyphens=False)
+    return lines
+
+
+#: The columns of the selected-items CSV of ``selection --controls --items-out``.
+ITEMS_COLUMNS = ("control_id", "draw", "item", "position")
+
+
+def selected_items_csv(ids: Sequence[str], results: Sequence[Mapping[str, Any]]) -> str:
+    """Every selected item, one row each: control id, draw (1 = first drawn), item, position.
+
+    Controls in the order of the file, each control's items in draw order; written as the
+    service writes its selection CSV (UTF-8 with a byte order mark, CRLF, RFC 4180, the
+    formula guard on text cells).
+    """
+    out = io.StringIO()
+    out.write("\ufeff")
+    writer = csv.writer(out, lineterminator="\r\n")
+    writer.writerow(ITEMS_COLUMNS)
+    writer.writerows((csv_cell(control), draw, csv_cell(item), "" if position is None
+                      else position)
+                     for control, draw, item, position in selected_items(ids, results))
+    return out.getvalue()
 
 
 def _columns(operation: str, results: Iterable[Mapping[str, Any]]) -> tuple[str, ...]:
@@ -280,13 +385,14 @@ def controls_csv(
     """The same rows as CSV, as the service writes its own (UTF-8 BOM, CRLF, RFC 4180).
 
     Numbers are written exactly as the service gave them; a text cell that a spreadsheet
-    would run as a formula is guarded as in the selection CSV.
+    would run as a formula is guarded as in the selection CSV. The ``warnings`` cell holds
+    every warning of the row, in the service's order, joined by :data:`WARNING_SEPARATOR`.
     """
     columns = _columns(operation, results)
     out = io.StringIO()
     out.write("\ufeff")
     writer = csv.writer(out, lineterminator="\r\n")
-    writer.writerow(("control_id", "status", *columns, "problem"))
+    writer.writerow(("control_id", "status", *columns, "warnings", "problem"))
     for index, (control, answer) in enumerate(zip(ids, results, strict=True)):
         result = answer.get("result")
         if isinstance(result, Mapping):
@@ -295,7 +401,9 @@ def controls_csv(
         else:
             cells = [""] * len(columns)
             problem = problem_text(answer.get("problem") or {}, _item_prefix(index))
-        writer.writerow((csv_cell(control), answer.get("status"), *cells, csv_cell(problem)))
+        warnings = WARNING_SEPARATOR.join(row_warnings(answer))
+        writer.writerow((csv_cell(control), answer.get("status"), *cells, csv_cell(warnings),
+                         csv_cell(problem)))
     return out.getvalue()
 
 

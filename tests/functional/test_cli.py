@@ -4,7 +4,9 @@ from __future__ import annotations
 
 import csv
 import io
+import json
 import os
+import re
 import signal
 import subprocess
 import sys
@@ -33,7 +35,20 @@ def url(tmp_path_factory: pytest.TempPathFactory) -> Iterator[str]:
         yield server.url
 
 
-def commands(down_url: str) -> dict[str, list[str]]:
+# Harbour Lane Provisions Ltd (fictional): month-end selections, one without a seed.
+SELECTIONS = ("control_id,population_size,sample_size,seed\n"
+              "HLP-BR-01,12,2,hlp-2026-11-bank\n"
+              "HLP-GRN-02,400,5,\n")
+
+
+@pytest.fixture(scope="module")
+def work(tmp_path_factory: pytest.TempPathFactory) -> Path:
+    folder = tmp_path_factory.mktemp("cli-files")
+    (folder / "selections.csv").write_text(SELECTIONS, encoding="utf-8")
+    return folder
+
+
+def commands(down_url: str, work: Path) -> dict[str, list[str]]:
     """The command lines this module checks, by name."""
     return {
         "table": ["sample-size", "--tolerable-rate", "0.05", "--expected-rate", "0.01",
@@ -50,6 +65,8 @@ def commands(down_url: str) -> dict[str, list[str]]:
         "unreachable": ["sample-size", "--tolerable-rate", "0.05", "--retries", "0",
                         "--url", down_url],
         "usage": ["sample-size", "--tolerable-rate", "5%"],
+        "selections": ["selection", "--controls", str(work / "selections.csv"), "--items-out",
+                       str(work / "items.csv"), "--csv"],
     }
 
 
@@ -59,7 +76,7 @@ def down_url() -> str:
 
 
 @pytest.fixture(scope="module")
-def runs(url: str, down_url: str) -> dict[str, subprocess.CompletedProcess[bytes]]:
+def runs(url: str, down_url: str, work: Path) -> dict[str, subprocess.CompletedProcess[bytes]]:
     """Every command of this module, run as a program, all started at once.
 
     Each run loads the service's schemas before it sends anything (a couple of seconds of
@@ -70,7 +87,7 @@ def runs(url: str, down_url: str) -> dict[str, subprocess.CompletedProcess[bytes
     started = {
         name: (argv, subprocess.Popen([str(CLI), *argv], env=env, cwd=ROOT,
                                       stdout=subprocess.PIPE, stderr=subprocess.PIPE))
-        for name, argv in commands(down_url).items()
+        for name, argv in commands(down_url, work).items()
     }
     done = {}
     for name, (argv, process) in started.items():
@@ -129,7 +146,8 @@ def test_the_month_end_batch_of_forty_controls(runs: Runs) -> None:
     done = runs["month_end_csv"]
     assert done.returncode == 0, done.stderr
     text = done.stdout.decode("utf-8")
-    assert text.startswith("\ufeffcontrol_id,status,sample_size,allowed_deviations,problem\r\n")
+    assert text.startswith(
+        "\ufeffcontrol_id,status,sample_size,allowed_deviations,warnings,problem\r\n")
     answers = list(csv.DictReader(io.StringIO(text.removeprefix("\ufeff"))))
     with EXAMPLE.open(encoding="utf-8", newline="") as handle:
         controls = list(csv.DictReader(handle))
@@ -147,6 +165,49 @@ def test_the_month_end_batch_of_forty_controls(runs: Runs) -> None:
         )
         assert (int(answer["sample_size"]), int(answer["allowed_deviations"])) == (
             plan.sample_size, plan.allowed_deviations), control["control_id"]
+
+
+def test_the_month_end_rows_carry_the_services_warnings(runs: Runs, url: str) -> None:
+    text = runs["month_end_csv"].stdout.decode("utf-8")
+    answers = list(csv.DictReader(io.StringIO(text.removeprefix("\ufeff"))))
+    with EXAMPLE.open(encoding="utf-8", newline="") as handle:
+        operations = [{"id": row.pop("control_id"), "operation": "sample-size", "request": {
+            "tolerable_rate": float(row["tolerable_rate"]),
+            "expected_rate": float(row["expected_rate"]),
+            "confidence": float(row["confidence"]),
+            **({"population": {"size": int(row["population_size"]),
+                               "label": row["population_label"]}}
+               if row["population_size"] else {}),
+            **({"method": row["method"]} if row["method"] else {})}}
+            for row in csv.DictReader(handle)]
+    direct = requests.post(f"{url}/v1/batch", json={"operations": operations}, timeout=30)
+    assert direct.status_code == 200
+    expected = [" | ".join(r["result"]["warnings"]) for r in direct.json()["results"]]
+    assert any(expected)
+    assert [answer["warnings"] for answer in answers] == expected
+
+
+def test_selections_write_every_item_and_say_the_generated_seed(
+    runs: Runs, url: str, work: Path
+) -> None:
+    done = runs["selections"]
+    assert done.returncode == 0, done.stderr
+    err = done.stderr.decode()
+    (seed,) = re.findall(r"warning: control HLP-GRN-02: no seed was given, so the service "
+                         r"generated (\"[^\"]*\"); record it", err)
+    rows = {row["control_id"]: row for row in csv.DictReader(
+        io.StringIO(done.stdout.decode("utf-8-sig")))}
+    assert (rows["HLP-GRN-02"]["seed"], rows["HLP-GRN-02"]["seed_generated"]) == (
+        json.loads(seed), "true")
+    items = list(csv.DictReader(io.StringIO((work / "items.csv").read_text("utf-8-sig"))))
+    for control, size, n, chosen_seed in (("HLP-BR-01", 12, 2, "hlp-2026-11-bank"),
+                                          ("HLP-GRN-02", 400, 5, json.loads(seed))):
+        direct = requests.post(f"{url}/v1/selection", timeout=10, json={
+            "population": {"size": size}, "sample_size": n, "seed": chosen_seed}).json()
+        assert [(r["draw"], r["item"], r["position"]) for r in items
+                if r["control_id"] == control] == [
+            (str(draw), str(item), str(position)) for draw, (item, position)
+            in enumerate(zip(direct["items"], direct["positions"], strict=True), 1)]
 
 
 def test_refused_input_exits_3_naming_the_field(runs: Runs) -> None:

@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import csv
+import io
 import json
 import os
 import re
@@ -123,6 +125,45 @@ def test_a_nested_field_is_named_by_its_flag(through_app: requests.Session,
     assert "--population-items (population.items" in err
 
 
+def test_a_refused_entry_of_an_items_file_is_named_by_its_line(
+    through_app: requests.Session, adapter: AppAdapter, tmp_path: Path,
+    capsys: pytest.CaptureFixture[bytes]
+) -> None:
+    # Harbour Lane Provisions Ltd (fictional) goods-received notes: a blank line between
+    # the second and the fourth note, and blank lines after the last one.
+    path = tmp_path / "grn.txt"
+    path.write_text("HLP-GRN-0001\nHLP-GRN-0002\n\nHLP-GRN-0004\n\n\n", encoding="utf-8")
+    status, out, err = run(capsys, "selection", "--items-file", str(path), "--sample-size", "2",
+                           "--seed", "hlp-2026-11")
+    assert (status, out) == (3, "")
+    # The service names the entry by its 0-based index; the file's own line is 1-based.
+    assert json.loads(adapter.sent[0].body or b"")["population"]["items"][2] == ""
+    assert f"  line 3 of {path} (population.items[2]): identifiers must not be empty" in err
+    assert "items[5]" not in err and "items[4]" not in err  # the trailing blanks were not sent
+
+    path.write_text("HLP-GRN-0001\nHLP-GRN-0002\nHLP-GRN-0004\n\n", encoding="utf-8")
+    status, out, _ = run(capsys, "selection", "--items-file", str(path), "--sample-size", "2",
+                         "--seed", "hlp-2026-11", "--json")
+    assert status == 0
+    assert json.loads(out)["population_size"] == 3
+
+
+def test_repeated_entries_of_an_items_file_are_named_by_their_lines(
+    through_app: requests.Session, tmp_path: Path, capsys: pytest.CaptureFixture[bytes]
+) -> None:
+    # Harbour Lane Provisions Ltd (fictional) invoices, two of them listed twice.
+    path = tmp_path / "invoices.txt"
+    path.write_text("HLP-INV-7\nHLP-INV-8\nHLP-INV-7\nHLP-INV-9\nHLP-INV-8\nHLP-INV-7\n\n",
+                    encoding="utf-8")
+    status, _, err = run(capsys, "selection", "--items-file", str(path), "--sample-size", "2",
+                         "--seed", "hlp-2026-11-inv")
+    assert status == 3
+    lines = err.splitlines()
+    (at,) = [k for k, line in enumerate(lines) if line.startswith(f"  {path} (population.items)")]
+    assert lines[at + 1:at + 3] == ["    'HLP-INV-7' is on lines 1, 3 and 6",
+                                    "    'HLP-INV-8' is on lines 2 and 5"]
+
+
 def test_a_missing_required_field_is_the_services_message(
     through_app: requests.Session, capsys: pytest.CaptureFixture[bytes]
 ) -> None:
@@ -143,7 +184,12 @@ def test_the_month_end_file_is_one_batch(through_app: requests.Session, adapter:
     assert {op["operation"] for op in operations} == {"sample-size"}
     lines = out.splitlines()
     assert lines[2].split() == ["NT-P2P-01", "93", "1"]
-    assert "40 of 40 answered; 0 refused." in out
+    # NT-ITG-03 plans a Poisson (with-replacement) sample above 10% of its population: the
+    # row keeps its warning.
+    (warned,) = [line.split() for line in lines if line.startswith("NT-ITG-03 ")]
+    assert warned[-1] == "[1]"
+    assert "40 of 40 answered; 0 refused; 1 with warnings." in out
+    assert "\nWarnings:\n[1] NT-ITG-03: " in out
 
 
 def test_flags_apply_to_every_row(through_app: requests.Session, adapter: AppAdapter,
@@ -179,7 +225,7 @@ def test_some_refused_rows_print_every_row_and_exit_3(
     assert "expected_rate: expected_rate 0.06 must be below tolerable_rate 0.05" in out
     status, out, _ = run(capsys, "sample-size", "--controls", str(path), "--csv")
     assert status == 3
-    assert out.splitlines()[2].startswith("B,422,,,expected_rate:")
+    assert out.splitlines()[2].startswith("B,422,,,,expected_rate:")
     status, out, _ = run(capsys, "sample-size", "--controls", str(path), "--json")
     assert status == 3
     assert [r["status"] for r in json.loads(out)["results"]] == [200, 422]
@@ -193,7 +239,7 @@ def test_a_bad_controls_file_sends_nothing_and_exits_2(
     path.write_text("control_id,tolerable_rate\nA,0.05\nB,5%\n")
     status, out, err = run(capsys, "sample-size", "--controls", str(path))
     assert (status, out) == (2, "")
-    assert f"{path}, row 3, column tolerable_rate: '5%' is not a number" in err
+    assert f"{path}, line 3, column tolerable_rate: '5%' is not a number" in err
     assert adapter.sent == []
 
 
@@ -207,7 +253,7 @@ def test_a_whole_batch_refusal_names_the_file_row(
     scripted(monkeypatch, (422, problem, None))
     status, _, err = run(capsys, "sample-size", "--controls", str(path))
     assert status == 3
-    assert "row 3 (control 'BBB" in err
+    assert f"line 3 of {path} (control 'BBB" in err
     assert "), id: must be from 1 to 200 characters" in err
 
 
@@ -400,7 +446,7 @@ def test_more_controls_than_one_batch_takes_are_sent_in_chunks(
     assert [len(json.loads(r.body or b"")["operations"]) for r in adapter.sent] == [3, 3, 1]
     lines = out.removeprefix("\ufeff").splitlines()
     # AICPA table A-1 (recalled from memory): 59 items with 0% expected, 93 with 1%.
-    assert lines[1:] == [f"NT-{i},200,{'93,1' if i % 2 else '59,0'}," for i in range(7)]
+    assert lines[1:] == [f"NT-{i},200,{'93,1' if i % 2 else '59,0'},," for i in range(7)]
     status, out, _ = run(capsys, "sample-size", "--controls", str(path), "--json")
     assert [r["id"] for r in json.loads(out)["results"]] == [f"NT-{i}" for i in range(7)]
 
@@ -414,3 +460,146 @@ def test_a_body_from_standard_input(through_app: requests.Session, adapter: AppA
     status, _, _ = run(capsys, "sample-size", "--body", "-", "--confidence", "0.95", "--json")
     assert status == 0
     assert json.loads(adapter.sent[0].body or b"") == {"tolerable_rate": 0.05, "confidence": 0.95}
+
+
+# Harbour Lane Provisions Ltd (fictional): three month-end selections, one without a seed.
+SELECTIONS = (
+    "control_id,population_size,sample_size,seed,method\n"
+    "HLP-BR-01,12,2,hlp-2026-11-bank,\n"
+    "HLP-GRN-02,400,5,,\n"
+    "HLP-INV-03,250,4,hlp-2026-11-inv,systematic\n"
+)
+
+
+def direct_selection(adapter: AppAdapter, size: int, n: int, seed: str,
+                     method: str = "random") -> dict[str, Any]:
+    answer = adapter.client.post("/v1/selection", json={
+        "population": {"size": size}, "sample_size": n, "seed": seed, "method": method})
+    assert answer.status_code == 200
+    document: dict[str, Any] = answer.get_json()
+    return document
+
+
+def generated_seeds(err: str) -> dict[str, str]:
+    found = re.findall(r"warning: control (\S+): no seed was given, so the service generated "
+                       r"(\"[^\"]*\"); record it", err)
+    return {control: json.loads(seed) for control, seed in found}
+
+
+def test_a_selection_file_writes_every_item_to_one_csv(
+    through_app: requests.Session, adapter: AppAdapter, tmp_path: Path,
+    capsys: pytest.CaptureFixture[bytes]
+) -> None:
+    path = tmp_path / "selections.csv"
+    path.write_text(SELECTIONS, encoding="utf-8")
+    out_file = tmp_path / "items.csv"
+    status, out, err = run(capsys, "selection", "--controls", str(path), "--items-out",
+                           str(out_file))
+    assert status == 0
+    seeds = generated_seeds(err)
+    assert list(seeds) == ["HLP-GRN-02"]
+    # Each control's rows against the same selection asked of the service on its own; the
+    # generated seed printed on standard error re-performs the selection.
+    expected = [("HLP-BR-01", direct_selection(adapter, 12, 2, "hlp-2026-11-bank")),
+                ("HLP-GRN-02", direct_selection(adapter, 400, 5, seeds["HLP-GRN-02"])),
+                ("HLP-INV-03", direct_selection(adapter, 250, 4, "hlp-2026-11-inv",
+                                                "systematic"))]
+    data = out_file.read_bytes()
+    assert data.startswith(b"\xef\xbb\xbfcontrol_id,draw,item,position\r\n")
+    assert data.count(b"\r\n") == 1 + 2 + 5 + 4
+    rows = list(csv.reader(io.StringIO(data.decode("utf-8-sig"), newline="")))
+    assert rows[1:] == [[control, str(draw), str(item), str(position)]
+                        for control, chosen in expected
+                        for draw, (item, position) in enumerate(
+                            zip(chosen["items"], chosen["positions"], strict=True), 1)]
+    assert f"Selected items: 11 rows written to {out_file}." in out
+    generated = out.splitlines()[3].split()
+    assert generated[0] == "HLP-GRN-02"
+    assert seeds["HLP-GRN-02"] in generated and "yes" in generated
+
+
+def test_a_selection_file_lists_the_items_under_the_table(
+    through_app: requests.Session, adapter: AppAdapter, tmp_path: Path,
+    capsys: pytest.CaptureFixture[bytes]
+) -> None:
+    path = tmp_path / "selections.csv"
+    path.write_text(SELECTIONS, encoding="utf-8")
+    status, out, err = run(capsys, "selection", "--controls", str(path))
+    assert status == 0
+    bank = direct_selection(adapter, 12, 2, "hlp-2026-11-bank")
+    listed = out[out.index("Selected items, in draw order:\n"):]
+    assert f"HLP-BR-01 (2 of 12): {', '.join(map(str, bank['items']))}\n" in listed
+    seed = generated_seeds(err)["HLP-GRN-02"]
+    grn = direct_selection(adapter, 400, 5, seed)
+    assert f"HLP-GRN-02 (5 of 400): {', '.join(map(str, grn['items']))}\n" in listed
+    # The control with the generated seed carries the service's warning, numbered.
+    row = out.splitlines()[3].split()
+    assert (row[0], row[-1]) == ("HLP-GRN-02", "[1]")
+    assert seed in row
+    assert "\nWarnings:\n[1] HLP-GRN-02: " in out
+
+
+def test_a_blank_seed_is_reported_on_every_run_and_kept_in_the_rows(
+    through_app: requests.Session, tmp_path: Path, capsys: pytest.CaptureFixture[bytes]
+) -> None:
+    path = tmp_path / "selections.csv"
+    path.write_text(SELECTIONS, encoding="utf-8")
+    first = run(capsys, "selection", "--controls", str(path), "--csv")
+    second = run(capsys, "selection", "--controls", str(path), "--json")
+    seeds = [generated_seeds(err)["HLP-GRN-02"] for _, _, err in (first, second)]
+    assert seeds[0] != seeds[1]  # a new seed each run, and each one said
+    rows = {row["control_id"]: row for row in csv.DictReader(
+        io.StringIO(first[1].removeprefix("\ufeff")))}
+    assert (rows["HLP-GRN-02"]["seed"], rows["HLP-GRN-02"]["seed_generated"]) == (seeds[0],
+                                                                                  "true")
+    assert rows["HLP-BR-01"]["seed_generated"] == "false"
+    assert "--items-out FILE writes them" in first[2]
+    answers = {r["id"]: r["result"] for r in json.loads(second[1])["results"]}
+    assert answers["HLP-GRN-02"]["seed"] == seeds[1]
+
+
+def test_items_out_is_refused_before_anything_is_sent(
+    through_app: requests.Session, adapter: AppAdapter, tmp_path: Path,
+    capsys: pytest.CaptureFixture[bytes]
+) -> None:
+    path = tmp_path / "selections.csv"
+    path.write_text(SELECTIONS, encoding="utf-8")
+    status, _, err = run(capsys, "selection", "--controls", str(path), "--items-out",
+                         str(tmp_path / "no-such-folder" / "items.csv"))
+    assert status == 2
+    assert "--items-out" in err and "no such folder" in err
+    status, _, err = run(capsys, "selection", "--controls", str(path), "--items-out",
+                         str(tmp_path))
+    assert status == 2
+    assert "is a folder" in err
+    status, _, err = run(capsys, "selection", "--population-size", "12", "--sample-size", "2",
+                         "--items-out", str(tmp_path / "items.csv"))
+    assert status == 2
+    assert "--items-out needs --controls" in err
+    assert adapter.sent == []
+    assert list(tmp_path.iterdir()) == [path]
+
+
+def test_a_single_selection_as_csv_without_a_seed_says_so(
+    through_app: requests.Session, capsys: pytest.CaptureFixture[bytes]
+) -> None:
+    status, out, err = run(capsys, "selection", "--population-size", "12", "--sample-size", "2",
+                           "--csv")
+    assert status == 0
+    assert out.startswith("\ufeffdraw,item,position\r\n")
+    assert "warning: no --seed given" in err
+    status, _, err = run(capsys, "selection", "--population-size", "12", "--sample-size", "2",
+                         "--seed", "hlp-2026-11-bank", "--csv")
+    assert status == 0
+    assert "warning" not in err
+
+
+def test_the_selection_help_documents_the_items_file(
+    capsys: pytest.CaptureFixture[bytes]
+) -> None:
+    with pytest.raises(SystemExit):
+        cli.main(["selection", "--help"])
+    text = " ".join(capsys.readouterr().out.decode().split())
+    assert "--items-out FILE with --controls: write every selected item to FILE as one CSV " \
+        "of control_id,draw,item,position" in text
+    assert "prints it on standard error with the warning to record it" in text

@@ -31,7 +31,7 @@ def test_the_example_file_holds_forty_controls_with_typed_requests() -> None:
     rows = controls.read_controls(str(EXAMPLE), SIZING)
     assert len(rows) == 40
     assert len({row.control_id for row in rows}) == 40
-    assert [row.row for row in rows] == list(range(2, 42))
+    assert [row.line for row in rows] == list(range(2, 42))
     first = rows[0]
     assert first.control_id == "NT-P2P-01"
     assert first.request == {
@@ -55,8 +55,27 @@ def test_a_byte_order_mark_quotes_and_blank_rows_are_read(tmp_path: Path) -> Non
     path = write(tmp_path, '\ufeffcontrol_id,tolerable_rate,population_label\r\n'
                  '"NT,1",0.05,"Orders, ""large"""\r\n,,\r\n\r\nNT-2,0.10,\r\n')
     rows = controls.read_controls(path, SIZING)
-    assert [(r.control_id, r.row) for r in rows] == [("NT,1", 2), ("NT-2", 5)]
+    assert [(r.control_id, r.line) for r in rows] == [("NT,1", 2), ("NT-2", 5)]
     assert rows[1].request == {"tolerable_rate": 0.10}
+
+
+def test_messages_name_the_files_own_line_after_a_cell_with_line_breaks(
+    tmp_path: Path
+) -> None:
+    # Harbour Lane Provisions Ltd (fictional): a quoted label over two lines puts the third
+    # control on line 5 of the file, though it is the fourth CSV row.
+    text = ('control_id,tolerable_rate,population_label\n'
+            'HLP-01,0.05,"Cold-store temperature log,\nsigned daily"\n'
+            'HLP-02,0.05,Weekly stock count\n'
+            'HLP-03,5%,Monthly supplier statement reconciliation\n')
+    error = refusal(tmp_path, text)
+    assert (error.line, error.column) == (5, "tolerable_rate")
+    assert str(error).startswith(f"{tmp_path / 'controls.csv'}, line 5, column tolerable_rate")
+    fixed = text.replace("5%", "0.05")
+    rows = controls.read_controls(write(tmp_path, fixed), SIZING)
+    assert [(r.control_id, r.line) for r in rows] == [("HLP-01", 2), ("HLP-02", 4),
+                                                     ("HLP-03", 5)]
+    assert [line.split(",")[0] for line in fixed.splitlines()][4] == "HLP-03"
 
 
 def test_an_evaluation_file(tmp_path: Path) -> None:
@@ -77,14 +96,14 @@ def test_a_number_that_is_not_a_plain_decimal_names_row_and_column(
     tmp_path: Path, cell: str, words: str
 ) -> None:
     error = refusal(tmp_path, f"control_id,tolerable_rate\nNT-1,0.05\nNT-2,{cell}\n")
-    assert (error.row, error.column) == (3, "tolerable_rate")
-    assert str(error).startswith(f"{tmp_path / 'controls.csv'}, row 3, column tolerable_rate: ")
+    assert (error.line, error.column) == (3, "tolerable_rate")
+    assert str(error).startswith(f"{tmp_path / 'controls.csv'}, line 3, column tolerable_rate: ")
     assert words in str(error)
 
 
 def test_a_blank_required_cell(tmp_path: Path) -> None:
     error = refusal(tmp_path, "control_id,tolerable_rate\nNT-1,\n")
-    assert (error.row, error.column) == (2, "tolerable_rate")
+    assert (error.line, error.column) == (2, "tolerable_rate")
     assert "is blank, but tolerable_rate is required" in str(error)
 
 
@@ -93,13 +112,13 @@ def test_a_nested_field_is_required_only_when_its_object_is_given(tmp_path: Path
     assert controls.read_controls(write(tmp_path, text), SIZING)[0].request == {
         "tolerable_rate": 0.05}
     error = refusal(tmp_path, text + "NT-2,0.05,,Orders\n")
-    assert (error.row, error.column) == (3, "population_size")
+    assert (error.line, error.column) == (3, "population_size")
     assert "is blank, but population.size is required" in str(error)
 
 
 def test_a_missing_required_column(tmp_path: Path) -> None:
     error = refusal(tmp_path, "control_id,expected_rate\nNT-1,0.01\n")
-    assert error.row == 1
+    assert error.line == 1
     assert "the header has no tolerable_rate column, which is required" in str(error)
 
 
@@ -110,7 +129,7 @@ def test_a_missing_id_column(tmp_path: Path) -> None:
 def test_an_unknown_column_is_refused_not_ignored(tmp_path: Path) -> None:
     # A misspelt expected_rate left out would size for no expected deviation at all.
     error = refusal(tmp_path, "control_id,tolerable_rate,expected_rte\nNT-1,0.05,0.01\n")
-    assert (error.row, error.column) == (1, "expected_rte")
+    assert (error.line, error.column) == (1, "expected_rte")
     assert "is not a request field; the columns are control_id, population_size" in str(error)
 
 
@@ -122,20 +141,20 @@ def test_a_list_column_is_refused(tmp_path: Path) -> None:
 
 def test_a_repeated_column(tmp_path: Path) -> None:
     error = refusal(tmp_path, "control_id,tolerable_rate,tolerable_rate\nNT-1,0.05,0.05\n")
-    assert (error.row, error.column) == (1, "tolerable_rate")
+    assert (error.line, error.column) == (1, "tolerable_rate")
 
 
 def test_a_blank_or_repeated_control_id(tmp_path: Path) -> None:
     blank = refusal(tmp_path, "control_id,tolerable_rate\n ,0.05\n")
-    assert (blank.row, blank.column) == (2, "control_id")
+    assert (blank.line, blank.column) == (2, "control_id")
     repeated = refusal(tmp_path, "control_id,tolerable_rate\nNT-1,0.05\nNT-2,0.05\nNT-1,0.1\n")
-    assert (repeated.row, repeated.column) == (4, "control_id")
-    assert "repeats the control id 'NT-1' of row 2" in str(repeated)
+    assert (repeated.line, repeated.column) == (4, "control_id")
+    assert "repeats the control id 'NT-1' of line 2" in str(repeated)
 
 
 def test_a_row_of_the_wrong_length(tmp_path: Path) -> None:
     error = refusal(tmp_path, "control_id,tolerable_rate\nNT-1,0.05,0.01\n")
-    assert error.row == 2
+    assert error.line == 2
     assert "has 3 cells; the header has 2" in str(error)
 
 

@@ -146,6 +146,17 @@ def test_identifiers_from_a_file_exactly_as_written(tmp_path: Path) -> None:
         "PO-1")
 
 
+def test_blank_lines_at_the_end_of_a_file_are_not_entries(tmp_path: Path) -> None:
+    # Harbour Lane Provisions Ltd (fictional) delivery notes, saved with blank lines after
+    # the last one; a blank line in the middle stays an entry for the service to judge.
+    path = tmp_path / "delivery-notes.txt"
+    path.write_bytes(b"HLP-DN-0101\r\nHLP-DN-0102\r\n\r\nHLP-DN-0104\r\n\r\n \r\n\r\n")
+    assert body("selection", "--items-file", str(path)) == {
+        "population": {"items": ["HLP-DN-0101", "HLP-DN-0102", "", "HLP-DN-0104"]}}
+    path.write_bytes(b"\n\n")
+    assert flags.file_lines(str(path)) == []
+
+
 def test_a_bad_line_of_a_number_file_names_the_line(tmp_path: Path) -> None:
     path = tmp_path / "voided.txt"
     path.write_text("10007\n10,233\n")
