@@ -238,7 +238,7 @@ def render_operating_characteristic_svg(
 
 def _with_title(svg: str, title: str, description: str) -> str:
     """``svg`` with ``<title>`` and ``<desc>`` as the first children of its root element."""
-    from xml.sax.saxutils import escape
+    from html import escape
 
     root = svg.index("<svg")
     end = svg.index(">", root) + 1
