@@ -323,8 +323,9 @@ def _batch_status(results: Sequence[Mapping[str, Any]]) -> int:
 def _run_controls(args: argparse.Namespace, shared: dict[str, Any]) -> int:
     operation = args.operation
     if args.output == "markdown":
-        raise UsageProblem("--markdown is not offered with --controls (the service's batch "
-                           "block lists ids and statuses only); use the table, --csv or --json")
+        raise UsageProblem("--markdown is not offered with --controls; use the table, --csv or "
+                           "--json, or send the controls to /v1/batch with Accept: "
+                           "text/markdown for one workpaper block per control")
     given = _leaf_names(shared)
     try:
         rows = controls.read_controls(args.controls, args.specs)

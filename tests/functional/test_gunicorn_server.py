@@ -193,3 +193,22 @@ def test_metrics_count_requests_with_the_default_metrics_folder(
         if sample.name == "sampling_http_requests_total"
     }
     assert counted.get(("/v1/evaluation", "200"), 0) >= 1
+
+
+def test_one_json_log_line_per_request(tmp_path_factory: pytest.TempPathFactory) -> None:
+    """The server logs each request once, as JSON; gunicorn's own access line is off."""
+    import json
+
+    with running_server(tmp_path_factory.mktemp("one-line"), workers=1) as running, \
+            requests.Session() as session:
+        for index in range(3):
+            response = session.post(f"{running.url}/v1/sample-size", timeout=REQUEST_SECONDS,
+                                    json={"tolerable_rate": 0.05},
+                                    headers={"X-Request-ID": f"one-line-{index}"})
+            assert response.status_code == 200
+        log = running.log()
+    for index in range(3):
+        lines = [line for line in log.splitlines() if f"one-line-{index}" in line]
+        assert len(lines) == 1, lines
+        entry = json.loads(lines[0])
+        assert entry["path"] == "/v1/sample-size" and entry["status"] == 200
