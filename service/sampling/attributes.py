@@ -48,6 +48,7 @@ from service.sampling import hypergeometric
 from service.sampling.distributions import Model, deviant_items, resolve_model
 from service.sampling.errors import ComputationTooLarge, InvalidInput, NoFeasiblePlan
 from service.sampling.rates import exact_rate, floor_quotient
+from service.sampling.ties import at_most, at_most_each, hypergeometric_above
 
 DEFAULT_MAX_SAMPLE_SIZE = 10_000_000
 # A computation cap: a plan allowing more deviations than this (a sample of
@@ -176,8 +177,9 @@ def _smallest_satisfying(holds: Callable[[int], bool], lo: int, hi: int) -> int:
     return lo
 
 
-def _tail_within(tail: Callable[[Any, Any], Any], k: int, alpha: float, n: int) -> bool:
-    return bool(tail(k, n) <= alpha)
+def _tail_within(model: Model, rate: Fraction, population_size: int | None, risk: Fraction,
+                 k: int, n: int) -> bool:
+    return at_most(model.name, k, n, rate, population_size, risk).holds
 
 
 def _normal_size_estimate(tolerable: float, expected: float, confidence: float) -> float:
@@ -190,7 +192,7 @@ def _plan_search(
     model: Model,
     tolerable: Fraction,
     expected: Fraction,
-    alpha: float,
+    alpha: Fraction,
     population_size: int | None,
     max_n: int,
 ) -> tuple[int, int] | None:
@@ -200,16 +202,18 @@ def _plan_search(
     holds for n ≥ n_k. The n that allow exactly k deviations form the block
     I_k = {n : ceil(e n) = k}; the first block that contains an n ≥ n_k holds
     the answer. Blocks are tested in vectorised chunks at their largest n,
-    then the answer is found by bisection inside the winning block.
+    then the answer is found by bisection inside the winning block. Every
+    comparison with the risk ``alpha`` is exact near a tie (:mod:`service.sampling.ties`).
     """
 
     def tail(k: Any, n: Any) -> Any:
         return model.lower_tail(k, n, tolerable, population_size)
 
+    within = partial(_tail_within, model, tolerable, population_size, alpha)
     if expected == 0:
-        if tail(0, max_n) > alpha:
+        if not within(0, max_n):
             return None
-        return _smallest_satisfying(lambda n: bool(tail(0, n) <= alpha), 1, max_n), 0
+        return _smallest_satisfying(partial(within, 0), 1, max_n), 0
 
     # The scan below costs time in proportion to the deviations allowed; plans
     # beyond this many are refused as impractical (see MAX_ALLOWED_DEVIATIONS).
@@ -227,13 +231,15 @@ def _plan_search(
         k_arr = np.array(ks, dtype=np.int64)
         high_arr = np.array(block_high, dtype=np.int64)
         nonempty = np.array(block_low, dtype=np.int64) <= high_arr
-        feasible = nonempty & (tail(k_arr, np.maximum(high_arr, k_arr)) <= alpha)
+        n_arr = np.maximum(high_arr, k_arr)
+        feasible = nonempty & at_most_each(
+            model.name, k_arr, n_arr, tail(k_arr, n_arr), tolerable, population_size, alpha
+        )
         hits = np.flatnonzero(feasible)
         if hits.size:
             i = int(hits[0])
             k = ks[i]
-            holds = partial(_tail_within, tail, k, alpha)
-            return _smallest_satisfying(holds, block_low[i], block_high[i]), k
+            return _smallest_satisfying(partial(within, k), block_low[i], block_high[i]), k
         first_k += chunk
         chunk = min(4 * chunk, 4096)
 
@@ -303,7 +309,7 @@ def size_sample(
     model = resolve_model(method, population_size)
 
     tolerable, expected = exact_rate(tolerable_rate), exact_rate(expected_rate)
-    alpha = 1.0 - confidence
+    alpha = 1 - exact_rate(confidence)
     max_n = max_sample_size
     if model.needs_population and population_size is not None:
         max_n = min(max_n, population_size)
@@ -338,7 +344,7 @@ def size_sample(
         )
     n, k = found
 
-    risk_over = float(model.lower_tail(k, n, tolerable, population_size))
+    risk_over = at_most(model.name, k, n, tolerable, population_size, alpha).value
     risk_under = 0.0 if expected == 0 else float(model.upper_tail(k, n, expected, population_size))
     # With no deviations expected the plan is its own zero-deviation plan.
     zero_size = n if expected == 0 else None
@@ -376,7 +382,7 @@ def _plan_warnings(
     n: int,
     population_size: int | None,
     tolerable: Fraction,
-    alpha: float,
+    alpha: Fraction,
     max_n: int,
     zero_size: int | None,
 ) -> tuple[str, ...]:
@@ -442,13 +448,13 @@ def _poisson_lower(d: int, n: int, level: float) -> float:
     return min(1.0, float(special.gammaincinv(d, 1.0 - level)) / n)
 
 
-def _hypergeometric_upper_count(d: int, n: int, size: int, level: float) -> int:
-    """Largest deviant count M with P(X ≤ d | M) > 1 − level (exact, by bisection)."""
-    alpha = 1.0 - level
+def _hypergeometric_upper_count(d: int, n: int, size: int, alpha: Fraction) -> int:
+    """Largest deviant count M with P(X ≤ d | M) > alpha (exact, by bisection)."""
     lo, hi = d, size - (n - d)  # P(X ≤ d | M = d) = 1, so lo always qualifies
 
     def qualifies(m: int) -> bool:
-        return bool(hypergeometric.cdf(d, size, m, n) > alpha)
+        value = float(hypergeometric.cdf(d, size, m, n))
+        return hypergeometric_above(d, size, m, n, alpha, value, upper=False)
 
     if qualifies(hi):
         return hi
@@ -461,15 +467,17 @@ def _hypergeometric_upper_count(d: int, n: int, size: int, level: float) -> int:
     return lo
 
 
-def _hypergeometric_lower_count(d: int, n: int, size: int, level: float) -> int:
-    """Smallest deviant count M with P(X ≥ d | M) > 1 − level (exact, by bisection)."""
+def _hypergeometric_lower_count(d: int, n: int, size: int, alpha: Fraction) -> int:
+    """Smallest deviant count M with P(X ≥ d | M) > alpha (exact, by bisection)."""
     if d == 0:
         return 0
-    alpha = 1.0 - level
     lo, hi = d, size - (n - d)  # P(X ≥ d | M = hi) = 1, so hi always qualifies
-    return _smallest_satisfying(
-        lambda m: bool(hypergeometric.sf(d - 1, size, m, n) > alpha), lo, hi
-    )
+
+    def qualifies(m: int) -> bool:
+        value = float(hypergeometric.sf(d - 1, size, m, n))
+        return hypergeometric_above(d - 1, size, m, n, alpha, value, upper=True)
+
+    return _smallest_satisfying(qualifies, lo, hi)
 
 
 @dataclass(frozen=True)
@@ -500,10 +508,10 @@ def _poisson_limits(d: int, n: int, confidence: float, size: int | None) -> _Lim
 def _hypergeometric_limits(d: int, n: int, confidence: float, size: int | None) -> _Limits:
     if size is None:
         raise InvalidInput("population.size", "the hypergeometric method needs a population size")
-    two_sided = 1.0 - (1.0 - confidence) / 2.0
-    upper = _hypergeometric_upper_count(d, n, size, confidence)
-    low = _hypergeometric_lower_count(d, n, size, two_sided)
-    high = _hypergeometric_upper_count(d, n, size, two_sided)
+    alpha = 1 - exact_rate(confidence)
+    upper = _hypergeometric_upper_count(d, n, size, alpha)
+    low = _hypergeometric_lower_count(d, n, size, alpha / 2)
+    high = _hypergeometric_upper_count(d, n, size, alpha / 2)
     return _Limits(upper / size, upper, Interval(low / size, high / size))
 
 
@@ -595,10 +603,11 @@ def evaluate_sample(
     risk: float | None = None
     supports: bool | None = None
     if tolerable_rate is not None:
-        risk = float(
-            model.lower_tail(deviations, sample_size, exact_rate(tolerable_rate), population_size)
+        decision = at_most(
+            model.name, deviations, sample_size, exact_rate(tolerable_rate), population_size,
+            1 - exact_rate(confidence),
         )
-        supports = risk <= 1.0 - confidence
+        risk, supports = decision.value, decision.holds
 
     warnings: list[str] = []
     if model.name == "poisson" and rate > Fraction(1, 10):
