@@ -87,3 +87,19 @@ def hypergeometric_lower(k: int, population: int, deviant: int, n: int) -> Fract
         term = term * (deviant - i) * (n - i) // ((i + 1) * (conforming - n + i + 1))
         total += term
     return Fraction(total, math.comb(population, n))
+
+
+def binomial_outside(below: int, above: int, n: int, rate: Fraction) -> Fraction:
+    """``P(X ≤ below) + P(X > above)`` for ``X ~ Binomial(n, rate)``, exactly.
+
+    >>> binomial_outside(0, 1, 1, Fraction(99, 100))  # one item at 99%: only X = 0 is outside
+    Fraction(1, 100)
+    """
+    return binomial_lower(below, n, rate) + 1 - binomial_lower(above, n, rate)
+
+
+def hypergeometric_outside(below: int, above: int, population: int, deviant: int,
+                           n: int) -> Fraction:
+    """``P(X ≤ below) + P(X > above)`` for ``X ~ Hypergeometric(N, M, n)``, exactly."""
+    return (hypergeometric_lower(below, population, deviant, n) + 1
+            - hypergeometric_lower(above, population, deviant, n))

@@ -10,6 +10,7 @@ Discrete Distributions*, 3rd ed. (2005), chapters 3 (binomial) and 6
 from __future__ import annotations
 
 import math
+from decimal import Decimal, localcontext
 from fractions import Fraction
 
 
@@ -53,3 +54,19 @@ def sample_size(
         if lower_tail(k, n, tolerable, population) <= risk:
             return n, k
     raise AssertionError("no plan within the search limit")
+
+
+def short_decimal(value: Fraction) -> float | None:
+    """The float whose shortest form is exactly ``value``, if ``value`` has such a form."""
+    with localcontext() as context:
+        context.prec = 40
+        text = str(Decimal(value.numerator) / Decimal(value.denominator))
+    number = float(text)
+    return number if Fraction(repr(number)) == value else None
+
+
+def usable_risk(risk: Fraction) -> float | None:
+    """``1 − risk`` as a confidence the service accepts (0.5 … 0.999999), or None."""
+    if not (Fraction(1, 10**6) <= risk <= Fraction(1, 2)):
+        return None
+    return short_decimal(1 - risk)

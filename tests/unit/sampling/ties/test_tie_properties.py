@@ -8,7 +8,6 @@ short decimals are kept (what a person would type); the expected answers come fr
 
 from __future__ import annotations
 
-from decimal import Decimal, localcontext
 from fractions import Fraction
 
 from hypothesis import HealthCheck, assume, given, settings
@@ -16,25 +15,10 @@ from hypothesis import strategies as st
 
 from service.sampling.attributes import evaluate_sample, size_sample
 from tests.unit.sampling.ties import reference as ref
+from tests.unit.sampling.ties.reference import short_decimal, usable_risk
 
 FEW = settings(max_examples=60, derandomize=True, deadline=None, database=None,
                suppress_health_check=[HealthCheck.too_slow, HealthCheck.filter_too_much])
-
-
-def short_decimal(value: Fraction) -> float | None:
-    """The float whose shortest form is exactly ``value``, if ``value`` has such a form."""
-    with localcontext() as context:
-        context.prec = 40
-        text = str(Decimal(value.numerator) / Decimal(value.denominator))
-    number = float(text)
-    return number if Fraction(repr(number)) == value else None
-
-
-def usable_risk(risk: Fraction) -> float | None:
-    """``1 − risk`` as a confidence the service accepts (0.5 … 0.999999), or None."""
-    if not (Fraction(1, 10**6) <= risk <= Fraction(1, 2)):
-        return None
-    return short_decimal(1 - risk)
 
 
 @FEW
