@@ -58,6 +58,9 @@ MAX_ALLOWED_DEVIATIONS = 10_000
 # against the hypergeometric one (common practice threshold, not a standard).
 _LARGE_SAMPLING_FRACTION = Fraction(1, 10)
 _LARGE_PLAN_FACTOR = 3
+# Expected deviations e × n below which a plan allowing ceil(e × n) = 1 deviation is
+# flagged: the expected rate adds a deviation the caller probably did not mean.
+_TINY_EXPECTED_COUNT = Fraction(1, 100)
 
 
 @dataclass(frozen=True)
@@ -349,6 +352,9 @@ def size_sample(
     # With no deviations expected the plan is its own zero-deviation plan.
     zero_size = n if expected == 0 else None
     warnings = _plan_warnings(model, n, population_size, tolerable, alpha, max_n, zero_size)
+    if 0 < expected * n < _TINY_EXPECTED_COUNT:
+        warnings += (_tiny_expected_warning(model, expected, n, k, tolerable, alpha,
+                                            population_size, max_n),)
     return SampleSizePlan(
         method=model.name,
         tolerable_rate=tolerable_rate,
@@ -362,6 +368,20 @@ def size_sample(
         risk_of_overreliance=risk_over,
         risk_of_underreliance=risk_under,
         warnings=warnings,
+    )
+
+
+def _tiny_expected_warning(
+    model: Model, expected: Fraction, n: int, k: int, tolerable: Fraction, alpha: Fraction,
+    population_size: int | None, max_n: int,
+) -> str:
+    zero_plan = _plan_search(model, tolerable, Fraction(0), alpha, population_size, max_n)
+    zero = "" if zero_plan is None else f"; with an expected rate of 0 it is {zero_plan[0]:,}"
+    return (
+        f"The expected rate {float(expected):.3g} times the sample of {n:,} items is "
+        f"{float(expected * n):.3g} deviations, yet the plan allows {k} deviation"
+        f"{'' if k == 1 else 's'} (ceil(expected rate × sample size)), which enlarges the "
+        f"sample{zero}. Check that the expected rate is the one meant."
     )
 
 

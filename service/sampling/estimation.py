@@ -81,6 +81,7 @@ import numpy.typing as npt
 from scipy import stats
 
 from service.sampling.errors import ComputationTooLarge, InvalidInput
+from service.sampling.rates import WrittenDecimal, exact_rate
 from service.sampling.ties import exact_tails
 from service.sampling.ties.band import RELATIVE_BAND, near
 
@@ -251,11 +252,12 @@ def _exact(number: float) -> Fraction:
 
 def _open_unit(value: object, field: str, upper: float = 1.0) -> Fraction:
     number = _real(value, field)
-    if not 0.0 < number < upper:
+    exact = exact_rate(value) if isinstance(value, WrittenDecimal) else _exact(number)
+    if not 0 < exact < _exact(upper):
         raise InvalidInput(
             field, f"must be greater than 0 and less than {upper:g}; got {number!r}"
         )
-    return _exact(number)
+    return exact
 
 
 def _population(value: object) -> int | None:
