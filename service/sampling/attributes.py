@@ -198,6 +198,7 @@ def _plan_search(
     alpha: Fraction,
     population_size: int | None,
     max_n: int,
+    max_deviations: int = MAX_ALLOWED_DEVIATIONS,
 ) -> tuple[int, int] | None:
     """Return (n, k) of the smallest plan with n ≤ max_n, or None if there is none.
 
@@ -223,9 +224,9 @@ def _plan_search(
 
     first_k, chunk = 1, 8
     while True:
-        if first_k > MAX_ALLOWED_DEVIATIONS:
+        if first_k > max_deviations:
             raise _TooManyDeviations
-        ks = list(range(first_k, first_k + chunk))
+        ks = list(range(first_k, min(first_k + chunk, max_deviations + 1)))
         # Clipped to max_n + 1 so that a tiny expected rate (1e-19) stays within int64.
         block_low = [min(floor_quotient(k - 1, expected) + 1, max_n + 1) for k in ks]
         if block_low[0] > max_n:
@@ -327,8 +328,9 @@ def size_sample(
     try:
         found = _plan_search(model, tolerable, expected, alpha, population_size, max_n)
     except _TooManyDeviations:
-        raise _too_large(
-            MAX_ALLOWED_DEVIATIONS / expected_rate, expected_rate, tolerable_rate, max_sample_size
+        raise _over_the_cap(
+            model, tolerable, expected, alpha, population_size, max_n, expected_rate,
+            tolerable_rate, confidence,
         ) from None
     if found is None:
         if max_n == max_sample_size:
@@ -382,6 +384,35 @@ def _tiny_expected_warning(
         f"{float(expected * n):.3g} deviations, yet the plan allows {k} deviation"
         f"{'' if k == 1 else 's'} (ceil(expected rate × sample size)), which enlarges the "
         f"sample{zero}. Check that the expected rate is the one meant."
+    )
+
+
+def _over_the_cap(
+    model: Model, tolerable: Fraction, expected: Fraction, alpha: Fraction,
+    population_size: int | None, max_n: int, expected_rate: float, tolerable_rate: float,
+    confidence: float,
+) -> ComputationTooLarge:
+    """The refusal when no plan allows at most MAX_ALLOWED_DEVIATIONS deviations.
+
+    The plan that would be needed is searched for up to twice the cap so that the
+    message can name it; beyond that it is given from the normal approximation.
+    """
+    try:
+        needed = _plan_search(model, tolerable, expected, alpha, population_size, max_n,
+                              2 * MAX_ALLOWED_DEVIATIONS)
+    except _TooManyDeviations:
+        needed = None
+    if needed is None:
+        estimate = _normal_size_estimate(tolerable_rate, expected_rate, confidence)
+        plan = (f"about {estimate:,.0f} items allowing about {estimate * expected_rate:,.0f} "
+                "deviations (normal approximation)")
+    else:
+        plan = f"{needed[0]:,} items allowing {needed[1]:,} deviations"
+    return ComputationTooLarge(
+        "expected_rate",
+        f"expected_rate {expected_rate!r} is too close to tolerable_rate {tolerable_rate!r}: "
+        f"no plan allowing at most {MAX_ALLOWED_DEVIATIONS:,} deviations reaches confidence "
+        f"{confidence!r}; the plan would need {plan}",
     )
 
 
