@@ -473,30 +473,35 @@ def _plan_warnings(
 # --- evaluation -------------------------------------------------------------
 
 
-def _binomial_upper(d: int, n: int, level: float) -> float:
-    """Clopper–Pearson one-sided upper bound at confidence ``level``."""
+# The bounds below take the risk ``alpha`` (one tail), computed exactly from the written
+# confidence and rounded once, and use the inverse of the tail that holds it, so that a
+# confidence of 99.9999% does not reach them as the rounded double 1 − 0.999999.
+
+
+def _binomial_upper(d: int, n: int, alpha: float) -> float:
+    """Clopper–Pearson one-sided upper bound with risk ``alpha``."""
     if d == n:
         return 1.0
-    return float(stats.beta.ppf(level, d + 1, n - d))
+    return float(stats.beta.isf(alpha, d + 1, n - d))
 
 
-def _binomial_lower(d: int, n: int, level: float) -> float:
-    """Clopper–Pearson one-sided lower bound at confidence ``level``."""
+def _binomial_lower(d: int, n: int, alpha: float) -> float:
+    """Clopper–Pearson one-sided lower bound with risk ``alpha``."""
     if d == 0:
         return 0.0
-    return float(stats.beta.ppf(1.0 - level, d, n - d + 1))
+    return float(stats.beta.ppf(alpha, d, n - d + 1))
 
 
-def _poisson_upper(d: int, n: int, level: float) -> float:
-    """Garwood upper bound on the rate, ``Γ⁻¹(d + 1, level) / n``, capped at 1."""
-    return min(1.0, float(special.gammaincinv(d + 1, level)) / n)
+def _poisson_upper(d: int, n: int, alpha: float) -> float:
+    """Garwood upper bound on the rate, ``λ`` with ``Q(d + 1, λ) = alpha``, over n, capped at 1."""
+    return min(1.0, float(special.gammainccinv(d + 1, alpha)) / n)
 
 
-def _poisson_lower(d: int, n: int, level: float) -> float:
-    """Garwood lower bound on the rate, ``Γ⁻¹(d, 1 − level) / n``."""
+def _poisson_lower(d: int, n: int, alpha: float) -> float:
+    """Garwood lower bound on the rate, ``λ`` with ``P(d, λ) = alpha``, over n."""
     if d == 0:
         return 0.0
-    return min(1.0, float(special.gammaincinv(d, 1.0 - level)) / n)
+    return min(1.0, float(special.gammaincinv(d, alpha)) / n)
 
 
 def _hypergeometric_upper_count(d: int, n: int, size: int, alpha: Fraction) -> int:
@@ -539,20 +544,22 @@ class _Limits:
 
 
 def _binomial_limits(d: int, n: int, confidence: float, size: int | None) -> _Limits:
-    two_sided = 1.0 - (1.0 - confidence) / 2.0
+    alpha = 1 - exact_rate(confidence)
+    half = float(alpha / 2)
     return _Limits(
-        _binomial_upper(d, n, confidence),
+        _binomial_upper(d, n, float(alpha)),
         None,
-        Interval(_binomial_lower(d, n, two_sided), _binomial_upper(d, n, two_sided)),
+        Interval(_binomial_lower(d, n, half), _binomial_upper(d, n, half)),
     )
 
 
 def _poisson_limits(d: int, n: int, confidence: float, size: int | None) -> _Limits:
-    two_sided = 1.0 - (1.0 - confidence) / 2.0
+    alpha = 1 - exact_rate(confidence)
+    half = float(alpha / 2)
     return _Limits(
-        _poisson_upper(d, n, confidence),
+        _poisson_upper(d, n, float(alpha)),
         None,
-        Interval(_poisson_lower(d, n, two_sided), _poisson_upper(d, n, two_sided)),
+        Interval(_poisson_lower(d, n, half), _poisson_upper(d, n, half)),
     )
 
 

@@ -33,3 +33,15 @@ def test_high_end_of_7_of_93_at_99_999_percent():
     assert ref.hypergeometric_lower(7, N, high + 1, 93) <= half_risk
     result = evaluate_sample(93, 7, 0.99999, population_size=N)
     assert result.interval.high == high / N
+
+
+def test_clopper_pearson_upper_bound_with_no_deviation_at_a_risk_of_one_in_a_million():
+    # With d = 0 the Clopper–Pearson upper bound is 1 − α^(1/n) (Clopper & Pearson 1934);
+    # computed here with Python's decimal module at 50 digits, α = 1 − 0.999999 exactly.
+    from decimal import Decimal, localcontext
+
+    with localcontext() as context:
+        context.prec = 50
+        want = 1 - (Decimal(1) - Decimal("0.999999")) ** (Decimal(1) / Decimal(59))
+    result = evaluate_sample(59, 0, 0.999999, method="binomial")
+    assert abs(Decimal(result.upper_deviation_limit) - want) <= Decimal("1e-14") * want
