@@ -6,12 +6,13 @@ tolerable rate) asks: how many items must be drawn so that the sample rate lands
 with several methods side by side, each labelled with the kind of guarantee it gives:
 
 ``exact``
-    The smallest sample size at which the exact probability that the sample rate misses
-    the rate by more than the margin is at most ``1 - confidence`` (the plain smallest:
-    every smaller size is checked and fails).  Binomial sampling (with replacement, or an
-    unlimited population); hypergeometric when a population size is given.  With no
-    anticipated rate, the miss probability is its supremum over all rates (binomial) or
-    its maximum over all populations of the given size (hypergeometric).
+    The smallest sample size from which on the exact probability that the sample rate
+    misses the rate by more than the margin is at most ``1 - confidence`` at every larger
+    size too (see :func:`_size_exact` for this lattice rule).  Binomial sampling (with
+    replacement, or an unlimited population); hypergeometric when a population size is
+    given.  With no anticipated rate, the miss probability is its supremum over all
+    rates (binomial) or its maximum over all populations of the given size
+    (hypergeometric).
     Guarantee: ``"exact"``.
 ``wilson``
     The smallest size whose Wilson score interval (Wilson 1927) has half-width at most the
@@ -41,8 +42,9 @@ are computed in rational arithmetic and rounded up once, so ``1/(4·0.05·0.05²
 2,000 and not 2,001 (the irrational factors ``z`` and ``ln(2/α)`` enter as the exact value
 of their double-precision approximation).  Which outcomes count as misses is decided in
 exact integer
-arithmetic (``|x − n p| > n e``); only the probabilities themselves are floats (full
-double precision), and the planning condition compares them with ``α`` as floats.
+arithmetic (``|x − n p| > n e``); the probabilities themselves are floats (full double
+precision), and a comparison with ``α`` within the error band of
+:mod:`service.sampling.ties` is redone on exact fractions.
 
 References
 ----------
