@@ -77,3 +77,16 @@ def test_exact_tails_agree_with_the_textbook_sums():
                 for k in range(-1, n + 1):
                     want = ref.hypergeometric_lower(k, population, marked, n) if k >= 0 else 0
                     assert exact_tails.hypergeometric_lower(k, population, marked, n) == want
+
+
+def test_the_sample_falls_from_45_to_39_when_the_population_grows_from_100_to_101():
+    # Derived with fractions: at 5% the population holds ceil(0.05 N) deviant items, 5 for
+    # N = 100 and 6 for N = 101; the zero-deviation sizes at 95% follow from the
+    # hypergeometric definition (the README's example).
+    five, six = ref.deviant(Fraction("0.05"), 100), ref.deviant(Fraction("0.05"), 101)
+    assert (five, six) == (5, 6)
+    small = ref.sample_size(Fraction("0.05"), Fraction(0), Fraction("0.95"), 100)
+    large = ref.sample_size(Fraction("0.05"), Fraction(0), Fraction("0.95"), 101)
+    assert (small, large) == ((45, 0), (39, 0))
+    assert size_sample(0.05, 0.0, 0.95, population_size=100).sample_size == small[0]
+    assert size_sample(0.05, 0.0, 0.95, population_size=101).sample_size == large[0]
