@@ -257,7 +257,8 @@ def estimation_summary(result: dict[str, Any]) -> str:
     groups = {
         "exact": (
             "Exact",
-            "the smallest size at which the exact miss probability is within the limit",
+            "the smallest size from which every larger sample keeps the exact miss "
+            "probability within the limit",
         ),
         "approximate": (
             "Approximate",

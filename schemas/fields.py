@@ -15,6 +15,8 @@ from typing import Any
 
 from marshmallow import fields
 
+from service.sampling.rates import MAX_SIGNIFICANT_DIGITS, WrittenDecimal, significant_digits
+
 # Largest integer a JSON number carries exactly in every mainstream client
 # (IEEE double precision); larger counts are refused rather than rounded.
 MAX_EXACT_INTEGER = 2**53 - 1
@@ -25,7 +27,11 @@ def _is_number(value: Any) -> bool:
 
 
 class StrictFloat(fields.Float):
-    """A JSON number (integer or decimal), finite; strings and booleans are refused."""
+    """A JSON number (integer or decimal), finite; strings and booleans are refused.
+
+    A number read from JSON keeps the decimal the caller wrote
+    (:class:`~service.sampling.rates.WrittenDecimal`); it is passed on as it is.
+    """
 
     default_error_messages = {  # noqa: RUF012 - marshmallow's documented extension point
         "invalid": "must be a number, not {kind}",
@@ -42,7 +48,7 @@ class StrictFloat(fields.Float):
             raise self.make_error("too_large") from None
         if not math.isfinite(result):
             raise self.make_error("special")
-        return result
+        return value if isinstance(value, WrittenDecimal) else result
 
 
 def _string_rate_message(value: str) -> str:
@@ -89,6 +95,8 @@ class Rate(StrictFloat):
         if isinstance(value, str):
             raise self.make_error("validator_failed", message=_string_rate_message(value))
         result = super()._deserialize(value, attr, data, **kwargs)
+        if isinstance(result, WrittenDecimal):
+            self._check_written(result)
         low_ok = result >= 0 if self.allow_zero else result > 0
         if low_ok and result < 1:
             return result
@@ -100,6 +108,28 @@ class Rate(StrictFloat):
                 f"is {result / 100!r}"
             )
         raise self.make_error("validator_failed", message=message)
+
+    def _check_written(self, result: WrittenDecimal) -> None:
+        written = result.decimal
+        digits = significant_digits(written)
+        if digits > MAX_SIGNIFICANT_DIGITS:
+            raise self.make_error(
+                "validator_failed",
+                message=f"has {digits} significant digits; rates may have at most "
+                f"{MAX_SIGNIFICANT_DIGITS}",
+            )
+        if written != 0 and result == 0.0:
+            raise self.make_error(
+                "validator_failed",
+                message=f"{written} is below the smallest positive number this service "
+                "carries (about 4.9e-324); send 0 for none",
+            )
+        if 0 < written < 1 and not (0.0 < result < 1.0):
+            raise self.make_error(
+                "validator_failed",
+                message=f"{written} is too close to 1 to be told apart from 1 in double "
+                "precision; send at most 16 nines after the point",
+            )
 
     default_error_messages = {  # noqa: RUF012 - marshmallow's documented extension point
         **StrictFloat.default_error_messages,

@@ -5,6 +5,13 @@ last of duplicated keys and turns ``1e400`` into infinity. None of that is
 JSON (RFC 8259) a client meant to send, so :func:`loads` refuses each with a
 :class:`JSONDecodeProblem` naming what was wrong; :func:`dumps` never emits
 non-finite numbers.
+
+A number with a fraction or an exponent is read as a
+:class:`~service.sampling.rates.WrittenDecimal`: the nearest double that also
+keeps the decimal as written, so that counts computed from rates use the
+caller's decimal at any length. A number too small for a double (``1e-400``)
+reads as 0.0 with its written decimal kept, and the field that receives it
+refuses it by name.
 """
 
 from __future__ import annotations
@@ -12,6 +19,8 @@ from __future__ import annotations
 import json
 import math
 from typing import Any
+
+from service.sampling.rates import WrittenDecimal
 
 
 class JSONDecodeProblem(ValueError):
@@ -23,7 +32,9 @@ def _refuse_constant(name: str) -> Any:
 
 
 def _finite_float(text: str) -> float:
-    value = float(text)
+    if len(text) > 1000:
+        raise JSONDecodeProblem(f"the number {text[:40]}... has more than 1,000 characters")
+    value = WrittenDecimal(text)
     if not math.isfinite(value):
         raise JSONDecodeProblem(f"the number {text[:40]} is too large to represent")
     return value

@@ -48,6 +48,7 @@ from service.sampling import hypergeometric
 from service.sampling.distributions import Model, deviant_items, resolve_model
 from service.sampling.errors import ComputationTooLarge, InvalidInput, NoFeasiblePlan
 from service.sampling.rates import ceil_product, exact_rate, floor_quotient
+from service.sampling.ties import at_most, at_most_each, hypergeometric_above
 
 DEFAULT_MAX_SAMPLE_SIZE = 10_000_000
 # A computation cap: a plan allowing more deviations than this (a sample of
@@ -57,6 +58,9 @@ MAX_ALLOWED_DEVIATIONS = 10_000
 # against the hypergeometric one (common practice threshold, not a standard).
 _LARGE_SAMPLING_FRACTION = Fraction(1, 10)
 _LARGE_PLAN_FACTOR = 3
+# Expected deviations e × n below which a plan allowing ceil(e × n) = 1 deviation is
+# flagged: the expected rate adds a deviation the caller probably did not mean.
+_TINY_EXPECTED_COUNT = Fraction(1, 100)
 
 
 @dataclass(frozen=True)
@@ -190,8 +194,9 @@ def _smallest_satisfying(holds: Callable[[int], bool], lo: int, hi: int) -> int:
     return lo
 
 
-def _tail_within(tail: Callable[[Any, Any], Any], k: int, alpha: float, n: int) -> bool:
-    return bool(tail(k, n) <= alpha)
+def _tail_within(model: Model, rate: Fraction, population_size: int | None, risk: Fraction,
+                 k: int, n: int) -> bool:
+    return at_most(model.name, k, n, rate, population_size, risk).holds
 
 
 def _normal_size_estimate(tolerable: float, expected: float, confidence: float) -> float:
@@ -204,9 +209,10 @@ def _plan_search(
     model: Model,
     tolerable: Fraction,
     expected: Fraction,
-    alpha: float,
+    alpha: Fraction,
     population_size: int | None,
     max_n: int,
+    max_deviations: int = MAX_ALLOWED_DEVIATIONS,
 ) -> tuple[int, int] | None:
     """Return (n, k) of the smallest plan with n ≤ max_n, or None if there is none.
 
@@ -214,25 +220,27 @@ def _plan_search(
     holds for n ≥ n_k. The n that allow exactly k deviations form the block
     I_k = {n : ceil(e n) = k}; the first block that contains an n ≥ n_k holds
     the answer. Blocks are tested in vectorised chunks at their largest n,
-    then the answer is found by bisection inside the winning block.
+    then the answer is found by bisection inside the winning block. Every
+    comparison with the risk ``alpha`` is exact near a tie (:mod:`service.sampling.ties`).
     """
 
     def tail(k: Any, n: Any) -> Any:
         return model.lower_tail(k, n, tolerable, population_size)
 
+    within = partial(_tail_within, model, tolerable, population_size, alpha)
     if expected == 0:
-        if tail(0, max_n) > alpha:
+        if not within(0, max_n):
             return None
-        return _smallest_satisfying(lambda n: bool(tail(0, n) <= alpha), 1, max_n), 0
+        return _smallest_satisfying(partial(within, 0), 1, max_n), 0
 
     # The scan below costs time in proportion to the deviations allowed; plans
     # beyond this many are refused as impractical (see MAX_ALLOWED_DEVIATIONS).
 
     first_k, chunk = 1, 8
     while True:
-        if first_k > MAX_ALLOWED_DEVIATIONS:
+        if first_k > max_deviations:
             raise _TooManyDeviations
-        ks = list(range(first_k, first_k + chunk))
+        ks = list(range(first_k, min(first_k + chunk, max_deviations + 1)))
         # Clipped to max_n + 1 so that a tiny expected rate (1e-19) stays within int64.
         block_low = [min(floor_quotient(k - 1, expected) + 1, max_n + 1) for k in ks]
         if block_low[0] > max_n:
@@ -241,13 +249,15 @@ def _plan_search(
         k_arr = np.array(ks, dtype=np.int64)
         high_arr = np.array(block_high, dtype=np.int64)
         nonempty = np.array(block_low, dtype=np.int64) <= high_arr
-        feasible = nonempty & (tail(k_arr, np.maximum(high_arr, k_arr)) <= alpha)
+        n_arr = np.maximum(high_arr, k_arr)
+        feasible = nonempty & at_most_each(
+            model.name, k_arr, n_arr, tail(k_arr, n_arr), tolerable, population_size, alpha
+        )
         hits = np.flatnonzero(feasible)
         if hits.size:
             i = int(hits[0])
             k = ks[i]
-            holds = partial(_tail_within, tail, k, alpha)
-            return _smallest_satisfying(holds, block_low[i], block_high[i]), k
+            return _smallest_satisfying(partial(within, k), block_low[i], block_high[i]), k
         first_k += chunk
         chunk = min(4 * chunk, 4096)
 
@@ -317,7 +327,7 @@ def size_sample(
     model = resolve_model(method, population_size)
 
     tolerable, expected = exact_rate(tolerable_rate), exact_rate(expected_rate)
-    alpha = 1.0 - confidence
+    alpha = 1 - exact_rate(confidence)
     max_n = max_sample_size
     if model.needs_population and population_size is not None:
         max_n = min(max_n, population_size)
@@ -332,8 +342,9 @@ def size_sample(
     try:
         found = _plan_search(model, tolerable, expected, alpha, population_size, max_n)
     except _TooManyDeviations:
-        raise _too_large(
-            MAX_ALLOWED_DEVIATIONS / expected_rate, expected_rate, tolerable_rate, max_sample_size
+        raise _over_the_cap(
+            model, tolerable, expected, alpha, population_size, max_n, expected_rate,
+            tolerable_rate, confidence,
         ) from None
     if found is None:
         if max_n == max_sample_size:
@@ -352,11 +363,14 @@ def size_sample(
         )
     n, k = found
 
-    risk_over = float(model.lower_tail(k, n, tolerable, population_size))
+    risk_over = at_most(model.name, k, n, tolerable, population_size, alpha).value
     risk_under = 0.0 if expected == 0 else float(model.upper_tail(k, n, expected, population_size))
     # With no deviations expected the plan is its own zero-deviation plan.
     zero_size = n if expected == 0 else None
     warnings = _plan_warnings(model, n, population_size, tolerable, alpha, max_n, zero_size)
+    if 0 < expected * n < _TINY_EXPECTED_COUNT:
+        warnings += (_tiny_expected_warning(model, expected, n, k, tolerable, alpha,
+                                            population_size, max_n),)
     return SampleSizePlan(
         method=model.name,
         tolerable_rate=tolerable_rate,
@@ -373,6 +387,49 @@ def size_sample(
         tolerable_deviant_items=(
             None if population_size is None else deviant_items(tolerable, population_size)
         ),
+    )
+
+
+def _tiny_expected_warning(
+    model: Model, expected: Fraction, n: int, k: int, tolerable: Fraction, alpha: Fraction,
+    population_size: int | None, max_n: int,
+) -> str:
+    zero_plan = _plan_search(model, tolerable, Fraction(0), alpha, population_size, max_n)
+    zero = "" if zero_plan is None else f"; with an expected rate of 0 it is {zero_plan[0]:,}"
+    return (
+        f"The expected rate {float(expected):.3g} times the sample of {n:,} items is "
+        f"{float(expected * n):.3g} deviations, yet the plan allows {k} deviation"
+        f"{'' if k == 1 else 's'} (ceil(expected rate × sample size)), which enlarges the "
+        f"sample{zero}. Check that the expected rate is the one meant."
+    )
+
+
+def _over_the_cap(
+    model: Model, tolerable: Fraction, expected: Fraction, alpha: Fraction,
+    population_size: int | None, max_n: int, expected_rate: float, tolerable_rate: float,
+    confidence: float,
+) -> ComputationTooLarge:
+    """The refusal when no plan allows at most MAX_ALLOWED_DEVIATIONS deviations.
+
+    The plan that would be needed is searched for up to twice the cap so that the
+    message can name it; beyond that it is given from the normal approximation.
+    """
+    try:
+        needed = _plan_search(model, tolerable, expected, alpha, population_size, max_n,
+                              2 * MAX_ALLOWED_DEVIATIONS)
+    except _TooManyDeviations:
+        needed = None
+    if needed is None:
+        estimate = _normal_size_estimate(tolerable_rate, expected_rate, confidence)
+        plan = (f"about {estimate:,.0f} items allowing about {estimate * expected_rate:,.0f} "
+                "deviations (normal approximation)")
+    else:
+        plan = f"{needed[0]:,} items allowing {needed[1]:,} deviations"
+    return ComputationTooLarge(
+        "expected_rate",
+        f"expected_rate {expected_rate!r} is too close to tolerable_rate {tolerable_rate!r}: "
+        f"no plan allowing at most {MAX_ALLOWED_DEVIATIONS:,} deviations reaches confidence "
+        f"{confidence!r}; the plan would need {plan}",
     )
 
 
@@ -393,7 +450,7 @@ def _plan_warnings(
     n: int,
     population_size: int | None,
     tolerable: Fraction,
-    alpha: float,
+    alpha: Fraction,
     max_n: int,
     zero_size: int | None,
 ) -> tuple[str, ...]:
@@ -438,39 +495,44 @@ def _plan_warnings(
 # --- evaluation -------------------------------------------------------------
 
 
-def _binomial_upper(d: int, n: int, level: float) -> float:
-    """Clopper–Pearson one-sided upper bound at confidence ``level``."""
+# The bounds below take the risk ``alpha`` (one tail), computed exactly from the written
+# confidence and rounded once, and use the inverse of the tail that holds it, so that a
+# confidence of 99.9999% does not reach them as the rounded double 1 − 0.999999.
+
+
+def _binomial_upper(d: int, n: int, alpha: float) -> float:
+    """Clopper–Pearson one-sided upper bound with risk ``alpha``."""
     if d == n:
         return 1.0
-    return float(stats.beta.ppf(level, d + 1, n - d))
+    return float(stats.beta.isf(alpha, d + 1, n - d))
 
 
-def _binomial_lower(d: int, n: int, level: float) -> float:
-    """Clopper–Pearson one-sided lower bound at confidence ``level``."""
+def _binomial_lower(d: int, n: int, alpha: float) -> float:
+    """Clopper–Pearson one-sided lower bound with risk ``alpha``."""
     if d == 0:
         return 0.0
-    return float(stats.beta.ppf(1.0 - level, d, n - d + 1))
+    return float(stats.beta.ppf(alpha, d, n - d + 1))
 
 
-def _poisson_upper(d: int, n: int, level: float) -> float:
-    """Garwood upper bound on the rate, ``Γ⁻¹(d + 1, level) / n``, capped at 1."""
-    return min(1.0, float(special.gammaincinv(d + 1, level)) / n)
+def _poisson_upper(d: int, n: int, alpha: float) -> float:
+    """Garwood upper bound on the rate, ``λ`` with ``Q(d + 1, λ) = alpha``, over n, capped at 1."""
+    return min(1.0, float(special.gammainccinv(d + 1, alpha)) / n)
 
 
-def _poisson_lower(d: int, n: int, level: float) -> float:
-    """Garwood lower bound on the rate, ``Γ⁻¹(d, 1 − level) / n``."""
+def _poisson_lower(d: int, n: int, alpha: float) -> float:
+    """Garwood lower bound on the rate, ``λ`` with ``P(d, λ) = alpha``, over n."""
     if d == 0:
         return 0.0
-    return min(1.0, float(special.gammaincinv(d, 1.0 - level)) / n)
+    return min(1.0, float(special.gammaincinv(d, alpha)) / n)
 
 
-def _hypergeometric_upper_count(d: int, n: int, size: int, level: float) -> int:
-    """Largest deviant count M with P(X ≤ d | M) > 1 − level (exact, by bisection)."""
-    alpha = 1.0 - level
+def _hypergeometric_upper_count(d: int, n: int, size: int, alpha: Fraction) -> int:
+    """Largest deviant count M with P(X ≤ d | M) > alpha (exact, by bisection)."""
     lo, hi = d, size - (n - d)  # P(X ≤ d | M = d) = 1, so lo always qualifies
 
     def qualifies(m: int) -> bool:
-        return bool(hypergeometric.cdf(d, size, m, n) > alpha)
+        value = float(hypergeometric.cdf(d, size, m, n))
+        return hypergeometric_above(d, size, m, n, alpha, value, upper=False)
 
     if qualifies(hi):
         return hi
@@ -483,15 +545,17 @@ def _hypergeometric_upper_count(d: int, n: int, size: int, level: float) -> int:
     return lo
 
 
-def _hypergeometric_lower_count(d: int, n: int, size: int, level: float) -> int:
-    """Smallest deviant count M with P(X ≥ d | M) > 1 − level (exact, by bisection)."""
+def _hypergeometric_lower_count(d: int, n: int, size: int, alpha: Fraction) -> int:
+    """Smallest deviant count M with P(X ≥ d | M) > alpha (exact, by bisection)."""
     if d == 0:
         return 0
-    alpha = 1.0 - level
     lo, hi = d, size - (n - d)  # P(X ≥ d | M = hi) = 1, so hi always qualifies
-    return _smallest_satisfying(
-        lambda m: bool(hypergeometric.sf(d - 1, size, m, n) > alpha), lo, hi
-    )
+
+    def qualifies(m: int) -> bool:
+        value = float(hypergeometric.sf(d - 1, size, m, n))
+        return hypergeometric_above(d - 1, size, m, n, alpha, value, upper=True)
+
+    return _smallest_satisfying(qualifies, lo, hi)
 
 
 @dataclass(frozen=True)
@@ -502,30 +566,32 @@ class _Limits:
 
 
 def _binomial_limits(d: int, n: int, confidence: float, size: int | None) -> _Limits:
-    two_sided = 1.0 - (1.0 - confidence) / 2.0
+    alpha = 1 - exact_rate(confidence)
+    half = float(alpha / 2)
     return _Limits(
-        _binomial_upper(d, n, confidence),
+        _binomial_upper(d, n, float(alpha)),
         None,
-        Interval(_binomial_lower(d, n, two_sided), _binomial_upper(d, n, two_sided)),
+        Interval(_binomial_lower(d, n, half), _binomial_upper(d, n, half)),
     )
 
 
 def _poisson_limits(d: int, n: int, confidence: float, size: int | None) -> _Limits:
-    two_sided = 1.0 - (1.0 - confidence) / 2.0
+    alpha = 1 - exact_rate(confidence)
+    half = float(alpha / 2)
     return _Limits(
-        _poisson_upper(d, n, confidence),
+        _poisson_upper(d, n, float(alpha)),
         None,
-        Interval(_poisson_lower(d, n, two_sided), _poisson_upper(d, n, two_sided)),
+        Interval(_poisson_lower(d, n, half), _poisson_upper(d, n, half)),
     )
 
 
 def _hypergeometric_limits(d: int, n: int, confidence: float, size: int | None) -> _Limits:
     if size is None:
         raise InvalidInput("population.size", "the hypergeometric method needs a population size")
-    two_sided = 1.0 - (1.0 - confidence) / 2.0
-    upper = _hypergeometric_upper_count(d, n, size, confidence)
-    low = _hypergeometric_lower_count(d, n, size, two_sided)
-    high = _hypergeometric_upper_count(d, n, size, two_sided)
+    alpha = 1 - exact_rate(confidence)
+    upper = _hypergeometric_upper_count(d, n, size, alpha)
+    low = _hypergeometric_lower_count(d, n, size, alpha / 2)
+    high = _hypergeometric_upper_count(d, n, size, alpha / 2)
     return _Limits(upper / size, upper, Interval(low / size, high / size))
 
 
@@ -646,14 +712,15 @@ def evaluate_sample(
         if population_size is not None:
             tolerable_count = deviant_items(exact_rate(tolerable_rate), population_size)
         if whole and tolerable_count is not None:
+            # Every item tested: the population holds exactly d deviant items.
             risk = 1.0 if deviations >= tolerable_count else 0.0
+            supports = deviations < tolerable_count
         else:
-            risk = float(
-                model.lower_tail(
-                    deviations, sample_size, exact_rate(tolerable_rate), population_size
-                )
+            decision = at_most(
+                model.name, deviations, sample_size, exact_rate(tolerable_rate),
+                population_size, 1 - exact_rate(confidence),
             )
-        supports = risk <= 1.0 - confidence
+            risk, supports = decision.value, decision.holds
 
     warnings: list[str] = []
     if whole and not model.needs_population:

@@ -6,12 +6,13 @@ tolerable rate) asks: how many items must be drawn so that the sample rate lands
 with several methods side by side, each labelled with the kind of guarantee it gives:
 
 ``exact``
-    The smallest sample size at which the exact probability that the sample rate misses
-    the rate by more than the margin is at most ``1 - confidence`` (the plain smallest:
-    every smaller size is checked and fails).  Binomial sampling (with replacement, or an
-    unlimited population); hypergeometric when a population size is given.  With no
-    anticipated rate, the miss probability is its supremum over all rates (binomial) or
-    its maximum over all populations of the given size (hypergeometric).
+    The smallest sample size from which on the exact probability that the sample rate
+    misses the rate by more than the margin is at most ``1 - confidence`` at every larger
+    size too (see :func:`_size_exact` for this lattice rule).  Binomial sampling (with
+    replacement, or an unlimited population); hypergeometric when a population size is
+    given.  With no anticipated rate, the miss probability is its supremum over all
+    rates (binomial) or its maximum over all populations of the given size
+    (hypergeometric).
     Guarantee: ``"exact"``.
 ``wilson``
     The smallest size whose Wilson score interval (Wilson 1927) has half-width at most the
@@ -41,8 +42,9 @@ are computed in rational arithmetic and rounded up once, so ``1/(4·0.05·0.05²
 2,000 and not 2,001 (the irrational factors ``z`` and ``ln(2/α)`` enter as the exact value
 of their double-precision approximation).  Which outcomes count as misses is decided in
 exact integer
-arithmetic (``|x − n p| > n e``); only the probabilities themselves are floats (full
-double precision), and the planning condition compares them with ``α`` as floats.
+arithmetic (``|x − n p| > n e``); the probabilities themselves are floats (full double
+precision), and a comparison with ``α`` within the error band of
+:mod:`service.sampling.ties` is redone on exact fractions.
 
 References
 ----------
@@ -81,6 +83,9 @@ import numpy.typing as npt
 from scipy import stats
 
 from service.sampling.errors import ComputationTooLarge, InvalidInput
+from service.sampling.rates import WrittenDecimal, exact_rate
+from service.sampling.ties import exact_tails
+from service.sampling.ties.band import RELATIVE_BAND, near
 
 __all__ = [
     "EXACT_SIZE_LIMIT",
@@ -213,6 +218,15 @@ class _Problem:
         return self.rate * (1 - self.rate)
 
     @property
+    def population_variance_factor(self) -> Fraction:
+        """``p(1 − p)`` of the population the miss is measured from: ``M/N`` when a
+        population and a rate are given (see :func:`_population_deviations`)."""
+        if self.rate is None or self.population is None:
+            return self.variance_factor
+        share = Fraction(_population_deviations(self.population, self.rate), self.population)
+        return share * (1 - share)
+
+    @property
     def z(self) -> float:
         """Two-sided standard normal quantile ``Φ⁻¹(1 − α/2)``."""
         return float(stats.norm.ppf(1.0 - self.alpha_float / 2.0))
@@ -240,11 +254,12 @@ def _exact(number: float) -> Fraction:
 
 def _open_unit(value: object, field: str, upper: float = 1.0) -> Fraction:
     number = _real(value, field)
-    if not 0.0 < number < upper:
+    exact = exact_rate(value) if isinstance(value, WrittenDecimal) else _exact(number)
+    if not 0 < exact < _exact(upper):
         raise InvalidInput(
             field, f"must be greater than 0 and less than {upper:g}; got {number!r}"
         )
-    return _exact(number)
+    return exact
 
 
 def _population(value: object) -> int | None:
@@ -305,11 +320,12 @@ def _ceil_times(m: IntArray, q: Fraction) -> IntArray:
 def _population_deviations(population: int, rate: Fraction) -> int:
     """Number of deviations ``M`` in a population of ``N`` items at the anticipated rate.
 
-    ``M`` is ``N·p`` rounded to the nearest integer, halves rounded up, then kept within
-    ``1 … N − 1`` (a rate strictly between 0 and 1 means at least one deviation and at
-    least one conforming item) when ``N ≥ 2``.  The population rate is then ``M/N``.
+    ``M`` is ``N·p`` rounded up, as the deviant count of attribute sampling
+    (``ceil(t × N)``), then kept within ``1 … N − 1`` (a rate strictly between 0 and 1
+    means at least one deviation and at least one conforming item) when ``N ≥ 2``.  The
+    population rate is then ``M/N``, and the miss is measured from it.
     """
-    deviations = math.floor(population * rate + Fraction(1, 2))
+    deviations = math.ceil(population * rate)
     if population >= 2:
         deviations = min(max(deviations, 1), population - 1)
     return deviations
@@ -705,48 +721,101 @@ def _cap(size: int, problem: _Problem) -> int:
     return size
 
 
-def _search_smallest(last: int, alpha: float, low: Callable[[IntArray], FloatArray],
-                     value: Callable[[int], float] | None) -> tuple[int, float] | None:
-    """Smallest ``n`` in ``1 … last`` whose miss probability is at most ``alpha``.
+def _exact_miss_at_rate(size: int, rate: Fraction, margin: Fraction,
+                        population: int | None) -> Fraction | None:
+    """The miss probability at one size as an exact fraction, or None above the work limit."""
+    sizes = np.array([size], dtype=np.int64)
+    if population is None:
+        low, high = _binomial_thresholds(sizes, rate, margin)
+        if exact_tails.binomial_cost(size, size, rate) > exact_tails.WORK_LIMIT:
+            return None
+        return exact_tails.binomial_outside(int(low[0]) - 1, int(high[0]), size, rate)
+    deviations = _population_deviations(population, rate)
+    slack = _floor_times(sizes, population * margin)
+    low, high = _hypergeometric_thresholds(sizes, deviations, population, slack)
+    if exact_tails.hypergeometric_cost(size, population, deviations, size) > exact_tails.WORK_LIMIT:
+        return None
+    return exact_tails.hypergeometric_outside(int(low[0]) - 1, int(high[0]), population,
+                                              deviations, size)
+
+
+def _within(size: int, miss: float, alpha: Fraction,
+            exact_miss: Callable[[int], Fraction | None] | None) -> tuple[bool, float]:
+    """``miss ≤ α`` for the miss at ``size``, decided exactly when ``miss`` is within the
+    error band of ``α`` (:mod:`service.sampling.ties`); the miss reported beside it is
+    then the exact one, rounded once."""
+    if exact_miss is not None and near(miss, float(alpha)):
+        exact = exact_miss(size)
+        if exact is not None:
+            return exact <= alpha, float(exact)
+    return miss <= float(alpha), miss
+
+
+def _search_stable(last: int, alpha: Fraction, low: Callable[[IntArray], FloatArray],
+                   value: Callable[[int], float] | None,
+                   exact_miss: Callable[[int], Fraction | None] | None
+                   ) -> tuple[int, float] | None:
+    """Smallest ``n`` in ``1 … last`` such that every size from ``n`` to ``last`` meets the
+    condition (the caller guarantees every size above ``last`` does).
 
     ``low(ns)`` gives, for each size, the exact miss probability (``value`` is ``None``)
-    or a lower bound of it (``value(n)`` then gives the exact value).  Sizes are taken in
-    increasing chunks, so every smaller size is shown to fail.
+    or a lower bound of it (``value(n)`` then gives the exact value).  Every size up to
+    ``last`` is visited in chunks; a size whose ``low`` is above ``α`` fails and restarts
+    the search after it.  With ``value`` given, the sizes above the answer are checked on
+    the lower bound only.
     """
+    risk = float(alpha)
+    found: tuple[int, float] | None = None
     start, chunk = 1, _FIRST_CHUNK
     while start <= last:
         stop = min(last, start + chunk - 1)
         sizes = np.arange(start, stop + 1, dtype=np.int64)
         lows = low(sizes)
-        for index in np.flatnonzero(lows <= alpha).tolist():
-            size = int(sizes[index])
-            exact = float(lows[index]) if value is None else value(size)
-            if exact <= alpha:
-                return size, exact
+        fails = lows > risk
+        if value is None:
+            doubtful = np.abs(lows - risk) <= RELATIVE_BAND * np.maximum(lows, risk)
+            for at in np.flatnonzero(doubtful).tolist():
+                fails[at] = not _within(int(sizes[at]), float(lows[at]), alpha, exact_miss)[0]
+        failing = np.flatnonzero(fails)
+        first = 0
+        if failing.size:
+            found = None
+            first = int(failing[-1]) + 1
+        if found is None:
+            for index in range(first, sizes.size):
+                size = int(sizes[index])
+                double = float(lows[index]) if value is None else value(size)
+                holds, miss = _within(size, double, alpha, exact_miss)
+                if holds:
+                    found = (size, miss)
+                    break
         start, chunk = stop + 1, min(2 * chunk, _LARGEST_CHUNK)
-    return None
+    return found
 
 
 def _size_exact(problem: _Problem) -> _Sized:
-    """Exact size: the smallest ``n ≥ 1`` with miss probability ``≤ α``.
+    """Exact size: the smallest ``n ≥ 1`` such that every size ``n' ≥ n`` has miss
+    probability ``≤ α``.
 
     Lattice effect: the miss probability is not monotone in ``n`` (the count of hit
     outcomes ``⌊n(p+e)⌋ − ⌈n(p−e)⌉ + 1`` grows in steps), so a size a little above the
-    answer can fail the condition again by a small amount.  The rule adopted is the plain
-    smallest size: every size below the answer is checked and fails, the answer meets the
-    condition, and every size at or above the Chebyshev and Hoeffding sizes is certain to
-    meet it.  The search runs upwards from 1 in growing chunks; with no anticipated rate
-    it first uses the exact miss probability at a rate next to 1/2 (a lower bound of the
-    worst case) to discard sizes, then computes the worst case only for sizes that bound
-    cannot discard.  Because every smaller size is checked, the answer is monotone: it
-    never grows with the margin and never falls as the confidence rises.
+    smallest passing one can fail the condition again (margin 0.02, 99%, anticipated
+    0.995: ``n = 1`` and ``2`` pass, ``n = 3`` fails).  A plan that stops holding when one
+    more item is tested is no plan, so the answer is the smallest size from which the
+    condition holds for good.  Every size at or above the Chebyshev and Hoeffding sizes
+    (``last``, at most ``N``, where the census has no miss) is certain to meet it, so the
+    sizes from 1 to ``last`` are all checked.  With an anticipated rate the check is exact
+    at every size, and comparisons within the error band of ``α`` are made in rational
+    arithmetic (:mod:`service.sampling.ties`).  With no anticipated rate the worst case
+    is computed for the candidate answers, and the sizes above the answer are checked
+    at a rate next to 1/2 (a lower bound of the worst case), which shows every failure
+    the lattice effect causes at that rate.
 
     Limits: the exact method is not run (``ComputationTooLarge``) when the normal
     approximation already asks for more than :data:`EXACT_SIZE_LIMIT` items, or when
     sampling without replacement would need more than a few seconds of exact tail sums.
     """
     margin, rate, population = problem.margin, problem.rate, problem.population
-    alpha = problem.alpha_float
     hoeffding = _size_hoeffding(problem).sample_size
     chebyshev = _size_chebyshev(problem).sample_size
     last = min(hoeffding, chebyshev, problem.max_sample_size, EXACT_SIZE_LIMIT)
@@ -768,16 +837,8 @@ def _size_exact(problem: _Problem) -> _Sized:
             work = _hypergeometric_search_work(probable, total, worst_case=True)
         else:
             deviations = _population_deviations(total, rate)
-            if total >= 2:
-                share = Fraction(deviations, total)
-                spread = share * (1 - share)
-                last = min(last, _ceil_positive(
-                    spread * total / (problem.alpha * margin**2 * (total - 1) + spread)
-                ))
-            low = partial(_hypergeometric_miss_at_rate_low, deviations=deviations,
+            low = partial(_hypergeometric_miss_at_rate, deviations=deviations,
                           population=total, margin=margin)
-            value = partial(_hypergeometric_miss_at_rate_one, deviations=deviations,
-                            population=total, margin=margin)
             work = _hypergeometric_search_work(probable, total, worst_case=False)
         if work > _HYPERGEOMETRIC_WORK_LIMIT:
             raise ComputationTooLarge(
@@ -792,7 +853,9 @@ def _size_exact(problem: _Problem) -> _Sized:
             f"items, above {EXACT_SIZE_LIMIT:,}, the limit of the exact computation; leave "
             "'exact' out of methods or widen the margin",
         )
-    found = _search_smallest(last, alpha, low, value)
+    exact_miss = None if rate is None else partial(
+        _exact_miss_at_rate, rate=rate, margin=margin, population=population)
+    found = _search_stable(last, problem.alpha, low, value, exact_miss)
     if found is None:
         limit = min(problem.max_sample_size, EXACT_SIZE_LIMIT)
         raise ComputationTooLarge(
@@ -873,11 +936,12 @@ def _size_chebyshev(problem: _Problem) -> _Sized:
     """Chebyshev: ``P(|X/n − p| ≥ e) ≤ Var(X/n)/e² ≤ α``.
 
     ``Var = p(1−p)/n`` gives ``n ≥ p(1−p)/(α e²)`` (``1/(4 α e²)`` with no anticipated
-    rate); without replacement ``Var = p(1−p)/n · (N−n)/(N−1)``, solved exactly:
+    rate); without replacement ``Var = p(1−p)/n · (N−n)/(N−1)`` with ``p = M/N`` the
+    population's own rate (the centre the miss is measured from), solved exactly:
     ``n ≥ p(1−p) N / (α e² (N−1) + p(1−p))``, which is Cochran's correction applied to the
-    unrounded ``n₀``.
+    unrounded ``n₀``.  Both forms are proven bounds for the miss as defined.
     """
-    spread = problem.variance_factor
+    spread = problem.population_variance_factor
     scale = problem.alpha * problem.margin**2
     if problem.population is None:
         return _Sized(_ceil_positive(spread / scale), False)
@@ -1021,6 +1085,9 @@ def size_for_estimation(margin: float, confidence: float = 0.95,
         miss = result.miss_probability
         if miss is None and _miss_feasible(result.sample_size, rate, population):
             miss = _miss(result.sample_size, rate, e, population)
+            if rate is not None:
+                miss = _within(result.sample_size, miss, problem.alpha, partial(
+                    _exact_miss_at_rate, rate=rate, margin=e, population=population))[1]
         ratio = None if exact_size is None else result.sample_size / exact_size
         rows.append(EstimationRow(
             method=name,

@@ -9,8 +9,10 @@ for ``x`` in the support ``max(0, n − (N − M)) ≤ x ≤ min(n, M)`` and zer
 elsewhere. This module gives the probability (:func:`pmf`), the lower tail
 ``P(X ≤ k)`` (:func:`cdf`) and the upper tail ``P(X > k)`` (:func:`sf`) in
 double precision for ``N`` up to 10^12 and samples up to 10^7 items. The
-relative error is below about 10^-13 for results above 10^-20 and grows in
-proportion to ``|log P|`` below that, to a few times 10^-13 near the bottom of
+relative error measured against exact fractions (``bench/tail_accuracy.py``) is
+below 1.3·10^-13 for samples up to 20,000 items; it grows with the sample (of order
+10^-12 at 10^5 to 10^7 items) and in
+proportion to ``|log P|`` for small results, to a few times 10^-13 near the bottom of
 the range of normal doubles (10^-308); subnormal results lose precision.
 
 Method

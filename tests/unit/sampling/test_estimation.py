@@ -274,9 +274,9 @@ def test_hypergeometric_miss_against_exact_integers() -> None:
         _reference_hypergeometric_miss(8, 20, 5, 0.125), rel=1e-13)
 
 
-def test_population_deviations_round_half_up() -> None:
-    # Documented rule: M = N p rounded to nearest, halves up (10 · 0.25 = 2.5 → 3), and the
-    # miss is measured from M/N.  Reference: exact integer sums.
+def test_population_deviations_round_up() -> None:
+    # Documented rule: M = N p rounded up, as in attribute sampling (10 · 0.25 = 2.5 → 3),
+    # and the miss is measured from M/N.  Reference: exact integer sums.
     assert exact_miss_probability(4, 0.25, 0.2, 10) == pytest.approx(
         _reference_hypergeometric_miss(4, 10, 3, 0.2), rel=1e-13)
 
@@ -285,8 +285,11 @@ def test_population_deviations_round_half_up() -> None:
     (120, 4200, 420, 0.05), (353, 4200, 2100, 0.05), (700, 9000, 77, 0.01),
 ])
 def test_hypergeometric_miss_against_scipy(n: int, big_n: int, m: int, e: float) -> None:
-    # Reference: scipy.stats.hypergeom.pmf summed over the missing outcomes.
+    # Reference: scipy.stats.hypergeom.pmf summed over the missing outcomes.  The rate is
+    # the decimal m / N prints as; the documented rule M = ceil(N p) on that decimal
+    # (0.008555555555555556 · 9000 = 77.000000000000004 → 78).
     p = m / big_n
+    m = math.ceil(big_n * Fraction(repr(p)))
     margin = Fraction(repr(e))
     misses = [x for x in range(n + 1) if abs(Fraction(x, n) - Fraction(m, big_n)) > margin]
     expected = float(np.sum(stats.hypergeom.pmf(misses, big_n, m, n)))
@@ -362,10 +365,10 @@ def test_exact_worst_case_size_one_percent_at_99() -> None:
     (0.25, 0.95, None, 20),
     (0.1, 0.9, None, 33),
 ])
-def test_exact_size_is_the_plain_smallest(margin: float, confidence: float,
-                                          rate: float | None, population: int | None) -> None:
-    # The documented lattice rule, checked against every smaller size with independent
-    # computations (exact integer sums or scipy.stats.hypergeom).
+def test_exact_size_holds_from_the_answer_on(margin: float, confidence: float,
+                                             rate: float | None, population: int | None) -> None:
+    # The documented lattice rule: every size from the answer to the census meets the
+    # condition and the size below it does not, checked with exact integer sums.
     alpha = _alpha(confidence)
     n = _size("exact", margin, confidence, rate, population)
     assert population is not None
@@ -373,13 +376,12 @@ def test_exact_size_is_the_plain_smallest(margin: float, confidence: float,
     def reference(size: int) -> float:
         if rate is None:
             return _reference_hypergeometric_maximum(size, population, margin)
-        # documented rule: M = N p rounded to nearest (halves up), kept within 1 … N − 1
-        m = min(max(math.floor(population * Fraction(repr(rate)) + Fraction(1, 2)), 1),
-                population - 1)
+        # documented rule: M = N p rounded up, kept within 1 … N − 1
+        m = min(max(math.ceil(population * Fraction(repr(rate))), 1), population - 1)
         return _reference_hypergeometric_miss(size, population, m, margin)
 
-    assert reference(n) <= alpha
-    assert all(reference(size) > alpha for size in range(1, n))
+    assert all(reference(size) <= alpha for size in range(n, population + 1))
+    assert reference(n - 1) > alpha
 
 
 def test_exact_with_population_against_scipy() -> None:
