@@ -22,7 +22,7 @@ import numpy as np
 
 from service.sampling.distributions import MODELS, deviant_items
 from service.sampling.ties import exact_tails, poisson_bounds
-from service.sampling.ties.band import near
+from service.sampling.ties.band import RELATIVE_BAND, near
 
 
 @dataclass(frozen=True)
@@ -125,7 +125,9 @@ def at_most_each(
     ks_b, ns_b = np.broadcast_to(ks, values.shape), np.broadcast_to(ns, values.shape)
     risk_float = float(risk)
     result = values <= risk_float
-    doubtful = np.abs(values - risk_float) <= 1e-9 * np.maximum(abs(risk_float), np.abs(values))
+    doubtful = np.abs(values - risk_float) <= RELATIVE_BAND * np.maximum(
+        abs(risk_float), np.abs(values)
+    )
     for index in zip(*np.nonzero(doubtful), strict=True):
         result[index] = at_most(
             model, int(ks_b[index]), int(ns_b[index]), rate, population_size, risk,

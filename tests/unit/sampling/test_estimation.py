@@ -352,6 +352,17 @@ def test_exact_worst_case_size_against_brute_force(margin: float, confidence: fl
     assert _reference_binomial_supremum(n - 1, margin) > alpha
 
 
+@pytest.mark.parametrize(("margin", "confidence"), [(0.25, 0.8), (0.3, 0.9)])
+def test_exact_worst_case_size_holds_for_good(margin: float, confidence: float) -> None:
+    # Reference: brute-force supremum over rates (scipy.stats.binom.pmf sums) at every size
+    # from the answer to the Hoeffding size, beyond which Hoeffding's inequality holds.
+    alpha = _alpha(confidence)
+    plan = size_for_estimation(margin, confidence, methods=["exact", "hoeffding"])
+    n, last = plan.rows[0].sample_size, plan.rows[1].sample_size
+    assert all(_reference_binomial_supremum(size, margin) <= alpha
+               for size in range(n, last + 1))
+
+
 def test_exact_worst_case_size_one_percent_at_99() -> None:
     # Reference: scipy.stats.binom at every breakpoint, at n and n − 1.
     n = _size("exact", 0.01, 0.99)

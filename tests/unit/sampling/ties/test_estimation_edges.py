@@ -146,3 +146,20 @@ def test_distribution_free_rows_never_report_a_miss_above_the_risk_in_small_popu
                 miss = hypergeometric_miss(row.sample_size, population, marked,
                                            Fraction("0.05"))
                 assert miss <= Fraction("0.05"), (population, p, row)
+
+
+@pytest.mark.parametrize(("margin", "confidence"), [("0.05", "0.95"), ("0.1", "0.9"),
+                                                    ("0.2", "0.8")])
+def test_exact_sizes_in_small_populations_meet_the_rational_definition(margin, confidence):
+    # Fractions: for every population of 2 to 30 items, the smallest n from which every
+    # sample up to the census (n = N, no miss) keeps the miss within 1 − confidence.
+    e, alpha = Fraction(margin), 1 - Fraction(confidence)
+    for population in range(2, 31):
+        for p in ("0.01", "0.1", "0.3", "0.5", "0.75"):
+            marked = min(max(ref.deviant(Fraction(p), population), 1), population - 1)
+            misses = [hypergeometric_miss(n, population, marked, e)
+                      for n in range(1, population + 1)]
+            want = stable_answer(misses, alpha)
+            plan = size_for_estimation(float(margin), float(confidence), float(p), population,
+                                       methods=["exact"])
+            assert plan.rows[0].sample_size == want, (population, p)
