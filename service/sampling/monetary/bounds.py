@@ -1,0 +1,111 @@
+"""Upper limits of the misstatement rate per monetary unit, from the taints of a sample.
+
+Each function takes the taints of the n sampled units that were misstated (a taint is the
+misstatement of an item as a fraction of its book amount; units that were not misstated have
+taint 0 and are not listed) and returns the upper limit in sampling intervals: multiplied by
+the sampling interval J = B / n it is a limit in money.
+
+- :func:`stringer` -- the Stringer bound (Stringer 1963; AICPA Audit Guide *Audit Sampling*,
+  chapter on monetary-unit sampling): RF(0) + sum over taints ordered from the largest of
+  (RF(i) - RF(i - 1)) x taint_i, with Poisson or binomial factors RF.
+- :func:`cell` -- cell evaluation (Leslie, Teitlebaum & Anderson, *Dollar-Unit Sampling*,
+  1979): U_0 = RF(0); U_i = max(U_{i-1} + t_i, RF(i) x mean(t_1..t_i)), taints ordered from
+  the largest; the limit is U_m. Poisson factors.
+- :func:`betting` -- the betting confidence bound for the mean of bounded variables
+  (Waudby-Smith & Ramdas, "Estimating means of bounded random variables by betting",
+  JRSS-B 86(1), 2024), on the n taints in [0, 1] including the zeros. The wealth of
+  a bettor against "mean >= m" is, for a fixed bet lambda in [0, 1],
+  K(m, lambda) = prod_i (1 - lambda (x_i - m)); averaging over a fixed grid of bets (the
+  paper's diversified betting) keeps E[K] <= 1 at the true mean for independent draws with
+  replacement, and the bound is the largest m whose average wealth stays below
+  1 / (1 - confidence) (Markov's inequality). K grows with m, so the limit is found by
+  bisection. The guarantee needs independent uniform selection of units and taints in
+  [0, 1]; it holds for any distribution of taints.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Sequence
+from typing import Final
+
+import numpy as np
+
+from service.sampling.monetary.factors import binomial_factor, poisson_factor
+
+BETS: Final = np.array([0.1, 0.25, 0.5, 0.75, 0.875, 0.9375, 0.97, 0.985, 0.995, 1.0])
+"""The fixed grid of bets averaged by :func:`betting` (chosen before any data)."""
+
+
+def _ordered(taints: Sequence[float]) -> list[float]:
+    return sorted(taints, reverse=True)
+
+
+def stringer(taints: Sequence[float], confidence: float, sample_size: int | None = None) -> float:
+    """Stringer limit in sampling intervals; binomial factors when ``sample_size`` is given.
+
+    >>> round(stringer([0.5, 0.2], 0.95), 4)
+    4.1802
+    """
+
+    def factor(k: int) -> float:
+        if sample_size is None:
+            return poisson_factor(k, confidence)
+        return binomial_factor(k, sample_size, confidence)
+
+    limit = factor(0)
+    previous = limit
+    for i, taint in enumerate(_ordered(taints), start=1):
+        current = factor(i)
+        limit += (current - previous) * taint
+        previous = current
+    return limit
+
+
+def cell(taints: Sequence[float], confidence: float) -> float:
+    """Cell-evaluation limit in sampling intervals (Poisson factors).
+
+    >>> round(cell([0.5, 0.2], 0.95), 4), round(cell([1.0], 0.95), 4)
+    (3.6957, 4.7439)
+    """
+    limit = poisson_factor(0, confidence)
+    running = 0.0
+    for i, taint in enumerate(_ordered(taints), start=1):
+        running += taint
+        limit = max(limit + taint, poisson_factor(i, confidence) * running / i)
+    return limit
+
+
+def _log_wealth(values: np.ndarray, counts: np.ndarray, m: float) -> float:
+    """log of the average over :data:`BETS` of prod (1 - lambda (x - m))^count."""
+    factors = 1.0 - np.outer(BETS, values - m)
+    with np.errstate(divide="ignore"):
+        logs = (np.log(np.clip(factors, 0.0, None)) * counts).sum(axis=1)
+    top = logs.max()
+    if not np.isfinite(top):
+        return float("-inf")
+    return float(top + np.log(np.exp(logs - top).mean()))
+
+
+def betting(taints: Sequence[float], sample_size: int, confidence: float) -> float:
+    """Betting upper limit of the mean taint, times n (in sampling intervals).
+
+    ``taints`` are the nonzero taints, each in (0, 1]; the other units have taint 0.
+
+    >>> limit = betting([], 60, 0.95)
+    >>> 2.9957 < limit < 6
+    True
+    """
+    listed = np.asarray(list(taints), dtype=float)
+    values = np.concatenate(([0.0], listed))
+    counts = np.concatenate(([float(sample_size - len(listed))], np.ones(len(listed))))
+    threshold = float(np.log(1.0 / (1.0 - confidence)))
+    low, high = float(listed.mean() * len(listed) / sample_size) if len(listed) else 0.0, 1.0
+    if _log_wealth(values, counts, high) < threshold:
+        return float(sample_size)
+    for _ in range(60):
+        middle = (low + high) / 2
+        if _log_wealth(values, counts, middle) >= threshold:
+            high = middle
+        else:
+            low = middle
+    return high * sample_size
