@@ -21,11 +21,13 @@ from schemas.monetary import (
 from service.http.markdown import TicketLayout
 from service.http.operations import Operation, blueprint
 from service.http.selection import CSV, csv_cell
+from service.render.margin_chart import MarginBar, render_margin_svg
 from service.sampling.errors import ComputationTooLarge
 from service.sampling.monetary.amounts import to_units
 from service.sampling.monetary.evaluation import Misstatement, evaluate_monetary_sample
 from service.sampling.monetary.selection import select_units
 from service.sampling.monetary.sizing import MonetaryPlan, size_monetary_sample
+from service.sampling.wording import CAUTION
 from service.settings import Settings
 
 
@@ -102,6 +104,33 @@ def _evaluate(inputs: dict[str, Any], settings: Settings) -> Any:
             inputs.get("tolerable_misstatement"), "tolerable_misstatement", scale
         ),
         scale=scale,
+    )
+
+
+SVG = "image/svg+xml"
+
+
+def render_margin(document: dict[str, Any], result: Any) -> str:
+    """The evaluation's overstatement limits against the tolerable misstatement, as SVG."""
+    bars = [
+        MarginBar(
+            row["method"],
+            Decimal(row["projected_misstatement"]),
+            None
+            if row["upper_misstatement_limit"] is None
+            else Decimal(row["upper_misstatement_limit"]),
+        )
+        for row in document["limits"]
+        if row["direction"] == "overstatement"
+    ]
+    tolerable = document["tolerable_misstatement"]
+    recommended = document["overstatement"]["recommended"]
+    return render_margin_svg(
+        bars,
+        book_value=Decimal(document["book_value"]),
+        tolerable_misstatement=None if tolerable is None else Decimal(tolerable),
+        caption=f"{document['sample_size']:,} sampling units, confidence "
+        f"{document['confidence']:g}; recommended: {recommended}. {CAUTION}",
     )
 
 
@@ -235,12 +264,15 @@ OPERATIONS = [
             "upper misstatement limit by the Stringer bound (Poisson and binomial factors), "
             "cell evaluation and the betting bound, side by side; recommended is the tightest "
             "limit among the methods whose guarantee holds for the selection method. "
-            "Individually significant items' misstatements count in full."
+            "Individually significant items' misstatements count in full. With "
+            "Accept: image/svg+xml the answer is a chart of each method's overstatement "
+            "limit and projected misstatement against the tolerable misstatement."
         ),
         request=MonetaryEvaluationRequest,
         response=MonetaryEvaluationSchema,
         run=_evaluate,
         tag="monetary-unit sampling",
+        renderers={SVG: render_margin},
         ticket=TicketLayout(
             answer=(
                 "sample_size",
