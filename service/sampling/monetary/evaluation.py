@@ -10,7 +10,11 @@ Definitions (amounts in smallest currency units):
   known in full and carry no sampling risk (they are added to every limit as they are).
 - *Basic precision*: the limit with no misstatement, J x RF(0) for the factor-based
   methods; *incremental allowance*: the limit less the projected misstatement and the
-  basic precision.
+  basic precision. The betting bound is not built from basic precision and increments, so
+  for it the split is only a comparison (its basic precision is its limit with no
+  misstatement, and its incremental allowance can be negative); so can that of the
+  binomial-factor Stringer bound in very small samples, whose factor increments fall
+  below 1.
 - *Net most likely misstatement*: projected overstatement less projected understatement.
 - *Taints above 100%* (an overstatement whose audited amount is negative, or an
   understatement more than the book amount): the Stringer and cell bounds use the taint

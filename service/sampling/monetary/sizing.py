@@ -27,6 +27,7 @@ from __future__ import annotations
 
 from collections.abc import Callable, Mapping
 from dataclasses import dataclass
+from decimal import Decimal
 from fractions import Fraction
 from math import ceil
 from typing import Final
@@ -211,6 +212,6 @@ def size_monetary_sample(
         basic_precision=interval * Fraction(rf0),
         expected_upper_limit=expected_limit,
         achieved_risk_of_incorrect_acceptance=achieved,
-        risk_of_incorrect_acceptance=1 - confidence,
+        risk_of_incorrect_acceptance=float(1 - Decimal(repr(confidence))),
         warnings=tuple(warnings),
     )

@@ -4,17 +4,22 @@ from __future__ import annotations
 
 import hashlib
 import hmac
+import json
 import struct
 from fractions import Fraction
+from pathlib import Path
 
 import pytest
 
 from service.sampling.errors import InvalidInput
+from service.sampling.monetary.amounts import to_units
 from service.sampling.monetary.selection import (
     ALGORITHM_ID,
     select_units,
     split_significant,
 )
+
+ROOT = Path(__file__).resolve().parents[4]
 
 # A fictional ledger of receivables (Kestrel Valley Foods Ltd), amounts in cents.
 LEDGER = (
@@ -169,3 +174,28 @@ def test_bad_populations_name_the_field(
 def test_unknown_method_is_refused() -> None:
     with pytest.raises(InvalidInput, match="method"):
         select_units(LEDGER, 3, seed="x", method="systematic")
+
+
+def test_the_published_test_vector() -> None:
+    # README, "Test vector (monetary selection)": re-performed here from the written
+    # specification with hmac and hashlib alone (words, uniform, owner above).
+    example = json.loads((ROOT / "examples" / "kestrel-receivables.json").read_text())
+    population = tuple(
+        (item["id"], to_units(item["amount"], "amount")) for item in example["population"]
+    )
+    seed, n = example["seed"], example["sample_size"]
+    rest, left = rest_of(population, n)
+    total = sum(amount for _, amount in rest)
+    r = uniform(words(seed), total)
+    units = [(r + k * total) // left for k in range(left)]
+    assert [u + 1 for u in units] == [265004, 1683064, 3101123, 4519183, 5937243]
+    assert [owner(rest, u) for u in units] == [
+        "KV-0003", "KV-0005", "KV-0014", "KV-0017", "KV-0020"]
+    chosen = select_units(population, n, seed=seed, method=example["method"])
+    assert [(i.id, i.units) for i in chosen.items] == [
+        (owner(rest, u), (u + 1,)) for u in units]
+    assert [i for i, _ in chosen.individually_significant] == ["KV-0009", "KV-0001", "KV-0012"]
+    assert chosen.population_fingerprint == (
+        "a6aa372d4cc51cb6ceef9172240bccf15c217d71ecbeddf8ec99ab5d580e17b1")
+    assert chosen.selection_fingerprint == (
+        "d1cd7d4483dd7f385157708c6d5eb64bb3592b430d5b9d9e471b8f882bbd6654")
