@@ -104,6 +104,7 @@ def _evaluate(inputs: dict[str, Any], settings: Settings) -> Any:
             inputs.get("tolerable_misstatement"), "tolerable_misstatement", scale
         ),
         scale=scale,
+        max_sample_size=settings.max_items,
     )
 
 

@@ -30,8 +30,7 @@ from functools import lru_cache
 from typing import Final
 
 import numpy as np
-
-from service.sampling.monetary.factors import binomial_factor, poisson_factor
+from scipy import special
 
 BETS: Final = np.array([0.1, 0.25, 0.5, 0.75, 0.875, 0.9375, 0.97, 0.985, 0.995, 1.0])
 """The fixed grid of bets averaged by :func:`betting` (chosen before any data)."""
@@ -41,25 +40,26 @@ def _ordered(taints: Sequence[float]) -> list[float]:
     return sorted(taints, reverse=True)
 
 
+def _factors(count: int, confidence: float, sample_size: int | None) -> np.ndarray:
+    """RF(0), ..., RF(count): Poisson, or binomial for ``sample_size`` (one vectorised call)."""
+    k = np.arange(count + 1, dtype=float)
+    if sample_size is None:
+        return np.asarray(special.gammaincinv(k + 1, confidence), dtype=float)
+    inside = k < sample_size
+    upper = np.ones_like(k)
+    upper[inside] = special.betaincinv(k[inside] + 1, sample_size - k[inside], confidence)
+    return sample_size * upper
+
+
 def stringer(taints: Sequence[float], confidence: float, sample_size: int | None = None) -> float:
     """Stringer limit in sampling intervals; binomial factors when ``sample_size`` is given.
 
     >>> round(stringer([0.5, 0.2], 0.95), 4)
     4.1802
     """
-
-    def factor(k: int) -> float:
-        if sample_size is None:
-            return poisson_factor(k, confidence)
-        return binomial_factor(k, sample_size, confidence)
-
-    limit = factor(0)
-    previous = limit
-    for i, taint in enumerate(_ordered(taints), start=1):
-        current = factor(i)
-        limit += (current - previous) * taint
-        previous = current
-    return limit
+    ordered = np.asarray(_ordered(taints), dtype=float)
+    factors = _factors(len(ordered), confidence, sample_size)
+    return float(factors[0] + np.dot(np.diff(factors), ordered))
 
 
 def cell(taints: Sequence[float], confidence: float) -> float:
@@ -68,12 +68,14 @@ def cell(taints: Sequence[float], confidence: float) -> float:
     >>> round(cell([0.5, 0.2], 0.95), 4), round(cell([1.0], 0.95), 4)
     (3.6957, 4.7439)
     """
-    limit = poisson_factor(0, confidence)
+    ordered = _ordered(taints)
+    factors = _factors(len(ordered), confidence, None).tolist()
+    limit = factors[0]
     running = 0.0
-    for i, taint in enumerate(_ordered(taints), start=1):
+    for i, taint in enumerate(ordered, start=1):
         running += taint
-        limit = max(limit + taint, poisson_factor(i, confidence) * running / i)
-    return limit
+        limit = max(limit + taint, factors[i] * running / i)
+    return float(limit)
 
 
 def _log_wealth(values: np.ndarray, counts: np.ndarray, m: float) -> float:

@@ -42,7 +42,7 @@ from dataclasses import dataclass
 from fractions import Fraction
 from typing import Final
 
-from service.sampling.errors import InvalidInput
+from service.sampling.errors import ComputationTooLarge, InvalidInput
 from service.sampling.monetary import bounds
 from service.sampling.monetary.selection import METHODS as SELECTION_METHODS
 
@@ -63,6 +63,7 @@ GUARANTEE_TEXT: Final[Mapping[str, str]] = {
 }
 
 METHODS: Final = tuple(GUARANTEES)
+DEFAULT_MAX_SAMPLE_SIZE: Final = 1_000_000
 DIRECTIONS: Final = ("overstatement", "understatement")
 
 
@@ -235,6 +236,7 @@ def evaluate_monetary_sample(
     tolerable_misstatement: int | None = None,
     *,
     scale: int = 2,
+    max_sample_size: int = DEFAULT_MAX_SAMPLE_SIZE,
 ) -> MonetaryEvaluation:
     """Evaluate the misstatements of a monetary-unit sample (module Notes).
 
@@ -257,6 +259,10 @@ def evaluate_monetary_sample(
     if tolerable_misstatement is not None and not 0 < tolerable_misstatement < book_value:
         raise InvalidInput("tolerable_misstatement", "must be above 0 and below book_value")
     n = resolve_sample_size(book_value, sample_size, sampling_interval)
+    if n > max_sample_size:
+        raise ComputationTooLarge(
+            "sample_size", f"{n:,} sampling units; the limit is {max_sample_size:,}"
+        )
     interval = Fraction(book_value, n)
     over: list[tuple[Fraction, int]] = []
     under: list[tuple[Fraction, int]] = []

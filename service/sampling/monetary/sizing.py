@@ -29,7 +29,7 @@ from collections.abc import Callable, Mapping
 from dataclasses import dataclass
 from decimal import Decimal
 from fractions import Fraction
-from math import ceil
+from math import ceil, log, log1p
 from typing import Final
 
 from scipy import special
@@ -73,13 +73,41 @@ _Sizer = Callable[[int, int, int, float, int], int]
 
 
 def _scan(fits: Callable[[int], bool], first: int, limit: int) -> int:
-    """The smallest n from ``first`` up to ``limit`` for which ``fits(n)``."""
-    n = max(first, 1)
-    while n <= limit:
+    """The smallest n from ``first`` up to ``limit`` for which ``fits(n)``.
+
+    Galloping then bisection: the conditions hold from some n on (the upper limits grow
+    concavely with the number of misstatements -- the Poisson factors' increments 1.75,
+    1.55, 1.46, ... fall -- so n x t less the limit is convex in n and, negative at 0,
+    stays positive once positive). The hypergeometric condition, with its whole k, may
+    not be monotone near a step of k, so the values just below the bisection's answer
+    are checked one by one (up to ``_CHECKED_BELOW`` of them).
+    """
+    low = max(first, 1) - 1  # fits(low) is false or low is 0
+    if low >= limit:
+        raise _infeasible(limit)
+    step, high = 1, low + 1
+    while not fits(high):
+        if high >= limit:
+            raise _infeasible(limit)
+        low, step = high, step * 2
+        high = min(limit, high + step)
+    while high - low > 1:
+        middle = (low + high) // 2
+        if fits(middle):
+            high = middle
+        else:
+            low = middle
+    for n in range(high - 1, max(first, 1, high - _CHECKED_BELOW) - 1, -1):
         if fits(n):
-            return n
-        n += 1
-    raise NoFeasiblePlan(
+            high = n
+    return high
+
+
+_CHECKED_BELOW: Final = 200
+
+
+def _infeasible(limit: int) -> NoFeasiblePlan:
+    return NoFeasiblePlan(
         "tolerable_misstatement",
         f"no sample size up to {limit:,} meets the confidence; raise tolerable_misstatement "
         "or lower expected_misstatement",
@@ -99,7 +127,7 @@ def _binomial(bv: int, tm: int, em: int, confidence: float, limit: int) -> int:
         k = float(e * n)
         return n > k and float(special.betaincinv(k + 1, n - k, confidence)) <= t
 
-    return _scan(fits, 1, limit)
+    return _scan(fits, ceil(log(1 - confidence) / log1p(-float(t))), limit)
 
 
 def _hypergeometric(bv: int, tm: int, em: int, confidence: float, limit: int) -> int:
@@ -109,7 +137,10 @@ def _hypergeometric(bv: int, tm: int, em: int, confidence: float, limit: int) ->
         k = ceil(Fraction(em * n, bv))
         return k < n and hypergeometric_risk(k, n, bv, tm) <= alpha
 
-    return _scan(fits, 1, min(limit, bv))
+    t = tm / bv
+    # P(X = 0) >= (1 - 2t)^n while n <= N / 2, so fewer units cannot be enough.
+    first = ceil(log(alpha) / log1p(-2 * t)) if t < 0.5 else 1
+    return _scan(fits, min(first, bv // 2), min(limit, bv))
 
 
 def _expansion(bv: int, tm: int, em: int, confidence: float, limit: int) -> int:

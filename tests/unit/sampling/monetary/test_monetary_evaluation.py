@@ -9,7 +9,7 @@ import numpy as np
 import pytest
 from scipy import stats
 
-from service.sampling.errors import InvalidInput
+from service.sampling.errors import ComputationTooLarge, InvalidInput
 from service.sampling.monetary import bounds
 from service.sampling.monetary.evaluation import Misstatement, evaluate_monetary_sample
 
@@ -177,3 +177,18 @@ def test_bad_input_names_the_field(kwargs: dict[str, object], field: str) -> Non
 def test_interval_alone_gives_the_sample_size() -> None:
     result = evaluate_monetary_sample(BV, [], sampling_interval=Fraction(1_000_000))
     assert result.sample_size == 60
+
+
+def test_a_sample_above_the_limit_is_refused() -> None:
+    with pytest.raises(ComputationTooLarge) as caught:
+        evaluate_monetary_sample(2**60, [Misstatement("A", 10, 5, hits=2**40)],
+                                 sample_size=2**50)
+    assert caught.value.field == "sample_size"
+
+
+def test_binomial_stringer_factors_match_scipy_one_by_one() -> None:
+    # scipy.stats.beta, one factor at a time: n x beta.ppf(c, k + 1, n - k).
+    taints = [0.9, 0.4, 0.3, 0.05]
+    factors = [40 * stats.beta.ppf(0.9, k + 1, 40 - k) for k in range(5)]
+    expected = factors[0] + sum((factors[i + 1] - factors[i]) * t for i, t in enumerate(taints))
+    assert bounds.stringer(taints, 0.9, 40) == pytest.approx(expected)

@@ -9,7 +9,7 @@ from math import ceil
 import pytest
 from scipy import stats
 
-from service.sampling.errors import InvalidInput
+from service.sampling.errors import InvalidInput, NoFeasiblePlan
 from service.sampling.monetary.amounts import to_decimal
 from service.sampling.monetary.sizing import size_monetary_sample
 
@@ -110,3 +110,20 @@ def test_bad_input_names_the_field(kwargs: dict[str, object], field: str) -> Non
     with pytest.raises(InvalidInput) as caught:
         size_monetary_sample(**kwargs)  # type: ignore[arg-type]
     assert caught.value.field == field
+
+
+@pytest.mark.parametrize("method", ["poisson", "binomial", "hypergeometric"])
+def test_an_unreachable_plan_is_refused(method: str) -> None:
+    # One cent tolerable in 10^16 currency units needs about 3 x 10^18 units: beyond any cap.
+    with pytest.raises(NoFeasiblePlan):
+        size_monetary_sample(10**18, 1, method=method)
+
+
+@pytest.mark.parametrize("method", ["poisson", "binomial", "hypergeometric"])
+def test_expected_close_to_tolerable_gives_a_large_minimal_size(method: str) -> None:
+    bv, tm, em = 10**9, 10**7, 9 * 10**6
+    n = size_monetary_sample(bv, tm, em, method=method).sample_size
+    assert n > 1_000
+    if method == "poisson":  # scipy.stats.gamma, independently
+        assert stats.gamma.ppf(0.95, em / bv * n + 1) <= n * tm / bv + 1e-9
+        assert stats.gamma.ppf(0.95, em / bv * (n - 1) + 1) > (n - 1) * tm / bv
