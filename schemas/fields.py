@@ -137,7 +137,7 @@ def json_kind(value: Any) -> str:
 
 
 # A decimal written out in plain notation: optional minus, digits, optional point and digits.
-_DECIMAL_TEXT = re.compile(r"-?[0-9]+(\.[0-9]+)?")
+PLAIN_DECIMAL = re.compile(r"-?[0-9]+(\.[0-9]+)?")
 # Significant digits a JSON number keeps through a binary double (IEEE 754: 15 always do).
 EXACT_DIGITS = 15
 
@@ -167,7 +167,7 @@ class Amount(fields.Field):  # type: ignore[type-arg]
 
     def _deserialize(self, value: Any, attr: str | None, data: Any, **kwargs: Any) -> Decimal:
         if isinstance(value, str):
-            if not _DECIMAL_TEXT.fullmatch(value):
+            if not PLAIN_DECIMAL.fullmatch(value):
                 raise self.make_error("text", value=value[:80])
             return Decimal(value)
         if not _is_number(value):

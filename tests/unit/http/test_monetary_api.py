@@ -186,3 +186,19 @@ def test_evaluation_bad_input_names_the_field(
     client: FlaskClient, change: dict[str, Any], field: str
 ) -> None:
     assert field in problem_fields(post(client, EVALUATION, {**STRINGER_EXAMPLE, **change}))
+
+
+def test_many_bad_items_are_named_by_index_then_counted(client: FlaskClient) -> None:
+    population = [{"id": f"KV-{i}", "amount": "12.5x"} for i in range(7)]
+    errors = problem_fields(post(client, SELECTION, {"population": population,
+                                                     "sample_size": 1}))
+    assert [f"population[{i}].amount" in errors for i in range(7)] == [True] * 5 + [False] * 2
+    assert any("7 entries are invalid" in m for m in errors["population"])
+
+
+def test_numbers_and_strings_give_the_same_selection(client: FlaskClient) -> None:
+    # 480.0, 99.9 and 0 as JSON numbers read as the decimals "480.00", "99.90" and "0.00".
+    as_text = [{"id": item["id"], "amount": f"{float(item['amount']):.2f}"} for item in LEDGER]
+    first = post(client, SELECTION, {"population": LEDGER, "sample_size": 6, "seed": "k"})
+    second = post(client, SELECTION, {"population": as_text, "sample_size": 6, "seed": "k"})
+    assert first.get_json() == second.get_json()
