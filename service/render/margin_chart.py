@@ -17,7 +17,7 @@ import textwrap
 from collections.abc import Sequence
 from dataclasses import dataclass
 from decimal import Decimal
-from xml.sax.saxutils import escape
+from html import escape
 
 __all__ = ["MarginBar", "render_margin_svg"]
 
