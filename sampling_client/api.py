@@ -53,6 +53,9 @@ OPERATION_PATHS = {
     "selection": "/v1/selection",
     "estimation-sample-size": "/v1/estimation/sample-size",
     "plan-curve": "/v1/plans/curve",
+    "monetary-sample-size": "/v1/monetary/sample-size",
+    "monetary-selection": "/v1/monetary/selection",
+    "monetary-evaluation": "/v1/monetary/evaluation",
     "batch": "/v1/batch",
 }
 
@@ -312,6 +315,25 @@ class SamplingClient:
     def plan_curve_svg(self, request: Body = None, /, **fields: Any) -> str:
         """``POST /v1/plans/curve`` as an SVG chart."""
         return self.call_text("plan-curve", {**(request or {}), **fields}, SVG)
+
+    def monetary_sample_size(self, request: Body = None, /, **fields: Any) -> dict[str, Any]:
+        """``POST /v1/monetary/sample-size``: sampling units and interval for a test of details.
+
+        ``client.monetary_sample_size(book_value="2500000.00", tolerable_misstatement=125000)``.
+        """
+        return self.call("monetary-sample-size", {**(request or {}), **fields})
+
+    def monetary_selection(self, request: Body = None, /, **fields: Any) -> dict[str, Any]:
+        """``POST /v1/monetary/selection``: currency units selected reproducibly, as JSON."""
+        return self.call("monetary-selection", {**(request or {}), **fields})
+
+    def monetary_selection_csv(self, request: Body = None, /, **fields: Any) -> str:
+        """``POST /v1/monetary/selection`` as the CSV test sheet, as the service writes it."""
+        return self.call_text("monetary-selection", {**(request or {}), **fields}, CSV)
+
+    def monetary_evaluation(self, request: Body = None, /, **fields: Any) -> dict[str, Any]:
+        """``POST /v1/monetary/evaluation``: misstatement limits by method, side by side."""
+        return self.call("monetary-evaluation", {**(request or {}), **fields})
 
     def batch(
         self,

@@ -12,6 +12,10 @@ is a flag of the command without new code:
   (``--methods exact,wilson``); a list of free text (identifiers, which may hold commas)
   takes one value per flag; every list also has a ``-file`` form reading one entry per
   line; a list of ``{first, last}`` pairs takes ``FIRST-LAST``;
+- a list of flat objects (records, such as ``{"id", "amount"}`` items) takes JSON text, and
+  its ``-file`` form reads a CSV file (RFC 4180, UTF-8) whose header names the fields: a
+  number column is sent as a JSON number, an amount column (a field that accepts decimal
+  text) as the text written, so no digit is lost; an empty cell leaves the field out;
 - anything else (an object of free shape) takes JSON text, or a file of JSON.
 
 The values go into the body at the field's path, in the schema's order.
@@ -20,6 +24,8 @@ The values go into the body at the field's path, in the schema's order.
 from __future__ import annotations
 
 import argparse
+import csv
+import io
 import json
 import re
 import textwrap
@@ -38,12 +44,13 @@ NUMBERS = "numbers"
 STRINGS = "strings"
 CHOICES = "choices"
 PAIRS = "pairs"
+RECORDS = "records"
 RAW_JSON = "json"
 
 # Width of the help paragraphs this module wraps itself (argparse leaves them raw).
 HELP_WIDTH = 78
 
-LIST_KINDS = frozenset({NUMBERS, STRINGS, CHOICES, PAIRS})
+LIST_KINDS = frozenset({NUMBERS, STRINGS, CHOICES, PAIRS, RECORDS})
 
 # JSON's number grammar, with leading zeros let through (they change no value).
 _JSON_NUMBER = re.compile(r"-?[0-9]+(\.[0-9]+)?([eE][+-]?[0-9]+)?")
@@ -61,6 +68,8 @@ class FieldSpec:
     choices: tuple[str, ...] = ()
     default: Any = None
     pair: tuple[str, str] = ("first", "last")
+    # RECORDS: how each column of a record is read (a kind of this module, by field name).
+    columns: tuple[tuple[str, str], ...] = ()
 
     @property
     def name(self) -> str:
@@ -108,7 +117,14 @@ def _list_kind(field: fields.List[Any]) -> str:
         members = list(inner.schema.fields.values())
         if len(members) == 2 and all(isinstance(m, fields.Integer) for m in members):
             return PAIRS
+        if members and all(_leaf_kind(m) or _accepts_text(m) for m in members):
+            return RECORDS
     return RAW_JSON
+
+
+def _accepts_text(field: fields.Field[Any]) -> bool:
+    """A field that takes a number written as text (an exact amount)."""
+    return bool(getattr(field, "accepts_text", False))
 
 
 def _key(name: str, field: fields.Field[Any]) -> str:
@@ -133,8 +149,14 @@ def field_specs(schema: Schema, prefix: tuple[str, ...] = ()) -> list[FieldSpec]
             if kind == PAIRS and isinstance(inner, fields.Nested):
                 first, last = (_key(n, f) for n, f in inner.schema.fields.items())
                 pair = (first, last)
+            columns: tuple[tuple[str, str], ...] = ()
+            if kind == RECORDS and isinstance(inner, fields.Nested):
+                columns = tuple(
+                    (_key(n, f), STRING if _accepts_text(f) else _leaf_kind(f) or STRING)
+                    for n, f in inner.schema.fields.items()
+                )
             specs.append(FieldSpec(path, kind, field.required, _description(field), choices,
-                                   pair=pair))
+                                   pair=pair, columns=columns))
             continue
         kind = _leaf_kind(field) or RAW_JSON
         default = field.load_default
@@ -256,10 +278,50 @@ def _read_text(path: str) -> str:
         raise ValueProblem(f"{path}: {exc.strerror}") from None
 
 
+def read_records(spec: FieldSpec, path: str) -> list[dict[str, Any]]:
+    """The rows of a CSV file with a header, as records of the field's columns."""
+    kinds = dict(spec.columns)
+    rows = csv.reader(io.StringIO(_read_text(path), newline=""))
+    header = next(rows, None)
+    if not header:
+        raise ValueProblem(f"{path}: empty; the first line names the columns")
+    records: list[dict[str, Any]] = []
+    for number, row in enumerate(rows, start=2):
+        if not row:
+            continue
+        if len(row) != len(header):
+            raise ValueProblem(
+                f"{path}, line {number}: {len(row)} cells under a header of {len(header)}"
+            )
+        record: dict[str, Any] = {}
+        for name, cell in zip(header, row, strict=True):
+            if cell == "":
+                continue
+            try:
+                record[name] = _cell(kinds.get(name, STRING), cell)
+            except ValueProblem as problem:
+                raise ValueProblem(f"{path}, line {number}, column {name}: {problem}") from None
+        records.append(record)
+    return records
+
+
+def _cell(kind: str, text: str) -> Any:
+    if kind == NUMBER:
+        return json_number(text)
+    if kind == BOOLEAN:
+        lowered = text.strip().lower()
+        if lowered not in ("true", "false"):
+            raise ValueProblem(f"{text!r} is not true or false")
+        return lowered == "true"
+    return text
+
+
 def read_list_file(spec: FieldSpec, path: str) -> list[Any]:
     """The entries of a ``-file`` flag, one per line, read as the field's entries are."""
     if spec.kind == RAW_JSON:
         return [strict_json(_read_text(path))]
+    if spec.kind == RECORDS:
+        return read_records(spec, path)
     entries: list[Any] = []
     for number, line in enumerate(file_lines(path), start=1):
         try:
@@ -302,6 +364,9 @@ def _help(spec: FieldSpec) -> str:
         parts.append("Each as FIRST-LAST, comma-separated or repeated.")
     elif spec.kind == RAW_JSON:
         parts.append("JSON text.")
+    elif spec.kind == RECORDS:
+        columns = ", ".join(name for name, _ in spec.columns)
+        parts.append(f"A JSON array of objects; its -file form reads CSV with columns {columns}.")
     # argparse formats help with %, so a literal percent sign must be doubled.
     return " ".join(p for p in parts if p).replace("%", "%%")
 
@@ -344,7 +409,7 @@ def add_flags(
             continue
         # A list, or free-shaped JSON: the flag or its file, not both.
         exclusive = target.add_mutually_exclusive_group()
-        if spec.kind == RAW_JSON:
+        if spec.kind in (RAW_JSON, RECORDS):
             exclusive.add_argument(spec.flag, type=_argparse_type(strict_json),
                                    metavar="JSON", **common)
         elif spec.kind == STRINGS:
@@ -361,7 +426,8 @@ def add_flags(
         # has that last name.
         if len(spec.path) > 1 and leaves.count(spec.path[-1]) == 1:
             names.append(f"--{spec.path[-1].replace('_', '-')}-file")
-        what = "a JSON file" if spec.kind == RAW_JSON else "a UTF-8 file, one entry per line"
+        what = {RAW_JSON: "a JSON file", RECORDS: "a CSV file with a header row"}.get(
+            spec.kind, "a UTF-8 file, one entry per line")
         exclusive.add_argument(
             *names, dest=file_dest(spec), metavar="FILE", default=None,
             help=f"{spec.dotted} from {what} (instead of {spec.flag}).",

@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import json
 import math
+import re
 from decimal import Decimal
 from typing import Any
 
@@ -191,3 +192,52 @@ def json_kind(value: Any) -> str:
     if isinstance(value, int | float):
         return "a number"
     return "an unsupported value"
+
+
+# A decimal written out in plain notation: optional minus, digits, optional point and digits.
+PLAIN_DECIMAL = re.compile(r"-?[0-9]+(\.[0-9]+)?")
+# Significant digits a JSON number keeps through a binary double (IEEE 754: 15 always do).
+EXACT_DIGITS = 15
+
+
+class Amount(fields.Field):  # type: ignore[type-arg]
+    """An amount of money, kept exact: a JSON number or a decimal string, read as a Decimal.
+
+    The service's JSON reader turns decimal numbers into binary doubles; every decimal of at
+    most 15 significant digits comes back exactly from the double's shortest representation
+    (IEEE 754 double precision carries 15 decimal digits), so such a number is read as the
+    decimal that was sent. A number with more significant digits may already have lost some
+    of them, so it is refused with the advice to send it as a string. Strings are plain
+    decimals (``"-1234.50"``): no exponent, no thousands separator, no spaces. Booleans,
+    NaN and infinities are refused; nothing is rounded.
+    """
+
+    accepts_text = True  # the command line sends table cells for this field as they are
+
+    default_error_messages = {  # noqa: RUF012 - marshmallow's documented extension point
+        "invalid": "must be a decimal amount (a number or a string such as \"1234.50\"), "
+        "not {kind}",
+        "text": "must be a plain decimal such as \"1234.50\" (digits, an optional minus and "
+        "point; no exponent, spaces or separators); got {value!r}",
+        "digits": "has more than 15 significant digits, which a JSON number does not carry "
+        "exactly; send it as a string, such as \"{value}\"",
+    }
+
+    def _deserialize(self, value: Any, attr: str | None, data: Any, **kwargs: Any) -> Decimal:
+        if isinstance(value, str):
+            if not PLAIN_DECIMAL.fullmatch(value):
+                raise self.make_error("text", value=value[:80])
+            return Decimal(value)
+        if not _is_number(value):
+            raise self.make_error("invalid", kind=json_kind(value))
+        if isinstance(value, int):
+            return Decimal(value)
+        if not math.isfinite(value):
+            raise self.make_error("invalid", kind="a non-finite number")
+        exact = Decimal(repr(value))
+        if len(exact.as_tuple().digits) > EXACT_DIGITS:
+            raise self.make_error("digits", value=repr(value))
+        return exact
+
+    def _serialize(self, value: Any, attr: str | None, obj: Any, **kwargs: Any) -> str | None:
+        return None if value is None else str(value)

@@ -51,8 +51,11 @@ __all__ = [
     "Population",
     "RangePopulation",
     "Selection",
+    "check_seed",
     "generate_seed",
     "select",
+    "uniform_below",
+    "word_stream",
 ]
 
 ALGORITHM: Final = "sha256-counter-fisher-yates"
@@ -337,7 +340,7 @@ def select(
             "method", f"method must be one of {', '.join(map(repr, METHODS))}, got {method!r}"
         )
     seed = generate_seed() if seed is None else seed
-    key = _check_seed(seed)
+    key = check_seed(seed)
     _check_sample_size(sample_size, max_items)
     prepared = _prepare(population, max_items)
     if sample_size > prepared.size:
@@ -346,7 +349,7 @@ def select(
             f"sample_size {sample_size} exceeds the population size {prepared.size}",
         )
 
-    positions, systematic = draw(_word_stream(key), prepared.size, sample_size)
+    positions, systematic = draw(word_stream(key), prepared.size, sample_size)
     return Selection(
         items=prepared.items_at(positions),
         positions=tuple(p + 1 for p in positions),
@@ -369,14 +372,18 @@ def select(
 # --------------------------------------------------------------------------- stream and draws
 
 
-def _word_stream(key: bytes) -> Iterator[int]:
-    """Yield the 64-bit words of the keyed counter stream (Notes, step 2)."""
+def word_stream(key: bytes) -> Iterator[int]:
+    """Yield the 64-bit words of the keyed counter stream (Notes of :func:`select`, step 2).
+
+    Block j is HMAC-SHA256(key, u64(j)); each block gives four big-endian 64-bit words.
+    """
     for block in count():
         yield from _WORDS(hmac.digest(key, block.to_bytes(8, "big"), "sha256"))
 
 
-def _below(words: Iterator[int], m: int) -> int:
-    """Return a uniform integer in [0, m) by rejection (Notes, step 3)."""
+def uniform_below(words: Iterator[int], m: int) -> int:
+    """Return a uniform integer in [0, m) from ``words`` by rejection (Notes of :func:`select`,
+    step 3): words at or above the largest multiple of m not above 2^64 are discarded."""
     limit = _TWO_64 - _TWO_64 % m
     for x in words:
         if x < limit:
@@ -400,7 +407,7 @@ def _draw_random(words: Iterator[int], size: int, n: int) -> tuple[list[int], No
     moved: dict[int, int] = {}  # A[k] for every k whose entry differs from k
     chosen: list[int] = []
     for i in range(n):
-        j = i + _below(words, size - i)
+        j = i + uniform_below(words, size - i)
         picked = moved.get(j, j)
         at_i = moved.pop(i, i)  # A[i] is never read again once draw i is done
         if j != i:
@@ -411,7 +418,7 @@ def _draw_random(words: Iterator[int], size: int, n: int) -> tuple[list[int], No
 
 def _draw_systematic(words: Iterator[int], size: int, n: int) -> tuple[list[int], _Systematic]:
     """Fixed interval size/n from the random start r/n (Notes, step 5)."""
-    r = _below(words, size)
+    r = uniform_below(words, size)
     positions = [(r + k * size) // n for k in range(n)]
     return positions, _Systematic(
         interval=Fraction(size, n),
@@ -459,7 +466,7 @@ def _some(values: Iterable[object]) -> str:
     return f"{shown} and {rest} more" if rest > 0 else shown
 
 
-def _check_seed(seed: object) -> bytes:
+def check_seed(seed: object) -> bytes:
     """Validate the seed and return its UTF-8 encoding, the stream key."""
     if not isinstance(seed, str):
         raise InvalidInput("seed", f"seed must be a string, got {type(seed).__name__}")

@@ -603,3 +603,23 @@ def test_the_selection_help_documents_the_items_file(
     assert "--items-out FILE with --controls: write every selected item to FILE as one CSV " \
         "of control_id,draw,item,position" in text
     assert "prints it on standard error with the warning to record it" in text
+def test_monetary_commands_from_a_csv_ledger(through_app: requests.Session,
+                                             capsys: pytest.CaptureFixture[bytes],
+                                             tmp_path: Path) -> None:
+    # A fictional receivables ledger (Kestrel Valley Foods Ltd) written by Python's csv module.
+    ledger = tmp_path / "receivables.csv"
+    with ledger.open("w", encoding="utf-8", newline="") as out:
+        writer = csv.writer(out)
+        writer.writerow(["id", "amount"])
+        writer.writerows([f"KV-{i:04d}", f"{150 + 41 * i}.10"] for i in range(1, 31))
+    status, out, _ = run(capsys, "monetary-selection", "--population-file", str(ledger),
+                         "--sample-size", "5", "--seed", "kestrel", "--json")
+    assert status == 0, out
+    chosen = json.loads(out)
+    assert chosen["book_value"] == f"{sum(150 + 41 * i for i in range(1, 31)) + 3:.2f}"
+    status, out, _ = run(capsys, "monetary-sample-size", "--book-value", "2500000.00",
+                         "--tolerable-misstatement", "125000", "--json")
+    assert status == 0 and json.loads(out)["sample_size"] == 60
+    status, out, _ = run(capsys, "monetary-evaluation", "--book-value", "600000.00",
+                         "--sample-size", "60", "--json")
+    assert status == 0 and json.loads(out)["overstatement"]["projected_misstatement"] == "0.00"

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import argparse
+import csv
 from pathlib import Path
 from typing import Any
 
@@ -15,6 +16,7 @@ from schemas.attributes import EvaluationRequest, SampleSizeRequest
 from schemas.batch import BatchRequest
 from schemas.estimation import EstimationRequest
 from schemas.fields import Rate, StrictString
+from schemas.monetary import MonetaryEvaluationRequest, MonetarySelectionRequest
 from schemas.selection import SelectionRequest
 from service.http import all_operations
 
@@ -53,6 +55,13 @@ def test_each_kind_of_list_in_the_schemas_is_recognised() -> None:
     assert selection["population_items"].kind == flags.STRINGS
     assert by_name(EstimationRequest())["methods"].kind == flags.CHOICES
     assert by_name(BatchRequest())["operations"].kind == flags.RAW_JSON
+    monetary = by_name(MonetarySelectionRequest())["population"]
+    assert monetary.kind == flags.RECORDS
+    assert monetary.columns == (("id", flags.STRING), ("amount", flags.STRING))
+    found = by_name(MonetaryEvaluationRequest())["misstatements"]
+    assert found.kind == flags.RECORDS
+    assert dict(found.columns)["hits"] == flags.NUMBER
+    assert dict(found.columns)["individually_significant"] == flags.BOOLEAN
 
 
 def test_a_field_added_to_a_schema_is_a_flag_without_new_code() -> None:
@@ -222,3 +231,39 @@ def test_evaluation_fields_cover_the_schema() -> None:
     schema = EvaluationRequest()
     roots = {spec.path[0] for spec in flags.field_specs(schema)}
     assert roots == {field.data_key or name for name, field in schema.fields.items()}
+
+
+def test_records_from_a_csv_file_keep_amounts_as_written(tmp_path: Path) -> None:
+    # Python's csv module (RFC 4180) writes the reference file: a quoted comma, a BOM.
+    path = tmp_path / "receivables.csv"
+    with path.open("w", encoding="utf-8-sig", newline="") as out:
+        writer = csv.writer(out)
+        writer.writerows([["id", "amount"], ["KV-1001", "12500.10"], ["KV,1002", "0.10"]])
+    assert body("monetary-selection", "--population-file", str(path),
+                "--sample-size", "2") == {
+        "population": [{"id": "KV-1001", "amount": "12500.10"},
+                       {"id": "KV,1002", "amount": "0.10"}],
+        "sample_size": 2}
+
+
+def test_records_columns_are_typed_and_empty_cells_left_out(tmp_path: Path) -> None:
+    path = tmp_path / "found.csv"
+    path.write_text("id,book_amount,audited_amount,hits,individually_significant\n"
+                    "A,4000.00,2000.00,2,\nB,5000,4000,,true\n")
+    assert body("monetary-evaluation", "--misstatements-file", str(path))["misstatements"] == [
+        {"id": "A", "book_amount": "4000.00", "audited_amount": "2000.00", "hits": 2},
+        {"id": "B", "book_amount": "5000", "audited_amount": "4000",
+         "individually_significant": True}]
+
+
+def test_a_bad_records_cell_names_line_and_column(tmp_path: Path) -> None:
+    path = tmp_path / "found.csv"
+    path.write_text("id,book_amount,audited_amount,hits\nA,1,0,two\n")
+    args = parse("monetary-evaluation", "--misstatements-file", str(path))
+    with pytest.raises(flags.ValueProblem, match=r"found.csv, line 2, column hits"):
+        flags.build_body(args, args.specs)
+
+
+def test_records_as_json_text() -> None:
+    assert body("monetary-selection", "--population", '[{"id": "A", "amount": "1.10"}]') == {
+        "population": [{"id": "A", "amount": "1.10"}]}

@@ -20,6 +20,10 @@ GOOD = {
     "selection": {"population": {"size": 500}, "sample_size": 5, "seed": "fictional-1"},
     "estimation-sample-size": {"margin": 0.05},
     "plan-curve": {"sample_size": 60, "allowed_deviations": 1},
+    "monetary-sample-size": {"book_value": "2500000.00", "tolerable_misstatement": 125000},
+    "monetary-selection": {"population": [{"id": "KV-1", "amount": 10.5}], "sample_size": 1,
+                           "seed": "fictional-1"},
+    "monetary-evaluation": {"book_value": "600000.00", "sample_size": 60},
 }
 EVAL = {"sample_size": 60, "deviations": 0}
 SINGLE = {op.name: op for op in all_operations() if op.name != "batch"}

@@ -35,6 +35,10 @@ ORDINARY: dict[str, dict[str, Any]] = {
     "/v1/estimation/sample-size": {"margin": 0.05},
     "/v1/plans/curve": {"sample_size": 60, "allowed_deviations": 1},
     "/v1/selection": {"population": {"size": 1000}, "sample_size": 10, "seed": "hostile"},
+    "/v1/monetary/sample-size": {"book_value": "2500000.00", "tolerable_misstatement": 125000},
+    "/v1/monetary/selection": {"population": [{"id": "KV-1", "amount": "10.50"}],
+                               "sample_size": 1, "seed": "hostile"},
+    "/v1/monetary/evaluation": {"book_value": "600000.00", "sample_size": 60},
     "/v1/batch": {
         "operations": [{"id": "a", "operation": "sample-size", "request": {"tolerable_rate": 0.05}}]
     },

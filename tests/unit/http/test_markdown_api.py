@@ -32,6 +32,13 @@ EXAMPLES: dict[str, tuple[dict[str, Any], str]] = {
     "estimation-sample-size": ({"margin": 0.02, "confidence": 0.9}, "recommended"),
     "plan-curve": ({"sample_size": 60, "allowed_deviations": 1, "tolerable_rate": 0.05},
                    "risk_of_overreliance"),
+    "monetary-sample-size": ({"book_value": "2500000.00", "tolerable_misstatement": 125000},
+                             "sample_size"),
+    "monetary-selection": ({"population": [{"id": "KV-1", "amount": "10.00"},
+                                           {"id": "KV-2", "amount": "12.00"}],
+                            "sample_size": 1, "seed": "fictional-1"},
+                           "selection_fingerprint"),
+    "monetary-evaluation": ({"book_value": "600000.00", "sample_size": 60}, "sample_size"),
 }
 
 
