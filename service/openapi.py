@@ -16,6 +16,7 @@ from schemas.common import HealthSchema, ProblemSchema, ReadySchema
 from schemas.fields import StrictFloat, StrictInteger, StrictString
 from service.http import all_operations
 from service.http.markdown import MARKDOWN
+from service.http.operations import Operation
 from service.version import VERSION
 
 OPENAPI_VERSION = "3.1.0"
@@ -66,6 +67,41 @@ MARKDOWN_DESCRIPTION = (
 )
 
 
+UPLOAD_DESCRIPTION = (
+    "A population file and its request in one body: the part file holds the file, streamed "
+    "to a temporary file that is removed once the answer is made (at most "
+    "SAMPLING_MAX_FILE_BYTES, 2 GiB by default); the part request holds the JSON request, "
+    "the same document the application/json body would be."
+)
+_UPLOAD_STATUSES = {
+    "400": "Malformed body: not UTF-8, not strict JSON, duplicate keys, an unreadable "
+    "multipart body, or a request part that is not strict JSON.",
+    "413": "Body larger than the configured limit, or an uploaded file larger than "
+    "SAMPLING_MAX_FILE_BYTES.",
+    "415": "Body sent neither as application/json nor as multipart/form-data.",
+}
+
+
+def _upload_content(operation: Operation) -> dict[str, Any]:
+    """The ``multipart/form-data`` request body of an operation that accepts files."""
+    return {
+        "schema": {
+            "type": "object",
+            "description": UPLOAD_DESCRIPTION,
+            "required": ["file", "request"],
+            "properties": {
+                "file": {
+                    "type": "string",
+                    "format": "binary",
+                    "description": "The population file.",
+                },
+                "request": {"$ref": f"#/components/schemas/{_schema_name(operation.request)}"},
+            },
+        },
+        "encoding": {"request": {"contentType": "application/json"}},
+    }
+
+
 def _problem_response(description: str, status: str = "") -> dict[str, Any]:
     response: dict[str, Any] = {
         "description": description,
@@ -109,9 +145,12 @@ def build_spec() -> APISpec:
         if MARKDOWN in content and MARKDOWN not in operation.renderers:
             content[MARKDOWN]["schema"]["description"] = MARKDOWN_DESCRIPTION
         responses: dict[str, Any] = {"200": {"description": operation.summary, "content": content}}
-        responses.update(
-            {code: _problem_response(text, code) for code, text in _PROBLEM_STATUSES.items()}
-        )
+        statuses = dict(_PROBLEM_STATUSES)
+        body: dict[str, Any] = {"application/json": {"schema": operation.request}}
+        if operation.accepts_file:
+            statuses.update(_UPLOAD_STATUSES)
+            body["multipart/form-data"] = _upload_content(operation)
+        responses.update({code: _problem_response(text, code) for code, text in statuses.items()})
         spec.path(
             path=operation.path,
             operations={
@@ -123,7 +162,7 @@ def build_spec() -> APISpec:
                     "security": _SECURITY,
                     "requestBody": {
                         "required": True,
-                        "content": {"application/json": {"schema": operation.request}},
+                        "content": body,
                     },
                     "responses": responses,
                 }
