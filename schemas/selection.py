@@ -11,6 +11,7 @@ from __future__ import annotations
 
 import json
 import math
+from collections import Counter
 from collections.abc import Callable
 from dataclasses import dataclass
 from typing import Any, ClassVar
@@ -36,6 +37,7 @@ from service.sampling.selection import (
     RangePopulation,
     Selection,
 )
+from service.sampling.test_sheets.layout import MAX_ATTRIBUTE_LENGTH, MAX_ATTRIBUTES
 from service.sampling.wording import CAUTION
 
 SHOWN = 5
@@ -267,6 +269,12 @@ class SelectionPopulationSchema(StrictSchema):
         return ItemPopulation(tuple(data["items"]))
 
 
+def _distinct(names: list[str]) -> None:
+    repeated = sorted(name for name, times in Counter(names).items() if times > 1)
+    if repeated:
+        raise ValidationError(f"must be distinct; repeated: {', '.join(repeated)}")
+
+
 def _seed_length(seed: str) -> None:
     if not seed:
         raise ValidationError("must not be empty")
@@ -314,6 +322,28 @@ class SelectionRequest(StrictSchema):
             "one item per interval of population size / sample size from a random start.",
         },
     )
+    attributes = fields.List(
+        StrictString(
+            validate=validate.Length(
+                min=1,
+                max=MAX_ATTRIBUTE_LENGTH,
+                error="must have between {min} and {max} characters",
+            )
+        ),
+        validate=[
+            validate.Length(
+                min=1, max=MAX_ATTRIBUTES, error="must name between {min} and {max} attributes"
+            ),
+            _distinct,
+        ],
+        metadata={
+            "description": "The attributes (control conditions) each selected item is tested "
+            "for. With Accept: application/vnd.openxmlformats-officedocument.spreadsheetml"
+            ".sheet, the answer is then a test sheet with a result and a notes column per "
+            "attribute; POST the completed sheet to /v1/evaluation.",
+            "example": ["approved before release", "three-way match"],
+        },
+    )
 
 
 # --------------------------------------------------------------------------- response
@@ -326,6 +356,7 @@ class SelectionResult:
     selection: Selection
     population: Population
     seed_generated: bool
+    attributes: tuple[str, ...] | None = None
 
 
 def _count(number: int, noun: str, plural: str | None = None) -> str:
@@ -411,7 +442,7 @@ _ITEM = {"oneOf": [{"type": "integer"}, {"type": "string"}]}
 class SelectionSchema(ResultSchema):
     """A reproducible selection of sample items."""
 
-    absent_when_none = ("interval", "interval_exact", "start", "start_exact")
+    absent_when_none = ("interval", "interval_exact", "start", "start_exact", "attributes")
 
     items = fields.Function(
         lambda result: list(result.selection.items),
@@ -488,6 +519,10 @@ class SelectionSchema(ResultSchema):
             "description": "Systematic only: the start exactly, as r/n.",
             "example": "976/60",
         },
+    )
+    attributes = fields.List(
+        fields.String(),
+        metadata={"description": "The attributes to be tested, as the request named them."},
     )
     summary = fields.Function(
         selection_summary,

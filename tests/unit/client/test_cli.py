@@ -93,7 +93,8 @@ def test_selection_csv_is_written_byte_for_byte(through_app: requests.Session, a
                                  json={"population": {"size": 500}, "sample_size": 3,
                                        "seed": "nt"})
     assert out.encode("utf-8") == direct.data
-    assert out.startswith("\ufeffdraw,item,position\r\n")
+    assert out.startswith("\ufeffselection,Selection of sample items\r\n")
+    assert "\r\nrecords in draw order\r\ndraw,item,position\r\n" in out
 
 
 def test_markdown(through_app: requests.Session, capsys: pytest.CaptureFixture[bytes]) -> None:
