@@ -211,6 +211,10 @@ def _keep(table: PopulationTable) -> None:
     condition, parameters = where_clause(
         d.filters, table.columns, d.amount_column, value, d.amount_style
     )
+    if d.filters:
+        table.extra["meeting_filters"] = _scalar(
+            con, f"SELECT count(*) FROM source WHERE ({condition})", parameters
+        )
     con.execute("CREATE TABLE excluded AS SELECT unnest(?::VARCHAR[]) AS id", [list(d.exclude)])
     if d.exclude:
         repeated = con.execute(
