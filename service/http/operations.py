@@ -67,6 +67,8 @@ class Operation:
     # The core call then finds the file's temporary path in inputs["upload"] (None when
     # the request came as plain JSON).
     accepts_file: bool = False
+    # The endpoint means nothing without a file (a profile): the batch leaves it out.
+    file_required: bool = False
 
     @cached_property
     def request_schema(self) -> Schema:
@@ -153,12 +155,17 @@ def negotiate(operation: Operation) -> str:
 
 
 def run(
-    operation: Operation, payload: Any, settings: Settings, upload: Path | None = None
+    operation: Operation,
+    payload: Any,
+    settings: Settings,
+    upload: Path | None = None,
+    upload_name: str = "",
 ) -> tuple[dict[str, Any], Any]:
     """Validate ``payload`` and run the operation: the response document and the core result.
 
-    ``upload`` is the uploaded file's temporary path, passed on as ``inputs["upload"]`` to
-    an operation that accepts files.
+    ``upload`` is the uploaded file's temporary path and ``upload_name`` the name the
+    client gave it, passed on as ``inputs["upload"]`` and ``inputs["upload_name"]`` to an
+    operation that accepts files.
     """
     if operation.precheck is not None:
         try:
@@ -170,7 +177,7 @@ def run(
     except ValidationError as exc:
         raise from_validation_error(exc) from None
     if operation.accepts_file:
-        inputs = {**inputs, "upload": upload}
+        inputs = {**inputs, "upload": upload, "upload_name": upload_name}
     try:
         result = operation.run(inputs, settings)
     except SamplingError as exc:
@@ -191,7 +198,9 @@ def _view(operation: Operation) -> Callable[[], Response]:
         if operation.accepts_file and uploads.is_multipart():
             # Rendered inside the block: the temporary file lives until the answer is made.
             with uploads.received(settings) as upload:
-                document, result = run(operation, upload.payload, settings, upload.path)
+                document, result = run(
+                    operation, upload.payload, settings, upload.path, upload.filename
+                )
                 body = operation.render(media_type, upload.payload, document, result)
         else:
             if operation.takes_item_lists:
