@@ -82,7 +82,9 @@ _UPLOAD_STATUSES = {
 }
 
 
-def _upload_content(operation: Operation) -> dict[str, Any]:
+def _upload_content(
+    operation: Operation, file_description: str = "The population file."
+) -> dict[str, Any]:
     """The ``multipart/form-data`` request body of an operation that accepts files."""
     return {
         "schema": {
@@ -93,13 +95,51 @@ def _upload_content(operation: Operation) -> dict[str, Any]:
                 "file": {
                     "type": "string",
                     "format": "binary",
-                    "description": "The population file.",
+                    "description": file_description,
                 },
                 "request": {"$ref": f"#/components/schemas/{_schema_name(operation.request)}"},
             },
         },
         "encoding": {"request": {"contentType": "application/json"}},
     }
+
+
+def _add_file_form(
+    spec: APISpec,
+    operation: Operation,
+    form: Operation,
+    content: dict[str, Any],
+    body: dict[str, Any],
+    statuses: dict[str, str],
+) -> str:
+    """Declare an operation's multipart form beside its JSON form, at the same path: the
+    multipart request body, the JSON answer as one of the two documents, the form's own
+    media types; returns the combined description."""
+    for schema in (operation.response, form.request, form.response):
+        name = _schema_name(schema)
+        if name not in spec.components.schemas:
+            spec.components.schema(name, schema=schema)
+    statuses.update(_UPLOAD_STATUSES)
+    body["multipart/form-data"] = _upload_content(form, f"The file to {form.summary.lower()}.")
+    either = f"{_schema_name(operation.response)}Answer"
+    spec.components.schema(
+        either,
+        component={
+            "description": f"{_schema_name(operation.response)} for a JSON request, "
+            f"{_schema_name(form.response)} for a multipart one.",
+            "oneOf": [
+                {"$ref": f"#/components/schemas/{_schema_name(operation.response)}"},
+                {"$ref": f"#/components/schemas/{_schema_name(form.response)}"},
+            ],
+        },
+    )
+    content["application/json"] = {"schema": {"$ref": f"#/components/schemas/{either}"}}
+    for media_type in form.media_types[1:]:
+        content.setdefault(media_type, {"schema": {"type": "string"}})
+    return (
+        f"{operation.description}\n\nAs multipart/form-data ({form.summary.lower()}): "
+        f"{form.description}"
+    )
 
 
 def _problem_response(description: str, status: str = "") -> dict[str, Any]:
@@ -150,6 +190,11 @@ def build_spec() -> APISpec:
         if operation.accepts_file:
             statuses.update(_UPLOAD_STATUSES)
             body["multipart/form-data"] = _upload_content(operation)
+        description = operation.description
+        if operation.file_form is not None:
+            description = _add_file_form(
+                spec, operation, operation.file_form, content, body, statuses
+            )
         responses.update({code: _problem_response(text, code) for code, text in statuses.items()})
         spec.path(
             path=operation.path,
@@ -157,7 +202,7 @@ def build_spec() -> APISpec:
                 "post": {
                     "operationId": operation.name,
                     "summary": operation.summary,
-                    "description": operation.description,
+                    "description": description,
                     "tags": [operation.tag],
                     "security": _SECURITY,
                     "requestBody": {

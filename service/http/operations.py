@@ -69,6 +69,11 @@ class Operation:
     accepts_file: bool = False
     # The endpoint means nothing without a file (a profile): the batch leaves it out.
     file_required: bool = False
+    # Another form of the same endpoint for a multipart/form-data upload, when the file
+    # changes what the request says and what the answer holds (a completed test sheet sent
+    # to the evaluation): its own request and response schemas, core call and renderers,
+    # with accepts_file set. Plain JSON requests keep this operation's own form.
+    file_form: Operation | None = None
 
     @cached_property
     def request_schema(self) -> Schema:
@@ -191,9 +196,12 @@ def execute(operation: Operation, payload: Any, settings: Settings) -> dict[str,
     return run(operation, payload, settings)[0]
 
 
-def _view(operation: Operation) -> Callable[[], Response]:
+def _view(declared: Operation) -> Callable[[], Response]:
     def view() -> Response:
         settings: Settings = current_app.config["SETTINGS"]
+        operation = declared
+        if declared.file_form is not None and uploads.is_multipart():
+            operation = declared.file_form
         media_type = negotiate(operation)
         if operation.accepts_file and uploads.is_multipart():
             # Rendered inside the block: the temporary file lives until the answer is made.
@@ -205,15 +213,15 @@ def _view(operation: Operation) -> Callable[[], Response]:
         else:
             if operation.takes_item_lists:
                 request.max_content_length = settings.max_list_body_bytes
-            payload = read_json_body(operation.accepts_file)
+            payload = read_json_body(operation.accepts_file or operation.file_form is not None)
             document, result = run(operation, payload, settings)
             body = operation.render(media_type, payload, document, result)
         response = current_app.response_class(body, status=200, mimetype=media_type)
         response.vary.add("Accept")
         return response
 
-    view.__name__ = operation.name.replace("-", "_")
-    view.__doc__ = operation.summary
+    view.__name__ = declared.name.replace("-", "_")
+    view.__doc__ = declared.summary
     return view
 
 

@@ -53,11 +53,40 @@ def record_rows(report: SelectionReport) -> list[tuple[Cell, ...]]:
     return rows
 
 
+def result_validation(sheet: Any, column: int, rows: int, attribute: str) -> None:
+    """Restrict rows 1..``rows`` of ``column`` to the three result words."""
+    if rows:
+        sheet.data_validation(
+            1,
+            column,
+            rows,
+            column,
+            {
+                "validate": "list",
+                "source": list(RESULT_WORDS),
+                "error_title": "Result",
+                "error_message": "Choose passed, deviation or not tested.",
+                "input_title": "Result",
+                "input_message": f"{attribute}: passed, deviation or not tested",
+            },
+        )
+
+
+def seal(workbook: Any, record: Any, fingerprint: str, caution: str) -> None:
+    """Hide and protect the record sheet; name the fingerprint in the workbook's metadata."""
+    record.protect()
+    record.very_hidden()
+    workbook.define_name(FINGERPRINT_NAME, f'="{fingerprint}"')
+    workbook.set_custom_property(FINGERPRINT_PROPERTY, fingerprint)
+    workbook.set_properties(
+        {"title": f"Test sheet, selection {fingerprint[:16]}", "comments": caution}
+    )
+
+
 def _tests_sheet(workbook: Any, report: SelectionReport, bold: Any) -> None:
     sheet = workbook.add_worksheet(TESTS_SHEET)
     table = report.records
     write_table(sheet, table, bold)
-    n = len(table.rows)
     result_style = workbook.add_format({"bg_color": "#FFF8E1"})
     for k, attribute in enumerate(report.attributes):
         column = len(table.columns) + 2 * k
@@ -65,21 +94,7 @@ def _tests_sheet(workbook: Any, report: SelectionReport, bold: Any) -> None:
         sheet.write_string(0, column + 1, notes_header(attribute), bold)
         sheet.set_column(column, column, _RESULT_WIDTH, result_style)
         sheet.set_column(column + 1, column + 1, _NOTES_WIDTH)
-        if n:
-            sheet.data_validation(
-                1,
-                column,
-                n,
-                column,
-                {
-                    "validate": "list",
-                    "source": list(RESULT_WORDS),
-                    "error_title": "Result",
-                    "error_message": "Choose passed, deviation or not tested.",
-                    "input_title": "Result",
-                    "input_message": f"{attribute}: passed, deviation or not tested",
-                },
-            )
+        result_validation(sheet, column, len(table.rows), attribute)
     sheet.freeze_panes(1, 2)
 
 
@@ -92,14 +107,6 @@ def render_test_sheet(report: SelectionReport) -> bytes:
     write_facts(workbook.add_worksheet(SELECTION_SHEET), report, bold, wrap)
     record = workbook.add_worksheet(RECORD_SHEET)
     write_rows(record, record_rows(report))
-    record.protect()
-    record.very_hidden()
-    fingerprint = str(_fact(report, "selection fingerprint"))
-    workbook.define_name(FINGERPRINT_NAME, f'="{fingerprint}"')
-    workbook.set_custom_property(FINGERPRINT_PROPERTY, fingerprint)
-    workbook.set_properties(
-        {"title": f"Test sheet, selection {fingerprint[:16]}", "comments": report.caution}
-    )
+    seal(workbook, record, str(_fact(report, "selection fingerprint")), report.caution)
     workbook.close()
     return buffer.getvalue()
-

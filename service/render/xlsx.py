@@ -35,11 +35,13 @@ def new_workbook() -> tuple[Any, io.BytesIO]:
     return xlsxwriter.Workbook(buffer, _OPTIONS), buffer
 
 
-def write_cell(sheet: Any, row: int, column: int, value: Cell | None, style: Any = None) -> None:
-    """One cell: an int as a number, any other value as text (never a formula)."""
+def write_cell(
+    sheet: Any, row: int, column: int, value: Cell | float | None, style: Any = None
+) -> None:
+    """One cell: a number as a number, any other value as text (never a formula)."""
     if value is None:
         return
-    if isinstance(value, int) and not isinstance(value, bool):
+    if isinstance(value, int | float) and not isinstance(value, bool):
         sheet.write_number(row, column, value, style)
     else:
         sheet.write_string(row, column, str(value), style)
@@ -70,7 +72,9 @@ def write_facts(sheet: Any, report: SelectionReport, bold: Any, wrap: Any) -> in
     return len(rows) + 2
 
 
-def write_rows(sheet: Any, rows: Iterable[Sequence[Cell]], first_row: int = 0) -> None:
+def write_rows(
+    sheet: Any, rows: Iterable[Sequence[Cell | float | None]], first_row: int = 0
+) -> None:
     for offset, row in enumerate(rows):
         for column, value in enumerate(row):
             write_cell(sheet, first_row + offset, column, value)

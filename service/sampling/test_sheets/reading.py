@@ -21,6 +21,7 @@ from typing import Any, Final
 
 from service.sampling.errors import InvalidInput
 from service.sampling.test_sheets.layout import (
+    EVALUATION_SHEET,
     ITEMS_MARKER,
     LAYOUT,
     RECORD_KEYS,
@@ -77,6 +78,9 @@ class CompletedSheet:
     extra_columns: tuple[str, ...]
     """The record columns of the ``Tests`` sheet between ``position`` and the first
     attribute's columns (a file population's own columns)."""
+    sheets: tuple[tuple[str, tuple[tuple[int | float | str | None, ...], ...]], ...] = ()
+    """Every sheet but an earlier evaluation's, by name, as the values of its cells, so
+    that the workbook can be written again with an evaluation added."""
 
 
 def _value(cell: Any) -> Value | None:
@@ -90,6 +94,13 @@ def _value(cell: Any) -> Value | None:
     if isinstance(cell, int | str):
         return cell
     return str(cell)
+
+
+def _copied(cell: Any) -> int | float | str | None:
+    """A cell as copied into a rewritten workbook: numbers stay numbers."""
+    if isinstance(cell, float) and not cell.is_integer():
+        return cell
+    return _value(cell)
 
 
 def _text(cell: Any) -> str:
@@ -216,6 +227,11 @@ def read_test_sheet(path: Path) -> CompletedSheet:
         try:
             recorded = _recorded(_sheet_rows(workbook, RECORD_SHEET))
             table = _sheet_rows(workbook, TESTS_SHEET)
+            sheets = tuple(
+                (name, tuple(tuple(map(_copied, row)) for row in _sheet_rows(workbook, name)))
+                for name in workbook.sheet_names
+                if name != EVALUATION_SHEET
+            )
         except CalamineError as exc:
             raise InvalidInput(FIELD, f"is not a readable XLSX workbook ({exc})") from None
     finally:
@@ -242,4 +258,4 @@ def read_test_sheet(path: Path) -> CompletedSheet:
             )
         )
         notes.append(tuple("" if k is None else _text(padded[k]) for k in notes_at))
-    return CompletedSheet(recorded, tuple(rows), tuple(notes), extra)
+    return CompletedSheet(recorded, tuple(rows), tuple(notes), extra, sheets)
