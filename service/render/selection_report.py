@@ -14,6 +14,7 @@ from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
 from typing import Any
 
+from service.sampling.selection import NumberedPopulation, RangePopulation
 from service.sampling.wording import CAUTION
 
 Cell = int | str
@@ -45,26 +46,38 @@ class SelectionReport:
     and files, whose selected items are recorded instead."""
 
 
-def file_records(result: Any) -> tuple[tuple[str, ...], tuple[Mapping[str, str], ...]] | None:
-    """The column names and the selected records (in draw order) of a file population."""
+RESERVED = ("draw", "item", "position", "where in the file")
+"""Headings of the service's own columns; a file column of the same name is shown as
+``file: <name>`` so that every heading of the records names one column."""
+
+
+def file_records(
+    result: Any,
+) -> tuple[tuple[str, ...], tuple[tuple[str, ...], ...]] | None:
+    """The headings and the cells of a file population's selected records, in draw order:
+    where each record is in the file, then the file's columns."""
     selection = getattr(result, "selection", None)
     records = getattr(selection, "records", None)
     columns = getattr(selection, "columns", None)
-    if records is None or columns is None:
+    if not records or not columns:
         return None
-    return tuple(columns), tuple(records)
+    where = tuple(getattr(selection, "where", ()) or ("",) * len(records))
+    headings = tuple(f"file: {c}" if c in RESERVED else c for c in columns)
+    rows = tuple(
+        (place, *(record.get(c, "") for c in columns))
+        for place, record in zip(where, records, strict=True)
+    )
+    return ("where in the file", *headings), rows
 
 
 def _population_inputs(result: Any) -> Mapping[str, Any] | None:
     population = getattr(result, "population", None)
-    size = getattr(population, "size", None)
-    if isinstance(size, int):
-        return {"size": size}
-    ranges = getattr(population, "ranges", None)
-    if ranges is not None:
+    if isinstance(population, NumberedPopulation):
+        return {"size": population.size}
+    if isinstance(population, RangePopulation):
         return {
-            "ranges": [{"first": first, "last": last} for first, last in ranges],
-            "exclude": list(getattr(population, "exclude", ())),
+            "ranges": [{"first": first, "last": last} for first, last in population.ranges],
+            "exclude": list(population.exclude),
         }
     return None
 
@@ -89,8 +102,7 @@ def selection_report(
     columns = ("draw", "item", "position", *extra_columns)
     rows = []
     for draw, (item, position) in enumerate(zip(items, positions, strict=True), start=1):
-        record = records[draw - 1] if records else {}
-        rows.append((draw, item, position, *(record.get(c, "") for c in extra_columns)))
+        rows.append((draw, item, position, *(records[draw - 1] if records else ())))
     by_identifier = sorted(rows, key=lambda row: row[2])
     pull_columns = ("item", "draw", "position", *extra_columns)
     pull_rows = tuple((row[1], row[0], row[2], *row[3:]) for row in by_identifier)
