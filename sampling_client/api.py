@@ -53,6 +53,7 @@ OPERATION_PATHS = {
     "selection": "/v1/selection",
     "estimation-sample-size": "/v1/estimation/sample-size",
     "plan-curve": "/v1/plans/curve",
+    "population-profile": "/v1/populations/profile",
     "batch": "/v1/batch",
 }
 

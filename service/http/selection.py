@@ -8,6 +8,7 @@ from typing import Any
 from schemas.selection import SelectionRequest, SelectionResult, SelectionSchema
 from service.http.markdown import TicketLayout
 from service.http.operations import Operation, blueprint
+from service.http.populations import read_limits, uploaded
 from service.problems import invalid_input
 from service.render import cells
 from service.render.records_csv import render_records_csv
@@ -15,7 +16,10 @@ from service.render.records_xlsx import render_records_xlsx
 from service.render.selection_report import selection_report
 from service.render.test_sheet import render_test_sheet
 from service.render.xlsx import XLSX
-from service.sampling.selection import select
+from service.sampling.errors import InvalidInput
+from service.sampling.populations.canonical import select_from_file
+from service.sampling.populations.reading import PopulationFile, open_population
+from service.sampling.selection import Selection, select
 from service.sampling.test_sheets.layout import MAX_SHEET_ROWS, RECORD_KEYS
 from service.settings import Settings
 
@@ -27,13 +31,25 @@ FORMULA_STARTS = cells.FORMULA_STARTS
 
 def _select(inputs: dict[str, Any], settings: Settings) -> SelectionResult:
     seed = inputs.get("seed")
-    selection = select(
-        inputs["population"],
-        inputs["sample_size"],
-        seed,
-        inputs["method"],
-        max_items=settings.max_items,
-    )
+    population = inputs["population"]
+    selection: Selection
+    if isinstance(population, PopulationFile):
+        with open_population(uploaded(inputs), population, read_limits(settings)) as table:
+            selection = select_from_file(
+                table, inputs["sample_size"], seed, inputs["method"], max_items=settings.max_items
+            )
+    else:
+        if inputs.get("upload") is not None:
+            raise InvalidInput(
+                "population", "a file was uploaded: describe it as population.file"
+            )
+        selection = select(
+            population,
+            inputs["sample_size"],
+            seed,
+            inputs["method"],
+            max_items=settings.max_items,
+        )
     attributes = inputs.get("attributes")
     return SelectionResult(
         selection,
@@ -87,10 +103,14 @@ OPERATIONS = [
         name="selection",
         path="/v1/selection",
         takes_item_lists=True,
+        accepts_file=True,
         summary="Select sample items reproducibly",
         description=(
             "Selects sample_size items from a population given as a count of numbered items, "
-            "as document-number ranges less excluded numbers, or as a list of identifiers, by "
+            "as document-number ranges less excluded numbers, as a list of identifiers, or "
+            "as a file of records (CSV, XLSX or Parquet, sent as the file part of a "
+            "multipart/form-data request and described by population.file; the answer then "
+            "adds the selected records with all their columns and a pull list), by "
             "simple random sampling without replacement or systematically. The items depend "
             "only on the population, sample size, seed, method and algorithm version, all "
             "reported, so anyone can re-perform the selection; with the random method, a "

@@ -455,7 +455,7 @@ BAD_INPUTS: list[tuple[str, dict[str, Any], str, list[str]]] = [
         "two population forms",
         {"population": {"size": 4200, "items": ["PO-1"]}},
         "population",
-        ["exactly one of size, ranges or items", "size and items"],
+        ["exactly one of size, ranges, items or file", "size and items"],
     ),
     ("no population form", {"population": {}}, "population", ["exactly one", "none"]),
     ("population missing", {"population": ABSENT}, "population", ["Missing"]),
