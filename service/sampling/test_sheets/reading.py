@@ -181,6 +181,8 @@ def _recorded(rows: list[list[Any]]) -> RecordedSelection:
     sizes = facts["population_size"], facts["sample_size"]
     if not all(isinstance(size, int) for size in sizes) or not isinstance(attributes, list):
         raise InvalidInput(FIELD, "the record sheet's sizes or attributes are damaged")
+    if population is not None and not isinstance(population, dict):
+        raise InvalidInput(FIELD, "the record sheet's population is damaged")
     return RecordedSelection(
         selection_fingerprint=_text(facts["selection_fingerprint"]),
         population_fingerprint=_text(facts["population_fingerprint"]),
@@ -190,7 +192,7 @@ def _recorded(rows: list[list[Any]]) -> RecordedSelection:
         method=_text(facts["method"]),
         algorithm=_text(facts["algorithm"]),
         attributes=tuple(str(name) for name in attributes),
-        population=population if isinstance(population, dict) else None,
+        population=population,
         items=tuple(items),
     )
 

@@ -270,15 +270,21 @@ def evaluate_tally(
             f"names attributes the sheet does not have: {', '.join(map(repr, unknown))} "
             f"(the sheet's: {', '.join(repr(t.attribute) for t in tally.attributes)})",
         )
-    return tuple(
-        evaluate_sample(
-            t.sample_size,
-            t.deviations,
-            confidence,
-            rates.get(t.attribute),
-            tally.recorded.population_size,
-            method,
-            population_label=population_label,
-        )
-        for t in tally.attributes
-    )
+    evaluations = []
+    for t in tally.attributes:
+        try:
+            evaluation = evaluate_sample(
+                t.sample_size,
+                t.deviations,
+                confidence,
+                rates.get(t.attribute),
+                tally.recorded.population_size,
+                method,
+                population_label=population_label,
+            )
+        except InvalidInput as exc:
+            if exc.field != "tolerable_rate":
+                raise
+            raise InvalidInput(f"tolerable_rates.{t.attribute}", exc.message) from None
+        evaluations.append(evaluation)
+    return tuple(evaluations)

@@ -191,6 +191,8 @@ def test_markdown_answer_names_each_attribute(api: FlaskClient, blank_sheet: byt
         ({"tolerable_rates": {"three-way match": 5}}, "tolerable_rates.three-way match.value",
          ""),
         ({"population": {"size": 400}}, "population.size", "recorded in the sheet (398)"),
+        ({"tolerable_rates": {"three-way match": 0.00001}}, "tolerable_rates.three-way match",
+         "0.0001"),
         ({"not_tested": "ignore"}, "not_tested", "must be one of"),
         ({"sample_size": 40}, "sample_size", "not a field"),
     ],

@@ -272,3 +272,29 @@ def test_archives_that_inflate_too_far_are_refused(
     monkeypatch.setattr(reading, "MAX_UNCOMPRESSED_BYTES", 1000)
     with pytest.raises(InvalidInput, match="at most 1,000 bytes uncompressed"):
         read_test_sheet(path)
+
+
+@pytest.mark.parametrize(
+    ("key", "value", "words"),
+    [
+        ("sample_size", "twelve", "sizes or attributes are damaged"),
+        ("attributes", "[1", "attributes or population is damaged"),
+        ("population", "[5001, 5400]", "population is damaged"),
+        ("population", '{"size": "all"}', "population is damaged"),
+        ("layout", "test-sheet/0", "this service reads 'test-sheet/1'"),
+    ],
+)
+def test_a_damaged_record_sheet_is_refused(
+    api: FlaskClient, tmp_path: Path, key: str, value: str, words: str
+) -> None:
+    _, data = _sheet(api, HARBOUR)
+
+    def damage(workbook: Any) -> None:
+        _all("passed")(workbook)
+        for row in workbook["record"].iter_rows():
+            if row[0].value == key:
+                row[1].value = value
+
+    with pytest.raises(InvalidInput, match=words) as caught:
+        tally_test_sheet(read_test_sheet(_complete(data, tmp_path, damage)))
+    assert caught.value.field == "file"
