@@ -7,6 +7,7 @@ reviewer's spreadsheet would, independently of the service's own writer and read
 
 from __future__ import annotations
 
+import csv
 import io
 import json
 from collections.abc import Callable, Iterator
@@ -217,3 +218,44 @@ def test_the_json_form_is_unchanged_and_offers_no_xlsx(api: FlaskClient) -> None
     body = {"sample_size": 40, "deviations": 1}
     assert api.post("/v1/evaluation", json=body).status_code == 200
     assert api.post("/v1/evaluation", json=body, headers={"Accept": XLSX}).status_code == 406
+
+
+def test_a_population_files_test_sheet_round_trip(api: FlaskClient) -> None:
+    """An uploaded export (its rows written by Python's csv module) gives a test sheet with
+    the file's columns, and the completed sheet evaluates like the same counts as JSON."""
+    out = io.StringIO()
+    writer = csv.writer(out, lineterminator="\r\n")
+    writer.writerow(["doc_no", "amount", "vendor"])
+    rows = {f"HLP-{k:04d}": [f"{k}.50", "=HYPERLINK(1)" if k % 7 == 0 else "Quayside Dairy"]
+            for k in range(1, 121)}
+    writer.writerows([doc, *cells] for doc, cells in rows.items())
+    request = {"population": {"file": {"id_column": "doc_no"}}, "sample_size": 30,
+               "seed": "harbour-lane-file", "attributes": ["goods received"]}
+    response = api.post(
+        "/v1/selection",
+        data={"file": (io.BytesIO(out.getvalue().encode()), "orders.csv"),
+              "request": json.dumps(request)},
+        content_type="multipart/form-data",
+        headers={"Accept": XLSX},
+    )
+    assert response.status_code == 200, response.get_data(as_text=True)
+    workbook = openpyxl.load_workbook(io.BytesIO(response.data))
+    sheet = workbook["Tests"]
+    heading = [cell.value for cell in sheet[1]]
+    assert heading[4:7] == ["doc_no", "amount", "vendor"]
+    for row in sheet.iter_rows(min_row=2):
+        assert [row[5].value, row[6].value] == rows[row[1].value]
+        assert row[6].data_type == "s"
+    result = heading.index("goods received: result") + 1
+    for line in range(2, sheet.max_row + 1):
+        sheet.cell(line, result).value = "deviation" if line in (4, 9) else "passed"
+    completed = io.BytesIO()
+    workbook.save(completed)
+    rates = {"tolerable_rates": {"goods received": 0.2}}
+    document = _ok(_evaluate(api, completed.getvalue(), rates))
+    (evaluation,) = document["evaluations"]
+    direct = _ok(api.post("/v1/evaluation", json={
+        "population": {"size": 120}, "sample_size": 30, "deviations": 2, "tolerable_rate": 0.2}))
+    assert evaluation["deviations"] == 2
+    assert evaluation["upper_deviation_limit"] == direct["upper_deviation_limit"]
+    assert evaluation["conclusion"] == direct["conclusion"]
