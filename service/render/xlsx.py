@@ -4,6 +4,10 @@ Every workbook is made by :func:`new_workbook`, which turns off xlsxwriter's con
 text that looks like a formula, a number or a URL, and every cell is written by
 :func:`write_cell`: numbers as numbers, everything else with ``write_string``. No cell is
 ever written as a formula, so a value such as ``=HYPERLINK(...)`` stays text, exactly.
+
+A cell holds at most :data:`MAX_CELL_CHARACTERS` characters (the limit of the format's
+spreadsheet programs); a longer text, which only a population file's own columns can hold,
+is cut visibly: its first characters, then ``… [cut: N characters in all]``.
 """
 
 from __future__ import annotations
@@ -17,6 +21,8 @@ import xlsxwriter
 from service.render.selection_report import Cell, SelectionReport, Table
 
 XLSX = "application/vnd.openxmlformats-officedocument.spreadsheetml.sheet"
+
+MAX_CELL_CHARACTERS = 32_767
 
 _OPTIONS = {
     "in_memory": True,
@@ -44,13 +50,26 @@ def write_cell(
     if isinstance(value, int | float) and not isinstance(value, bool):
         sheet.write_number(row, column, value, style)
     else:
-        sheet.write_string(row, column, str(value), style)
+        sheet.write_string(row, column, fitted(str(value)), style)
+
+
+def fitted(text: str) -> str:
+    """``text``, or its visibly cut form when it is longer than a cell holds.
+
+    >>> cut = fitted("x" * 40_000)
+    >>> len(cut), cut.endswith("x… [cut: 40,000 characters in all]")
+    (32767, True)
+    """
+    if len(text) <= MAX_CELL_CHARACTERS:
+        return text
+    mark = f"… [cut: {len(text):,} characters in all]"
+    return text[: MAX_CELL_CHARACTERS - len(mark)] + mark
 
 
 def write_table(sheet: Any, table: Table, bold: Any, first_row: int = 0) -> int:
     """The heading row in bold, then the rows; returns the index of the row after the table."""
     for column, name in enumerate(table.columns):
-        sheet.write_string(first_row, column, name, bold)
+        sheet.write_string(first_row, column, fitted(name), bold)
     for offset, row in enumerate(table.rows, start=1):
         for column, value in enumerate(row):
             write_cell(sheet, first_row + offset, column, value)

@@ -102,3 +102,26 @@ def test_a_file_test_sheet_comes_back_with_its_items(tmp_path: Path) -> None:
     assert completed.extra_columns == tuple(report.records.columns[3:])
     tally = tally_test_sheet(completed)
     assert tally.attributes[0].passed == 12
+
+
+def test_a_cell_longer_than_a_worksheet_holds_is_cut_visibly(tmp_path: Path) -> None:
+    long_text = "goods described " * 3000  # 48,000 characters
+    path = tmp_path / "long.csv"
+    out = io.StringIO()
+    csv.writer(out, lineterminator="\n").writerows(
+        [["doc_no", "description"], *([f"HLP-{k}", long_text] for k in range(1, 4))]
+    )
+    path.write_text(out.getvalue(), encoding="utf-8")
+    description = PopulationFile(id_column="doc_no")
+    with open_population(path, description) as table:
+        selection = select_from_file(table, 3, "long", "random", max_items=10)
+    result = SelectionResult(selection, description, seed_generated=False)  # type: ignore[arg-type]
+    report = selection_report(SelectionSchema().dump(result), result)
+    workbook = openpyxl.load_workbook(io.BytesIO(render_records_xlsx(report)))
+    cell = workbook["Records"].cell(2, 6).value
+    # The most characters a cell holds (Excel specifications and limits; xlsxwriter enforces it).
+    assert len(cell) == 32_767
+    assert cell.startswith(long_text[:1000])
+    assert cell.endswith(f"… [cut: {len(long_text):,} characters in all]")
+    text = render_records_csv(report)
+    assert long_text in text  # CSV has no such limit: the text is whole
