@@ -71,24 +71,33 @@ def check_identifiers(table: PopulationTable) -> int:
     """Refuse blank, overlong, U+0000-holding or repeated identifiers; return how many."""
     con = table.con
     column = table.description.id_column
-    for condition, what in (
+    checks = (
         (f"{ID} IS NULL OR trim({ID}) = ''", f"blank identifiers in column {column!r}"),
         (f"strpos({ID}, chr(0)) > 0", "identifiers holding the character U+0000"),
         (
             f"length({ID}) > {MAX_IDENTIFIER_LENGTH}",
             f"identifiers longer than {MAX_IDENTIFIER_LENGTH:,} characters",
         ),
-    ):
+    )
+    # One pass counts every kind of bad identifier; only a failure pays for finding lines.
+    counted = con.execute(
+        "SELECT count(*), count(DISTINCT " + ID + "), "
+        + ", ".join(f"count(*) FILTER (WHERE {condition})" for condition, _ in checks)
+        + " FROM kept"
+    ).fetchone() or (0, 0, 0, 0, 0)
+    size, distinct, *bad = (int(n) for n in counted)
+    for (condition, what), count in zip(checks, bad, strict=True):
+        if not count:
+            continue
         rows = con.execute(
             f"SELECT {RECORD} FROM kept WHERE {condition} ORDER BY {RECORD} LIMIT {SHOWN}"
         ).fetchall()
-        if rows:
-            total = con.execute(f"SELECT count(*) FROM kept WHERE {condition}").fetchone()
-            count = int(total[0]) if total else len(rows)
-            raise InvalidInput(
-                f"{FIELD}.id_column",
-                f"{count:,} {what}, at {table.wheres([r[0] for r in rows], count)}",
-            )
+        raise InvalidInput(
+            f"{FIELD}.id_column",
+            f"{count:,} {what}, at {table.wheres([r[0] for r in rows], count)}",
+        )
+    if distinct == size:
+        return size
     repeated = con.execute(
         f"SELECT {ID}, list({RECORD} ORDER BY {RECORD}) AS at, count(*) OVER () AS n "
         f"FROM kept GROUP BY {ID} HAVING count(*) > 1 ORDER BY min({RECORD}) LIMIT {SHOWN}"
@@ -102,8 +111,7 @@ def check_identifiers(table: PopulationTable) -> int:
             f"{repeated[0][2]:,} identifiers appear more than once in column {column!r}: "
             f"{described}",
         )
-    size = con.execute("SELECT count(*) FROM kept").fetchone()
-    return int(size[0]) if size else 0
+    return size
 
 
 def _sorted_identifiers(table: PopulationTable) -> Iterator[list[bytes]]:

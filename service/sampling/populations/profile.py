@@ -135,20 +135,20 @@ def profile_population(
             if value is not None:
                 raise InvalidInput(name, f"{name} needs an amount_column")
     blank = f"({ID} IS NULL OR trim({ID}) = '')"
-    kept, distinct, blanks = _one(
+    kept, distinct, blanks, repeated_ids, repeated_rows = _one(
         table,
-        f"SELECT count(*), count(DISTINCT {ID}) FILTER (WHERE NOT {blank}), "
-        f"count(*) FILTER (WHERE {blank}) FROM kept",
+        f"SELECT sum(n), count(*) FILTER (WHERE NOT blank), sum(n) FILTER (WHERE blank), "
+        "count(*) FILTER (WHERE n > 1 AND NOT blank), "
+        "coalesce(sum(n) FILTER (WHERE n > 1 AND NOT blank), 0) "
+        f"FROM (SELECT {ID}, {blank} AS blank, count(*) AS n FROM kept GROUP BY {ID}, blank)",
     )
-    repeated_ids, repeated_rows = _one(
-        table,
-        f"SELECT count(*), coalesce(sum(n), 0) FROM (SELECT count(*) AS n FROM kept "
-        f"WHERE NOT {blank} GROUP BY {ID} HAVING count(*) > 1)",
-    )
-    shown = table.con.execute(
-        f"SELECT {ID}, list({RECORD} ORDER BY {RECORD}) FROM kept WHERE NOT {blank} "
-        f"GROUP BY {ID} HAVING count(*) > 1 ORDER BY min({RECORD}) LIMIT {SHOWN}"
-    ).fetchall()
+    kept, blanks = int(kept or 0), int(blanks or 0)
+    shown = []
+    if repeated_ids:
+        shown = table.con.execute(
+            f"SELECT {ID}, list({RECORD} ORDER BY {RECORD}) FROM kept WHERE NOT {blank} "
+            f"GROUP BY {ID} HAVING count(*) > 1 ORDER BY min({RECORD}) LIMIT {SHOWN}"
+        ).fetchall()
     repeated = tuple(
         Repeated(identifier, tuple(table.where(r) for r in at[:SHOWN])) for identifier, at in shown
     )
@@ -228,13 +228,13 @@ def suggest_strata(
     places = max(table.places, 0)
     top = "FALSE" if top_threshold is None else f"{AMOUNT} >= CAST(? AS DECIMAL(38, 10))"
     bound = [] if top_threshold is None else [top_threshold]
-    top_items, top_total = _one(
-        table, f"SELECT count(*), sum({AMOUNT}) FROM kept WHERE {top}", bound
-    )
-    left_out = _one(table, f"SELECT count(*) FROM kept WHERE {AMOUNT} <= 0")[0]
     body = f"{AMOUNT} > 0 AND NOT ({top})"
-    low, high, count = _one(
-        table, f"SELECT min({AMOUNT}), max({AMOUNT}), count(*) FROM kept WHERE {body}", bound
+    top_items, top_total, left_out, low, high, count = _one(
+        table,
+        f"SELECT count(*) FILTER (WHERE {top}), sum({AMOUNT}) FILTER (WHERE {top}), "
+        f"count(*) FILTER (WHERE {AMOUNT} <= 0), min({AMOUNT}) FILTER (WHERE {body}), "
+        f"max({AMOUNT}) FILTER (WHERE {body}), count(*) FILTER (WHERE {body}) FROM kept",
+        bound * 5,
     )
     edges: list[Decimal] = []
     if count and strata >= 2 and low != high:
@@ -257,20 +257,23 @@ def suggest_strata(
             for edge in cumulative_root_boundaries(counts, strata)
         ]
     limits: list[Decimal | None] = [None, *edges, None]
-    found: list[Stratum] = []
-    for number, (lower, upper) in enumerate(pairwise(limits), start=1):
-        condition = body
-        parameters = list(bound)
-        if lower is not None:
-            condition += f" AND {AMOUNT} >= CAST(? AS DECIMAL(38, 10))"
-            parameters.append(lower)
-        if upper is not None:
-            condition += f" AND {AMOUNT} < CAST(? AS DECIMAL(38, 10))"
-            parameters.append(upper)
-        items, total = _one(
-            table, f"SELECT count(*), sum({AMOUNT}) FROM kept WHERE {condition}", parameters
-        )
-        found.append(Stratum(number, lower, upper, int(items), _exact(total, places)))
+    # Stratum h holds the amounts from edge h − 1 (inclusive) to edge h (exclusive).
+    number = " ".join(
+        f"WHEN {AMOUNT} < CAST(? AS DECIMAL(38, 10)) THEN {h}" for h in range(1, len(edges) + 1)
+    )
+    case = f"CASE {number} ELSE {len(edges) + 1} END" if edges else "1"
+    sums = {
+        int(h): (int(items), total)
+        for h, items, total in table.con.execute(
+            f"SELECT {case} AS h, count(*), sum({AMOUNT}) FROM kept WHERE {body} GROUP BY h",
+            [*edges, *bound],
+        ).fetchall()
+    }
+    found = [
+        Stratum(h, lower, upper, sums.get(h, (0, None))[0], _exact(sums.get(h, (0, None))[1],
+                                                                    places))
+        for h, (lower, upper) in enumerate(pairwise(limits), start=1)
+    ]
     return StrataSuggestion(
         asked=strata,
         classes=classes,

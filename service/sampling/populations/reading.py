@@ -137,7 +137,9 @@ def open_population(
         }
         if limits.threads is not None:
             config["threads"] = limits.threads
-        con = duckdb.connect(str(Path(folder) / "population.duckdb"), config=config)
+        # In memory, spilling to the folder beyond the memory limit: writing a database
+        # file costs about three times as long to load.
+        con = duckdb.connect(":memory:", config=config)
         try:
             yield _load(con, path, description, limits)
         finally:
@@ -194,12 +196,14 @@ def _keep(table: PopulationTable) -> None:
     valid = value = places = "NULL"
     if d.amount_column is not None:
         valid, value, places = sql_amount(quoted(d.amount_column), d.amount_style)
-        bad = con.execute(
-            f"SELECT {RECORD}, {quoted(d.amount_column)} FROM source WHERE NOT {valid} "
-            f"ORDER BY {RECORD} LIMIT {SHOWN}"
-        ).fetchall()
-        if bad:
-            total = _scalar(con, f"SELECT count(*) FROM source WHERE NOT {valid}")
+        total, most = con.execute(
+            f"SELECT count(*) FILTER (WHERE NOT {valid}), max({places}) FROM source"
+        ).fetchone() or (0, 0)
+        if total:
+            bad = con.execute(
+                f"SELECT {RECORD}, {quoted(d.amount_column)} FROM source WHERE NOT {valid} "
+                f"ORDER BY {RECORD} LIMIT {SHOWN}"
+            ).fetchall()
             first_record, first_text = bad[0]
             raise InvalidInput(
                 f"{FIELD}.amount_column",
@@ -207,7 +211,7 @@ def _keep(table: PopulationTable) -> None:
                 f"{d.amount_style} (at most 10 decimal places): {first_text[:40]!r} at "
                 f"{table.where(first_record)}; at {table.wheres([r for r, _ in bad], total)}",
             )
-        table.places = int(_scalar(con, f"SELECT coalesce(max({places}), 0) FROM source"))
+        table.places = int(most or 0)
     condition, parameters = where_clause(
         d.filters, table.columns, d.amount_column, value, d.amount_style
     )
@@ -237,7 +241,7 @@ def _keep(table: PopulationTable) -> None:
     con.execute(
         f"CREATE TABLE kept AS SELECT {RECORD}, {identifier} AS {ID}, {value} AS {AMOUNT} "
         f"FROM source WHERE ({condition}) AND ({identifier} IS NULL OR {identifier} "
-        f"NOT IN (SELECT id FROM excluded)) ORDER BY {RECORD}",
+        "NOT IN (SELECT id FROM excluded))",
         parameters,
     )
     table.excluded_found = len(d.exclude)
