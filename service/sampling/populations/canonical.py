@@ -67,8 +67,11 @@ class FileSelection(Selection):
     where: tuple[str, ...] = ()
 
 
-def check_identifiers(table: PopulationTable) -> int:
-    """Refuse blank, overlong, U+0000-holding or repeated identifiers; return how many."""
+def check_identifiers(table: PopulationTable, source: str = "kept") -> int:
+    """Refuse blank, overlong, U+0000-holding or repeated identifiers; return how many.
+
+    ``source`` names the table of the population (``kept``, or one stratum of it).
+    """
     con = table.con
     column = table.description.id_column
     checks = (
@@ -83,14 +86,14 @@ def check_identifiers(table: PopulationTable) -> int:
     counted = con.execute(
         "SELECT count(*), count(DISTINCT " + ID + "), "
         + ", ".join(f"count(*) FILTER (WHERE {condition})" for condition, _ in checks)
-        + " FROM kept"
+        + f" FROM {source}"
     ).fetchone() or (0, 0, 0, 0, 0)
     size, distinct, *bad = (int(n) for n in counted)
     for (condition, what), count in zip(checks, bad, strict=True):
         if not count:
             continue
         rows = con.execute(
-            f"SELECT {RECORD} FROM kept WHERE {condition} ORDER BY {RECORD} LIMIT {SHOWN}"
+            f"SELECT {RECORD} FROM {source} WHERE {condition} ORDER BY {RECORD} LIMIT {SHOWN}"
         ).fetchall()
         raise InvalidInput(
             f"{FIELD}.id_column",
@@ -100,7 +103,7 @@ def check_identifiers(table: PopulationTable) -> int:
         return size
     repeated = con.execute(
         f"SELECT {ID}, list({RECORD} ORDER BY {RECORD}) AS at, count(*) OVER () AS n "
-        f"FROM kept GROUP BY {ID} HAVING count(*) > 1 ORDER BY min({RECORD}) LIMIT {SHOWN}"
+        f"FROM {source} GROUP BY {ID} HAVING count(*) > 1 ORDER BY min({RECORD}) LIMIT {SHOWN}"
     ).fetchall()
     if repeated:
         described = "; ".join(
@@ -127,16 +130,20 @@ def select_from_file(
     method: str,
     *,
     max_items: int,
+    source: str = "kept",
 ) -> FileSelection:
-    """Select ``sample_size`` records of the file's population (module docstring)."""
+    """Select ``sample_size`` records of the file's population (module docstring).
+
+    ``source`` names the table of the population: ``kept``, or one stratum of it.
+    """
     con = table.con
-    size = con.execute("SELECT count(*) FROM kept").fetchone()
+    size = con.execute(f"SELECT count(*) FROM {source}").fetchone()
     if not size or size[0] == 0:
         raise InvalidInput(f"{FIELD}.filters", "no record is left in the population")
     if table.description.id_column is None:
         runs = con.execute(
             f"SELECT min({RECORD}), max({RECORD}) FROM (SELECT {RECORD}, {RECORD} - "
-            f"row_number() OVER (ORDER BY {RECORD}) AS run FROM kept) GROUP BY run ORDER BY 1"
+            f"row_number() OVER (ORDER BY {RECORD}) AS run FROM {source}) GROUP BY run ORDER BY 1"
         ).fetchall()
         if sample_size > max_items:
             raise ComputationTooLarge(
@@ -151,8 +158,10 @@ def select_from_file(
         )
         numbers = [int(item) for item in chosen.items]
     else:
-        count = check_identifiers(table)
-        con.execute(f"CREATE TABLE canon AS SELECT {ID}, {RECORD} FROM kept ORDER BY {ID}")
+        count = check_identifiers(table, source)
+        con.execute(
+            f"CREATE OR REPLACE TABLE canon AS SELECT {ID}, {RECORD} FROM {source} ORDER BY {ID}"
+        )
         fingerprint = items_fingerprint(count, _sorted_identifiers(table))
         by_position: dict[int, tuple[str, int]] = {}
 
