@@ -133,7 +133,12 @@ def check_archive(path: Path) -> None:
             )
 
 
-def _sheet_rows(workbook: Any, name: str) -> list[list[Any]]:
+def _sheet_rows(
+    workbook: Any, name: str, read: dict[str, list[list[Any]]] | None = None
+) -> list[list[Any]]:
+    """The values of sheet ``name``, from ``read`` when it holds them already."""
+    if read is not None and name in read:
+        return read[name]
     if name not in workbook.sheet_names:
         raise InvalidInput(
             FIELD,
@@ -227,13 +232,13 @@ def read_test_sheet(path: Path) -> CompletedSheet:
         raise InvalidInput(FIELD, f"is not a readable XLSX workbook ({exc})") from None
     try:
         try:
-            recorded = _recorded(_sheet_rows(workbook, RECORD_SHEET))
-            table = _sheet_rows(workbook, TESTS_SHEET)
-            sheets = tuple(
-                (name, tuple(tuple(map(_copied, row)) for row in _sheet_rows(workbook, name)))
+            raw = {
+                name: _sheet_rows(workbook, name)
                 for name in workbook.sheet_names
                 if name != EVALUATION_SHEET
-            )
+            }
+            recorded = _recorded(_sheet_rows(workbook, RECORD_SHEET, raw))
+            table = _sheet_rows(workbook, TESTS_SHEET, raw)
         except CalamineError as exc:
             raise InvalidInput(FIELD, f"is not a readable XLSX workbook ({exc})") from None
     finally:
@@ -260,4 +265,7 @@ def read_test_sheet(path: Path) -> CompletedSheet:
             )
         )
         notes.append(tuple("" if k is None else _text(padded[k]) for k in notes_at))
+    sheets = tuple(
+        (name, tuple(tuple(map(_copied, row)) for row in cells)) for name, cells in raw.items()
+    )
     return CompletedSheet(recorded, tuple(rows), tuple(notes), extra, sheets)
