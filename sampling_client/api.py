@@ -54,6 +54,7 @@ OPERATION_PATHS = {
     "estimation-sample-size": "/v1/estimation/sample-size",
     "plan-curve": "/v1/plans/curve",
     "population-profile": "/v1/populations/profile",
+    "population-stratified-selection": "/v1/populations/stratified-selection",
     "batch": "/v1/batch",
 }
 

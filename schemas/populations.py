@@ -10,6 +10,7 @@ strings in plain notation, exact.
 
 from __future__ import annotations
 
+import json
 import math
 import re
 from dataclasses import dataclass
@@ -443,5 +444,172 @@ class ProfileSchema(ResultSchema):
     warnings = fields.Function(
         profile_warnings,
         required=True,
+        metadata={"type": "array", "items": {"type": "string"}},
+    )
+
+
+# --------------------------------------------------------------------------- stratified
+
+
+class StrataSchema(StrictSchema):
+    """How to cut the file's population into strata, and how many to take from each."""
+
+    column = StrictString(
+        validate=validate.Length(min=1),
+        metadata={"description": "One stratum per distinct value of this column (blank "
+                  "cells form a stratum labelled \"\").", "example": "vendor"},
+    )
+    bands = fields.List(
+        Amount(),
+        validate=validate.Length(min=1, max=19, error="must list from {min} to {max} bounds"),
+        metadata={"description": "Ascending amount bounds: stratum h holds the amounts from "
+                  "bound h − 1 (inclusive) to bound h (exclusive), labelled \"[low, high)\" "
+                  "with -inf and inf for open ends.", "example": ["1000", "10000"]},
+    )
+    top_threshold = Amount(
+        metadata={"description": "Amounts at or above this form the stratum \"top\", taken "
+                  "in full beside the sample_size.", "example": "50000"},
+    )
+    sizes = fields.Dict(
+        keys=fields.String(),
+        values=StrictInteger(validate=validate.Range(min=0, error="must be at least {min}")),
+        metadata={"description": "The sample size of each stratum by label (strata not "
+                  "named get 0); their sum must equal sample_size.",
+                  "example": {"Quay Foods": 10, "Tide & Co": 5}},
+    )
+    allocation = StrictString(
+        load_default="proportional",
+        validate=validate.OneOf(("proportional", "neyman"), error="must be one of {choices}"),
+        metadata={"description": "Without sizes: sample_size shared in proportion to the "
+                  "strata's sizes, or to N_h × S_h (Neyman; S_h the standard deviation of the "
+                  "stratum's amounts), by largest remainders."},
+    )
+
+    @validates_schema
+    def _one_way(self, data: dict[str, Any], **kwargs: Any) -> None:
+        if ("column" in data) == ("bands" in data):
+            raise ValidationError("give either column or bands, not both or neither")
+
+
+class StratifiedRequest(StrictSchema):
+    """Select stratum by stratum from a population file."""
+
+    population = fields.Nested(FilePopulationSchema, required=True)
+    strata = fields.Nested(StrataSchema, required=True)
+    sample_size = StrictInteger(
+        required=True,
+        validate=validate.Range(min=1, error="must be at least {min}"),
+        metadata={"description": "Records to select from the strata below the top stratum.",
+                  "example": 40},
+    )
+    seed = StrictString(
+        validate=validate.Length(min=1, max=256),
+        metadata={"description": "Any text; each stratum's seed is derived from it. Absent: "
+                  "the service generates one and returns it.",
+                  "example": "harbour-lane-2026-q3"},
+    )
+    method = StrictString(
+        load_default="random",
+        validate=validate.OneOf(("random", "systematic"), error="must be one of {choices}"),
+    )
+
+    @validates_schema
+    def _sizes_add_up(self, data: dict[str, Any], **kwargs: Any) -> None:
+        sizes = (data.get("strata") or {}).get("sizes")
+        if sizes is not None and sum(sizes.values()) != data.get("sample_size"):
+            raise ValidationError(
+                f"the strata sizes add up to {sum(sizes.values()):,}, not sample_size",
+                "sample_size",
+            )
+
+
+@dataclass(frozen=True)
+class StratifiedResult:
+    """A stratified selection with the facts of the request the response repeats."""
+
+    selection: Any  # StratifiedSelection
+    columns: tuple[str, ...]
+    seed_generated: bool
+    filename: str
+
+
+def _stratum(stratum: Any) -> dict[str, Any]:
+    chosen = stratum.selection
+    return {
+        "label": stratum.label,
+        "population_size": stratum.population_size,
+        "total": None if stratum.total is None else str(stratum.total),
+        "standard_deviation": stratum.standard_deviation,
+        "sample_size": stratum.sample_size,
+        "taken_in_full": stratum.taken_in_full,
+        "seed": stratum.seed,
+        "population_fingerprint": None if chosen is None else chosen.population_fingerprint,
+        "selection_fingerprint": None if chosen is None else chosen.selection_fingerprint,
+        "items": [] if chosen is None else list(chosen.items),
+        "where": [] if chosen is None else list(chosen.where),
+        "records": [] if chosen is None else list(chosen.records),
+    }
+
+
+def stratified_summary(result: StratifiedResult) -> str:
+    chosen = result.selection
+    top = [s for s in chosen.strata if s.label == "top"]
+    how = "simple random sampling" if chosen.method == "random" else "systematic selection"
+    strata = _n(len(chosen.strata), "stratum", "strata")
+    text = f"Selected {chosen.sample_size:,} records from {strata} of the file by {how} within"
+    text += " each stratum"
+    if chosen.allocation == "neyman":
+        text += ", sizes allocated by Neyman allocation"
+    elif chosen.allocation:
+        text += ", sizes allocated in proportion to the strata sizes"
+    text += "."
+    if top:
+        text += f" The top stratum ({_n(top[0].population_size, 'record')}) is taken in full."
+    text += (
+        f" Each stratum's seed is derived from the seed {json.dumps(chosen.seed)} and the "
+        "stratum's label (SHA-256), so each stratum can be re-performed alone as a list of "
+        "its identifiers with its own seed."
+    )
+    return f"{text} {CAUTION}"
+
+
+def stratified_warnings(result: StratifiedResult) -> list[str]:
+    warnings = []
+    if result.seed_generated:
+        warnings.append(
+            "The seed was generated by the service: record it with the selection, because "
+            "without it the selection cannot be re-performed."
+        )
+    empty = [s.label for s in result.selection.strata if s.sample_size == 0]
+    if empty:
+        warnings.append(
+            f"No record is selected from {_n(len(empty), 'stratum', 'strata')}: "
+            f"{', '.join(map(repr, empty[:5]))}."
+        )
+    return warnings
+
+
+class StratifiedSchema(ResultSchema):
+    """A stratified selection from a population file."""
+
+    filename = fields.String(required=True)
+    columns = fields.List(fields.String(), required=True)
+    sample_size = fields.Integer(required=True, attribute="selection.sample_size")
+    seed = fields.String(required=True, attribute="selection.seed")
+    seed_generated = fields.Boolean(required=True)
+    method = fields.String(required=True, attribute="selection.method")
+    allocation = fields.String(attribute="selection.allocation", allow_none=True)
+    strata = fields.Function(
+        lambda result: [_stratum(s) for s in result.selection.strata],
+        required=True,
+        metadata={"type": "array", "items": {"type": "object"},
+                  "description": "Each stratum: label, population_size, total, "
+                  "standard_deviation, sample_size, taken_in_full, its derived seed, its "
+                  "population and selection fingerprints, and the selected items, where "
+                  "each is in the file, and the records, in draw order."},
+    )
+    summary = fields.Function(stratified_summary, required=True, metadata={"type": "string"})
+    warnings = fields.Function(
+        stratified_warnings, required=True,
         metadata={"type": "array", "items": {"type": "string"}},
     )

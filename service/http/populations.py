@@ -5,12 +5,20 @@ from __future__ import annotations
 from pathlib import Path
 from typing import Any
 
-from schemas.populations import ProfileRequest, ProfileResult, ProfileSchema
+from schemas.populations import (
+    ProfileRequest,
+    ProfileResult,
+    ProfileSchema,
+    StratifiedRequest,
+    StratifiedResult,
+    StratifiedSchema,
+)
 from service.http.markdown import TicketLayout
 from service.http.operations import Operation, blueprint
 from service.sampling.errors import InvalidInput
 from service.sampling.populations.profile import profile_population
 from service.sampling.populations.reading import ReadLimits, open_population
+from service.sampling.populations.stratified import StrataPlan, select_stratified
 from service.settings import Settings
 
 
@@ -42,6 +50,27 @@ def _profile(inputs: dict[str, Any], settings: Settings) -> ProfileResult:
             top_threshold=inputs.get("top_threshold"),
         )
     return ProfileResult(profile, inputs.get("upload_name") or "")
+
+
+def _stratified(inputs: dict[str, Any], settings: Settings) -> StratifiedResult:
+    path = uploaded(inputs)
+    strata = inputs["strata"]
+    sizes = strata.get("sizes")
+    plan = StrataPlan(
+        column=strata.get("column"),
+        bands=tuple(strata.get("bands", ())),
+        top_threshold=strata.get("top_threshold"),
+        sizes=sizes,
+        sample_size=None if sizes is not None else inputs["sample_size"],
+        allocation=strata["allocation"],
+    )
+    seed = inputs.get("seed")
+    with open_population(path, inputs["population"], read_limits(settings)) as table:
+        chosen = select_stratified(
+            table, plan, seed, inputs["method"], max_items=settings.max_items
+        )
+        columns = table.columns
+    return StratifiedResult(chosen, columns, seed is None, inputs.get("upload_name") or "")
 
 
 OPERATIONS = [
@@ -83,5 +112,36 @@ OPERATIONS = [
         ),
     ),
 ]
+
+OPERATIONS.append(
+    Operation(
+        name="population-stratified-selection",
+        path="/v1/populations/stratified-selection",
+        accepts_file=True,
+        file_required=True,
+        summary="Select stratum by stratum from a population file",
+        description=(
+            "Cuts the population of an uploaded file (population.file, as for the profile) "
+            "into strata, by the values of a column or by amount bands, with an optional top "
+            "stratum of the amounts at or above top_threshold taken in full, and selects "
+            "from each stratum: sizes given by stratum, or sample_size allocated in "
+            "proportion to the strata's sizes or by Neyman allocation (N_h × S_h; Cochran "
+            "1977, 5.5), by largest remainders, a stratum whose share exceeds its size being "
+            "taken in full. Each stratum is a population of its own in canonical form, with "
+            "a seed derived from the seed: \"stratum-\" and the hex SHA-256 of \"stratum\", "
+            "a zero byte, the seed, a zero byte and the stratum's label (UTF-8); each stratum "
+            "can be re-performed alone through /v1/selection with its identifiers as items "
+            "and its derived seed."
+        ),
+        request=StratifiedRequest,
+        response=StratifiedSchema,
+        run=_stratified,
+        tag="populations",
+        ticket=TicketLayout(
+            answer=("sample_size", "seed", "method", "allocation"),
+            method=lambda document: "stratified selection; Neyman (1934), Cochran (1977) 5.5",
+        ),
+    )
+)
 
 bp = blueprint("populations", OPERATIONS)

@@ -97,3 +97,46 @@ def test_a_json_request_without_a_file_is_told_how_to_send_one(client: FlaskClie
     response = client.post(PROFILE, json={"population": {"file": {"id_column": "doc_no"}}})
     assert response.status_code == 422
     assert "multipart/form-data" in response.json["errors"]["file"][0]
+
+
+STRATIFIED = "/v1/populations/stratified-selection"
+
+
+def test_a_stratified_selection_by_vendor_is_re_performable_per_stratum(
+    client: FlaskClient,
+) -> None:
+    rows = [f"HLP-PO-{3000 + k},2026-07-01,{10 + k}.00,{'Quay' if k % 3 else 'Tide'}\n"
+            for k in range(30)]
+    content = b"doc_no,posted,amount,vendor\n" + "".join(rows).encode()
+    request = {
+        "population": {"file": {"id_column": "doc_no", "amount_column": "amount"}},
+        "strata": {"column": "vendor", "top_threshold": "38"},
+        "sample_size": 6,
+        "seed": "harbour-lane-strata",
+    }
+    response = client.post(
+        STRATIFIED,
+        data={"file": (io.BytesIO(content), "orders.csv"), "request": json.dumps(request)},
+        content_type="multipart/form-data",
+    )
+    assert response.status_code == 200, response.get_data(as_text=True)
+    body = response.json
+    strata = {s["label"]: s for s in body["strata"]}
+    # Amounts 38.00 and 39.00 (k = 28, 29) are the top stratum; of the other 28 records,
+    # 18 are Quay and 10 Tide: 6 × 18/28 = 3.86 and 6 × 10/28 = 2.14, so 4 and 2.
+    assert [(s["label"], s["sample_size"]) for s in body["strata"]] == [
+        ("Quay", 4), ("Tide", 2), ("top", 2)]
+    assert strata["top"]["taken_in_full"] is True
+    for label in ("Quay", "Tide"):
+        members = [r.split(",")[0] for r in rows[:28] if r.rstrip().endswith("," + label)]
+        alone = client.post(SELECTION_PATH, json={
+            "population": {"items": members},
+            "sample_size": strata[label]["sample_size"],
+            "seed": strata[label]["seed"],
+        }).json
+        assert strata[label]["items"] == alone["items"]
+        assert strata[label]["selection_fingerprint"] == alone["selection_fingerprint"]
+    assert "taken in full" in body["summary"]
+
+
+SELECTION_PATH = "/v1/selection"
