@@ -109,6 +109,14 @@ def _read(folder: Path, settings: Settings) -> Upload:
         )
     except RequestEntityTooLarge:
         raise _too_large(settings) from None
+    except OSError:
+        # The temporary folder is full (a small tmpfs, for one): nothing of the upload stays.
+        raise Problem(
+            507,
+            "Insufficient Storage",
+            "the service has no room to store the uploaded file for this request; "
+            "try again later or with a smaller file",
+        ) from None
     except ValueError as exc:
         raise Problem(
             400,

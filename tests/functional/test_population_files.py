@@ -18,6 +18,7 @@ from typing import Any
 import pytest
 import requests
 
+from service.sampling.selection import ItemPopulation, select
 from tests.functional.servers import GUNICORN, running_server
 
 pytestmark = pytest.mark.functional
@@ -109,3 +110,22 @@ def test_a_request_part_that_is_not_json_is_400(server: str) -> None:
     )
     assert response.status_code == 400
     assert list(response.json()["errors"]) == ["request"]
+
+
+def test_a_file_selection_matches_the_items_selection(server: str, temporary: Path) -> None:
+    shuffled = sorted(ROWS, key=lambda row: row[3] + row[0][::-1])  # another row order
+    request = {
+        "population": {"file": {"id_column": "doc_no"}},
+        "sample_size": 15,
+        "seed": "harbour-lane-2026-q3",
+    }
+    response = _upload(f"{server}/v1/selection", request, _csv(shuffled))
+    assert response.status_code == 200, response.text
+    body = response.json()
+    reference = select(ItemPopulation(tuple(r[0] for r in ROWS)), 15, "harbour-lane-2026-q3")
+    assert tuple(body["items"]) == reference.items
+    assert body["population_fingerprint"] == reference.population_fingerprint
+    assert body["selection_fingerprint"] == reference.selection_fingerprint
+    by_id = {row[0]: dict(zip(HEADER, row, strict=True)) for row in ROWS}
+    assert body["records"] == [by_id[item] for item in body["items"]]
+    assert _left_behind(temporary) == []

@@ -263,3 +263,19 @@ def test_the_spec_offers_the_upload_form_for_operations_that_accept_files(
     assert form["schema"]["properties"]["file"]["format"] == "binary"
     assert form["schema"]["properties"]["request"] == content["application/json"]["schema"]
     assert form["encoding"]["request"]["contentType"] == "application/json"
+
+
+def test_a_full_temporary_folder_is_507_not_a_crash(
+    client: FlaskClient, temp_root: Path, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    original = Path.open
+
+    def full(self: Path, *args: Any, **kwargs: Any) -> Any:
+        if self.name.startswith("part-"):
+            raise OSError(28, "No space left on device")
+        return original(self, *args, **kwargs)
+
+    monkeypatch.setattr(Path, "open", full)
+    response = _post(client, {"file": _file(), "request": '{"label": "x"}'})
+    assert "no room" in _problem(response, 507)["detail"]
+    assert list(temp_root.iterdir()) == []
