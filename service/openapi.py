@@ -79,6 +79,7 @@ _UPLOAD_STATUSES = {
     "413": "Body larger than the configured limit, or an uploaded file larger than "
     "SAMPLING_MAX_FILE_BYTES.",
     "415": "Body sent neither as application/json nor as multipart/form-data.",
+    "507": "The service has no room to store the uploaded file for this request.",
 }
 
 
