@@ -37,7 +37,7 @@ from typing import Any, Final
 
 import duckdb
 
-from service.sampling.errors import InvalidInput
+from service.sampling.errors import ComputationTooLarge, InvalidInput
 from service.sampling.populations.amounts import STYLES, sql_amount
 from service.sampling.populations.filters import Filter, quoted, where_clause
 
@@ -142,6 +142,13 @@ def open_population(
         con = duckdb.connect(":memory:", config=config)
         try:
             yield _load(con, path, description, limits)
+        except duckdb.OutOfMemoryException:
+            raise ComputationTooLarge(
+                FIELD, f"the file needs more than the {limits.memory_limit} of memory and the "
+                "temporary space this service gives one request"
+            ) from None
+        except duckdb.Error as exc:  # arithmetic overflow of a huge total, for one
+            raise InvalidInput(FIELD, f"cannot be processed: {_reason(str(exc))}") from None
         finally:
             con.close()
 

@@ -186,3 +186,16 @@ def test_excluded_identifiers_leave_the_population(tmp_path: Path) -> None:
     assert kept == [("HLP-1",), ("HLP-3",)]
     refusal = _refusal(path, PopulationFile(id_column="doc_no", exclude=("HLP-7",)))
     assert refusal == "population.file.exclude: identifiers not in the file: 'HLP-7'"
+
+
+def test_a_total_beyond_the_exact_range_is_refused_not_a_crash(tmp_path: Path) -> None:
+    # 28 integer digits is the most an amount may have (DECIMAL(38, 10)); 20 of the largest
+    # add up to more than that.
+    huge = "9" * 28
+    rows = [(f"HLP-{k}", huge, "x") for k in range(20)]
+    path = write_csv(tmp_path / "po.csv", HEADER, rows)
+    description = PopulationFile(id_column="doc_no", amount_column="amount")
+    with pytest.raises(InvalidInput) as caught, open_population(path, description) as table:
+        profile_population(table)
+    assert caught.value.field == "population.file"
+    assert "cannot be processed" in caught.value.message
