@@ -30,6 +30,8 @@ from service.sampling.wording import CAUTION
 
 _PLAIN = re.compile(rf"-?\d{{1,28}}(\.\d{{1,{MAX_PLACES}}})?")
 MAX_EXCLUDED = 100_000
+MAX_NAME = 1_000  # characters of a column or sheet name, or of a filter's text value
+_NAME = validate.Length(min=1, max=MAX_NAME, error="must have between {min} and {max} characters")
 
 
 class Amount(fields.Field[Decimal]):
@@ -79,12 +81,14 @@ def _filter_value(value: Any) -> None:
             raise ValidationError(f"values must be strings or numbers, not {json_kind(entry)}")
         if isinstance(entry, float) and not math.isfinite(entry):
             raise ValidationError("values must be finite numbers")
+        if isinstance(entry, str) and len(entry) > MAX_NAME:
+            raise ValidationError(f"text values must have at most {MAX_NAME:,} characters")
 
 
 class FilterSchema(StrictSchema):
     """Keep the records whose column compares to the value."""
 
-    column = StrictString(required=True, metadata={"example": "posted"})
+    column = StrictString(required=True, validate=_NAME, metadata={"example": "posted"})
     comparison = StrictString(
         required=True,
         validate=validate.OneOf(COMPARISONS, error="must be one of {choices}"),
@@ -116,7 +120,7 @@ class PopulationFileSchema(StrictSchema):
     """How to read the uploaded population file."""
 
     id_column = StrictString(
-        validate=validate.Length(min=1),
+        validate=_NAME,
         metadata={
             "description": "The column that identifies each record (a document number). "
             "Identifiers are used exactly as written; they must be distinct and not blank.",
@@ -131,7 +135,7 @@ class PopulationFileSchema(StrictSchema):
         },
     )
     amount_column = StrictString(
-        validate=validate.Length(min=1),
+        validate=_NAME,
         metadata={"description": "The column that holds each record's amount.",
                   "example": "amount"},
     )
@@ -160,6 +164,7 @@ class PopulationFileSchema(StrictSchema):
         },
     )
     sheet = StrictString(
+        validate=_NAME,
         metadata={"description": "XLSX only: the sheet to read (default: the first)."}
     )
     format = StrictString(
@@ -455,7 +460,7 @@ class StrataSchema(StrictSchema):
     """How to cut the file's population into strata, and how many to take from each."""
 
     column = StrictString(
-        validate=validate.Length(min=1),
+        validate=_NAME,
         metadata={"description": "One stratum per distinct value of this column (blank "
                   "cells form a stratum labelled \"\").", "example": "vendor"},
     )
