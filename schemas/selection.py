@@ -11,7 +11,6 @@ from __future__ import annotations
 
 import json
 import math
-from collections import Counter
 from collections.abc import Callable
 from dataclasses import dataclass
 from typing import Any, ClassVar
@@ -27,6 +26,7 @@ from marshmallow import (
 from schemas.common import ResultSchema, StrictSchema
 from schemas.fields import MAX_EXACT_INTEGER, StrictInteger, StrictString, json_kind
 from schemas.populations import PopulationFileSchema
+from schemas.test_sheet_fields import AttributeNames
 from service.sampling.populations.reading import PopulationFile
 from service.sampling.selection import (
     ALGORITHM_ID,
@@ -39,7 +39,6 @@ from service.sampling.selection import (
     RangePopulation,
     Selection,
 )
-from service.sampling.test_sheets.layout import MAX_ATTRIBUTE_LENGTH, MAX_ATTRIBUTES
 from service.sampling.wording import CAUTION
 
 SHOWN = 5
@@ -286,12 +285,6 @@ class SelectionPopulationSchema(StrictSchema):
         return ItemPopulation(tuple(data["items"]))
 
 
-def _distinct(names: list[str]) -> None:
-    repeated = sorted(name for name, times in Counter(names).items() if times > 1)
-    if repeated:
-        raise ValidationError(f"must be distinct; repeated: {', '.join(repeated)}")
-
-
 def _seed_length(seed: str) -> None:
     if not seed:
         raise ValidationError("must not be empty")
@@ -339,20 +332,7 @@ class SelectionRequest(StrictSchema):
             "one item per interval of population size / sample size from a random start.",
         },
     )
-    attributes = fields.List(
-        StrictString(
-            validate=validate.Length(
-                min=1,
-                max=MAX_ATTRIBUTE_LENGTH,
-                error="must have between {min} and {max} characters",
-            )
-        ),
-        validate=[
-            validate.Length(
-                min=1, max=MAX_ATTRIBUTES, error="must name between {min} and {max} attributes"
-            ),
-            _distinct,
-        ],
+    attributes = AttributeNames(
         metadata={
             "description": "The attributes (control conditions) each selected item is tested "
             "for. With Accept: application/vnd.openxmlformats-officedocument.spreadsheetml"

@@ -240,7 +240,9 @@ def test_test_sheet_stores_the_selection_for_the_service(api: FlaskClient) -> No
         (["x" * 101], "between 1 and 100 characters"),
         ([f"attribute {k}" for k in range(21)], "between 1 and 20 attributes"),
         ([], "between 1 and 20 attributes"),
-        ("three-way match", "Not a valid list"),
+        ("three-way match", "must be an array of names, not a string"),
+        ([0.05] * 100_000, "between 1 and 20 attributes; got 100,000"),
+        (["approved", 7], "must be a string, not a number"),
     ],
 )
 def test_bad_attributes_are_refused(api: FlaskClient, attributes: Any, message: str) -> None:
