@@ -84,13 +84,15 @@ _UPLOAD_STATUSES = {
 
 
 def _upload_content(
-    operation: Operation, file_description: str = "The population file."
+    operation: Operation,
+    file_description: str = "The population file.",
+    description: str = UPLOAD_DESCRIPTION,
 ) -> dict[str, Any]:
     """The ``multipart/form-data`` request body of an operation that accepts files."""
     return {
         "schema": {
             "type": "object",
-            "description": UPLOAD_DESCRIPTION,
+            "description": description,
             "required": ["file", "request"],
             "properties": {
                 "file": {
@@ -121,7 +123,14 @@ def _add_file_form(
         if name not in spec.components.schemas:
             spec.components.schema(name, schema=schema)
     statuses.update(_UPLOAD_STATUSES)
-    body["multipart/form-data"] = _upload_content(form, f"The file to {form.summary.lower()}.")
+    body["multipart/form-data"] = _upload_content(
+        form,
+        f"The file to {form.summary.lower()}.",
+        "A file and its request in one body: the part file holds the file, streamed to a "
+        "temporary file that is removed once the answer is made (at most "
+        "SAMPLING_MAX_FILE_BYTES, 2 GiB by default); the part request holds the JSON request "
+        "of this form, given by the schema named here.",
+    )
     either = f"{_schema_name(operation.response)}Answer"
     spec.components.schema(
         either,
