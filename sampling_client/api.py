@@ -56,6 +56,8 @@ OPERATION_PATHS = {
     "monetary-sample-size": "/v1/monetary/sample-size",
     "monetary-selection": "/v1/monetary/selection",
     "monetary-evaluation": "/v1/monetary/evaluation",
+    "population-profile": "/v1/populations/profile",
+    "population-stratified-selection": "/v1/populations/stratified-selection",
     "batch": "/v1/batch",
 }
 

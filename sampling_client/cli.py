@@ -295,8 +295,8 @@ def _run_operation(args: argparse.Namespace) -> int:
     if operation.name == "selection" and "seed" not in body and args.output in ("csv",
                                                                                 "markdown"):
         _say(args, f"warning: no --seed given: the service generates one on every call, so "
-             f"each run selects other items, and the {args.output.upper()} answer does not "
-             "carry it. Give --seed, or use the table or --json to see and record the seed.")
+             f"each run selects other items; record the seed written in the "
+             f"{args.output.upper()} answer, or give --seed.")
     if args.output == "csv" and "text/csv" not in operation.media_types:
         raise UsageProblem(f"--csv for {operation.name} needs --controls")
     with _client(args) as client:

@@ -383,7 +383,14 @@ def add_flags(
     """Add one flag per spec (and a ``-file`` flag per list), grouped by nested object."""
     groups = groups or {}
     made: dict[tuple[str, ...], Any] = {}
-    leaves = [spec.path[-1] for spec in specs]
+    depths: dict[str, list[tuple[str, ...]]] = {}
+    for spec in specs:
+        depths.setdefault(spec.path[-1], []).append(spec.path)
+    shallowest = {
+        leaf: min(paths, key=len)
+        for leaf, paths in depths.items()
+        if [len(p) for p in paths].count(min(len(p) for p in paths)) == 1
+    }
 
     def container(spec: FieldSpec) -> Any:
         parent = spec.path[:-1]
@@ -422,9 +429,10 @@ def add_flags(
                 **common,
             )
         names = [spec.flag + "-file"]
-        # A short alias for a nested list's file (--items-file), when no other field
-        # has that last name.
-        if len(spec.path) > 1 and leaves.count(spec.path[-1]) == 1:
+        # A short alias for a nested list's file (--items-file), when no other field as
+        # shallow has that last name (population.exclude keeps --exclude-file beside
+        # population.file.exclude).
+        if len(spec.path) > 1 and shallowest.get(spec.path[-1]) == spec.path:
             names.append(f"--{spec.path[-1].replace('_', '-')}-file")
         what = {RAW_JSON: "a JSON file", RECORDS: "a CSV file with a header row"}.get(
             spec.kind, "a UTF-8 file, one entry per line")

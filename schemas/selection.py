@@ -25,6 +25,9 @@ from marshmallow import (
 
 from schemas.common import ResultSchema, StrictSchema
 from schemas.fields import MAX_EXACT_INTEGER, StrictInteger, StrictString, json_kind
+from schemas.populations import PopulationFileSchema
+from schemas.test_sheet_fields import AttributeNames
+from service.sampling.populations.reading import PopulationFile
 from service.sampling.selection import (
     ALGORITHM_ID,
     MAX_IDENTIFIER_LENGTH,
@@ -41,7 +44,7 @@ from service.sampling.wording import CAUTION
 SHOWN = 5
 """How many bad entries of a list are named, each by its index, before the rest are counted."""
 
-FORMS = ("size", "ranges", "items")
+FORMS = ("size", "ranges", "items", "file")
 
 
 # --------------------------------------------------------------------------- list fields
@@ -245,13 +248,25 @@ class SelectionPopulationSchema(StrictSchema):
             "example": ["PO-10001", "PO-10002", "PO-10003"],
         },
     )
+    file = fields.Nested(
+        PopulationFileSchema,
+        metadata={
+            "description": "The population file sent as the file part of a "
+            "multipart/form-data request (this JSON being its request part): how to read "
+            "it and which records belong to the population. With id_column, the population "
+            "is the identifiers of the records kept, in the canonical form of items (so the "
+            "same identifiers as items, or the file in another row order or format, give "
+            "the same selection and fingerprints); with row_numbers, the record numbers "
+            "kept, as ranges. The answer adds the selected records with all their columns.",
+        },
+    )
 
     @validates_schema
     def _one_form(self, data: dict[str, Any], **kwargs: Any) -> None:
         given = [form for form in FORMS if form in data]
         if len(given) != 1:
             got = "none of them" if not given else " and ".join(given)
-            raise ValidationError(f"give exactly one of size, ranges or items; got {got}")
+            raise ValidationError(f"give exactly one of size, ranges, items or file; got {got}")
         if "excluded" in data and given != ["ranges"]:
             raise ValidationError(
                 f"exclude lists numbers left out of ranges; it cannot be used with {given[0]}",
@@ -259,7 +274,10 @@ class SelectionPopulationSchema(StrictSchema):
             )
 
     @post_load
-    def _to_core(self, data: dict[str, Any], **kwargs: Any) -> Population:
+    def _to_core(self, data: dict[str, Any], **kwargs: Any) -> Population | PopulationFile:
+        if "file" in data:
+            file: PopulationFile = data["file"]
+            return file
         if "size" in data:
             return NumberedPopulation(data["size"])
         if "ranges" in data:
@@ -314,6 +332,15 @@ class SelectionRequest(StrictSchema):
             "one item per interval of population size / sample size from a random start.",
         },
     )
+    attributes = AttributeNames(
+        metadata={
+            "description": "The attributes (control conditions) each selected item is tested "
+            "for. With Accept: application/vnd.openxmlformats-officedocument.spreadsheetml"
+            ".sheet, the answer is then a test sheet with a result and a notes column per "
+            "attribute; POST the completed sheet to /v1/evaluation.",
+            "example": ["approved before release", "three-way match"],
+        },
+    )
 
 
 # --------------------------------------------------------------------------- response
@@ -324,16 +351,24 @@ class SelectionResult:
     """A selection with the facts of the request the response repeats."""
 
     selection: Selection
-    population: Population
+    population: Population | PopulationFile
     seed_generated: bool
+    attributes: tuple[str, ...] | None = None
 
 
 def _count(number: int, noun: str, plural: str | None = None) -> str:
     return f"{number:,} {noun if number == 1 else plural or noun + 's'}"
 
 
-def population_phrase(population: Population, size: int) -> str:
+def population_phrase(population: Population | PopulationFile, size: int) -> str:
     """The population in words: "4,197 document numbers (1 range less 3 excluded numbers)"."""
+    if isinstance(population, PopulationFile):
+        if population.id_column is None:
+            return f"{_count(size, 'record')} of the file (identified by record number)"
+        return (
+            f"{_count(size, 'record')} of the file (identified by column "
+            f"{population.id_column!r}, in Unicode code point order)"
+        )
     if isinstance(population, NumberedPopulation):
         return f"{_count(size, 'numbered item')} (1 to {size:,})"
     if isinstance(population, RangePopulation):
@@ -396,7 +431,9 @@ def selection_warnings(result: SelectionResult) -> list[str]:
             "cannot be extended with the same seed: another sample size changes the interval "
             "and every selection."
         )
-        if isinstance(result.population, ItemPopulation):
+        if isinstance(result.population, ItemPopulation) or (
+            isinstance(result.population, PopulationFile) and result.population.id_column
+        ):
             warnings.append(
                 "The interval runs over the identifiers in Unicode code point order, not in "
                 "the order in which they were listed."
@@ -409,10 +446,41 @@ def selection_warnings(result: SelectionResult) -> list[str]:
 _ITEM = {"oneOf": [{"type": "integer"}, {"type": "string"}]}
 
 
+def _file_part(result: SelectionResult, name: str) -> Any:
+    value = getattr(result.selection, name, None)
+    if value is None or not isinstance(result.population, PopulationFile):
+        return None
+    return list(value)
+
+
+def _pull_list(result: SelectionResult) -> list[dict[str, Any]] | None:
+    """The selected items sorted by canonical position, with draw number and location."""
+    where = getattr(result.selection, "where", None)
+    if where is None or not isinstance(result.population, PopulationFile):
+        return None
+    chosen = result.selection
+    drawn = sorted(
+        zip(chosen.positions, chosen.items, where, range(1, len(where) + 1), strict=True)
+    )
+    return [
+        {"item": item, "draw": draw, "position": position, "where": at}
+        for position, item, at, draw in drawn
+    ]
+
+
 class SelectionSchema(ResultSchema):
     """A reproducible selection of sample items."""
 
-    absent_when_none = ("sampling_interval", "sampling_interval_exact", "start", "start_exact")
+    absent_when_none = (
+        "sampling_interval",
+        "sampling_interval_exact",
+        "start",
+        "start_exact",
+        "attributes",
+        "columns",
+        "records",
+        "pull_list",
+    )
 
     items = fields.Function(
         lambda result: list(result.selection.items),
@@ -492,6 +560,37 @@ class SelectionSchema(ResultSchema):
         metadata={
             "description": "Systematic only: the start exactly, as r/n.",
             "example": "976/60",
+        },
+    )
+    attributes = fields.List(
+        fields.String(),
+        metadata={"description": "The attributes to be tested, as the request named them."},
+    )
+    columns = fields.Function(
+        lambda result: _file_part(result, "columns"),
+        metadata={
+            "type": "array",
+            "items": {"type": "string"},
+            "description": "File populations only: the file's column names, in its order.",
+        },
+    )
+    records = fields.Function(
+        lambda result: _file_part(result, "records"),
+        metadata={
+            "type": "array",
+            "items": {"type": "object", "additionalProperties": {"type": "string"}},
+            "description": "File populations only: the selected records in draw order, each "
+            "with every column's text as written in the file (blank cells as \"\").",
+        },
+    )
+    pull_list = fields.Function(
+        _pull_list,
+        metadata={
+            "type": "array",
+            "items": {"type": "object"},
+            "description": "File populations only: the selected records sorted by "
+            "identifier (canonical position), each with its draw number and where it is in "
+            "the file, to pull the documents in file order.",
         },
     )
     summary = fields.Function(

@@ -16,6 +16,7 @@ from schemas.common import HealthSchema, ProblemSchema, ReadySchema
 from schemas.fields import StrictFloat, StrictInteger, StrictString
 from service.http import all_operations
 from service.http.markdown import MARKDOWN
+from service.http.operations import Operation
 from service.version import VERSION
 
 OPENAPI_VERSION = "3.1.0"
@@ -69,6 +70,91 @@ MARKDOWN_DESCRIPTION = (
 )
 
 
+UPLOAD_DESCRIPTION = (
+    "A population file and its request in one body: the part file holds the file, streamed "
+    "to a temporary file that is removed once the answer is made (at most "
+    "SAMPLING_MAX_FILE_BYTES, 2 GiB by default); the part request holds the JSON request, "
+    "the same document the application/json body would be."
+)
+_UPLOAD_STATUSES = {
+    "400": "Malformed body: not UTF-8, not strict JSON, duplicate keys, an unreadable "
+    "multipart body, or a request part that is not strict JSON.",
+    "413": "Body larger than the configured limit, or an uploaded file larger than "
+    "SAMPLING_MAX_FILE_BYTES.",
+    "415": "Body sent neither as application/json nor as multipart/form-data.",
+    "507": "The service has no room to store the uploaded file for this request.",
+}
+
+
+def _upload_content(
+    operation: Operation,
+    file_description: str = "The population file.",
+    description: str = UPLOAD_DESCRIPTION,
+) -> dict[str, Any]:
+    """The ``multipart/form-data`` request body of an operation that accepts files."""
+    return {
+        "schema": {
+            "type": "object",
+            "description": description,
+            "required": ["file", "request"],
+            "properties": {
+                "file": {
+                    "type": "string",
+                    "format": "binary",
+                    "description": file_description,
+                },
+                "request": {"$ref": f"#/components/schemas/{_schema_name(operation.request)}"},
+            },
+        },
+        "encoding": {"request": {"contentType": "application/json"}},
+    }
+
+
+def _add_file_form(
+    spec: APISpec,
+    operation: Operation,
+    form: Operation,
+    content: dict[str, Any],
+    body: dict[str, Any],
+    statuses: dict[str, str],
+) -> str:
+    """Declare an operation's multipart form beside its JSON form, at the same path: the
+    multipart request body, the JSON answer as one of the two documents, the form's own
+    media types; returns the combined description."""
+    for schema in (operation.response, form.request, form.response):
+        name = _schema_name(schema)
+        if name not in spec.components.schemas:
+            spec.components.schema(name, schema=schema)
+    statuses.update(_UPLOAD_STATUSES)
+    body["multipart/form-data"] = _upload_content(
+        form,
+        f"The file to {form.summary.lower()}.",
+        "A file and its request in one body: the part file holds the file, streamed to a "
+        "temporary file that is removed once the answer is made (at most "
+        "SAMPLING_MAX_FILE_BYTES, 2 GiB by default); the part request holds the JSON request "
+        "of this form, given by the schema named here.",
+    )
+    either = f"{_schema_name(operation.response)}Answer"
+    spec.components.schema(
+        either,
+        component={
+            "description": f"{_schema_name(operation.response)} for a JSON request, "
+            f"{_schema_name(form.response)} for a multipart one.",
+            "oneOf": [
+                {"$ref": f"#/components/schemas/{_schema_name(operation.response)}"},
+                {"$ref": f"#/components/schemas/{_schema_name(form.response)}"},
+            ],
+        },
+    )
+    content["application/json"] = {"schema": {"$ref": f"#/components/schemas/{either}"}}
+    for media_type in form.media_types[1:]:
+        content.setdefault(media_type, {"schema": {"type": "string"}})
+    return (
+        f"{operation.description}\n\nAs multipart/form-data ({form.summary.lower()}): "
+        f"{form.description}"
+    )
+
+
 def _problem_response(description: str, status: str = "") -> dict[str, Any]:
     response: dict[str, Any] = {
         "description": description,
@@ -112,21 +198,29 @@ def build_spec() -> APISpec:
         if MARKDOWN in content and MARKDOWN not in operation.renderers:
             content[MARKDOWN]["schema"]["description"] = MARKDOWN_DESCRIPTION
         responses: dict[str, Any] = {"200": {"description": operation.summary, "content": content}}
-        responses.update(
-            {code: _problem_response(text, code) for code, text in _PROBLEM_STATUSES.items()}
-        )
+        statuses = dict(_PROBLEM_STATUSES)
+        body: dict[str, Any] = {"application/json": {"schema": operation.request}}
+        if operation.accepts_file:
+            statuses.update(_UPLOAD_STATUSES)
+            body["multipart/form-data"] = _upload_content(operation)
+        description = operation.description
+        if operation.file_form is not None:
+            description = _add_file_form(
+                spec, operation, operation.file_form, content, body, statuses
+            )
+        responses.update({code: _problem_response(text, code) for code, text in statuses.items()})
         spec.path(
             path=operation.path,
             operations={
                 "post": {
                     "operationId": operation.name,
                     "summary": operation.summary,
-                    "description": operation.description,
+                    "description": description,
                     "tags": [operation.tag],
                     "security": _SECURITY,
                     "requestBody": {
                         "required": True,
-                        "content": {"application/json": {"schema": operation.request}},
+                        "content": body,
                     },
                     "responses": responses,
                 }

@@ -9,6 +9,8 @@ SAMPLING_MAX_ITEMS            1000000    largest explicit item list a selection 
 SAMPLING_MAX_LIST_BODY_BYTES  67108864   largest body of an endpoint that takes item lists
 SAMPLING_MAX_BATCH_OPERATIONS 1000       most operations one batch may hold
 SAMPLING_MAX_BATCH_WORK       1000000    most work units one batch may hold (see below)
+SAMPLING_MAX_FILE_BYTES       2147483648 largest uploaded population file (413 beyond)
+SAMPLING_MAX_FILE_LINE_BYTES  1048576    longest line of an uploaded CSV file
 SAMPLING_API_KEYS             (unset)    accepted API keys, as digests (see below)
 SAMPLING_API_KEYS_FILE        (unset)    a file of further digests, one per line
 SAMPLING_CORS_ORIGINS         (unset)    origins whose browser pages may read answers
@@ -18,6 +20,11 @@ A batch's work units are, summed over its operations, the elements of every JSON
 in the request (listed items, ranges, exclusions, methods) plus its ``sample_size`` when
 that is a whole number: so a batch can list, or draw, no more in total than one
 selection may.
+
+**Uploaded files.** A ``multipart/form-data`` request's file part is streamed to a
+temporary file, never held whole in memory, and the file is removed once the answer is
+made, whatever happens (:mod:`service.http.uploads`). Its ``request`` part (the JSON
+request) is limited like any other body, by ``SAMPLING_MAX_BODY_BYTES``.
 
 **API keys.** Keys are never configured in clear: each accepted key is given by its
 digest, ``sha256:`` and the 64 hex digits of SHA-256 of the key's UTF-8 bytes, separated
@@ -129,6 +136,8 @@ class Settings:
     max_list_body_bytes: int = field(default=67_108_864, metadata={"parse": whole_number})
     max_batch_operations: int = field(default=1_000, metadata={"parse": whole_number})
     max_batch_work: int = field(default=1_000_000, metadata={"parse": whole_number})
+    max_file_bytes: int = field(default=2_147_483_648, metadata={"parse": whole_number})
+    max_file_line_bytes: int = field(default=1_048_576, metadata={"parse": whole_number})
     api_keys: frozenset[bytes] = field(default=frozenset(), metadata={"parse": _key_list})
     api_keys_file: frozenset[bytes] = field(default=frozenset(), metadata={"parse": _key_file})
     cors_origins: tuple[str, ...] = field(default=(), metadata={"parse": _origins})

@@ -7,10 +7,18 @@ is a new :class:`~service.http.operations.Operation` in one of them.
 
 from __future__ import annotations
 
-from service.http import attributes, batch, estimation, monetary, plans, selection
+from service.http import (
+    attributes,
+    batch,
+    estimation,
+    monetary,
+    plans,
+    populations,
+    selection,
+)
 from service.http.operations import Operation
 
-RESOURCES = [attributes, estimation, plans, selection, monetary, batch]
+RESOURCES = [attributes, estimation, plans, selection, populations, monetary, batch]
 
 
 def all_operations() -> list[Operation]:

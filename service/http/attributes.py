@@ -1,4 +1,8 @@
-"""Test-of-controls endpoints: ``POST /v1/sample-size`` and ``POST /v1/evaluation``."""
+"""Test-of-controls endpoints: ``POST /v1/sample-size`` and ``POST /v1/evaluation``.
+
+``/v1/evaluation`` takes the counts as JSON or, as a multipart upload, a completed test
+sheet with the request part of :class:`~schemas.test_sheets.TestSheetEvaluationRequest`.
+"""
 
 from __future__ import annotations
 
@@ -11,10 +15,20 @@ from schemas.attributes import (
     SampleSizePlanSchema,
     SampleSizeRequest,
 )
+from schemas.test_sheets import (
+    TestSheetEvaluation,
+    TestSheetEvaluationRequest,
+    TestSheetEvaluationSchema,
+)
 from service.http.markdown import TicketLayout
 from service.http.operations import Operation, blueprint
+from service.render.test_sheet_evaluation import render_evaluated_sheet
+from service.render.xlsx import XLSX
 from service.sampling.attributes import Evaluation, SampleSizePlan, evaluate_sample, size_sample
 from service.sampling.distributions import MODELS
+from service.sampling.errors import InvalidInput
+from service.sampling.test_sheets.reading import read_test_sheet
+from service.sampling.test_sheets.results import evaluate_tally, tally_test_sheet
 from service.settings import Settings
 
 
@@ -24,6 +38,30 @@ def _size(inputs: dict[str, Any], settings: Settings) -> SampleSizePlan:
 
 def _evaluate(inputs: dict[str, Any], settings: Settings) -> Evaluation:
     return evaluate_sample(**inputs)
+
+
+def _evaluate_sheet(inputs: dict[str, Any], settings: Settings) -> TestSheetEvaluation:
+    upload = inputs["upload"]
+    if upload is None:  # the JSON form is its own operation; kept for a direct call
+        raise InvalidInput("file", "send the completed test sheet as the file part")
+    sheet = read_test_sheet(upload)
+    tally = tally_test_sheet(sheet, inputs.get("not_tested"))
+    population = inputs.get("population") or {}
+    size = population.get("size")
+    if size is not None and size != tally.recorded.population_size:
+        raise InvalidInput(
+            "population.size",
+            f"{size:,} is not the population size recorded in the sheet "
+            f"({tally.recorded.population_size:,})",
+        )
+    evaluations = evaluate_tally(
+        tally,
+        inputs["confidence"],
+        inputs.get("tolerable_rates"),
+        inputs.get("method"),
+        population_label=population.get("label"),
+    )
+    return TestSheetEvaluation(tally, evaluations, inputs["confidence"], sheet)
 
 
 def model_method(document: Mapping[str, Any]) -> str:
@@ -68,6 +106,31 @@ OPERATIONS = [
         response=EvaluationSchema,
         run=_evaluate,
         tag="tests of controls",
+        file_form=Operation(
+            name="evaluation-of-test-sheet",
+            path="/v1/evaluation",
+            summary="Evaluate a completed test sheet",
+            description=(
+                "A multipart/form-data body with the completed test sheet (XLSX) as the file "
+                "part and TestSheetEvaluationRequest as the request part. The sheet's rows "
+                "must be exactly the selection's (a missing, added or changed row is refused "
+                "with 422, listing them); each result must be passed, deviation or not "
+                "tested. One evaluation per attribute, as for the JSON form, over the "
+                "population size recorded in the sheet. With Accept: application/vnd."
+                "openxmlformats-officedocument.spreadsheetml.sheet, the same workbook comes "
+                "back with an Evaluation sheet added."
+            ),
+            request=TestSheetEvaluationRequest,
+            response=TestSheetEvaluationSchema,
+            run=_evaluate_sheet,
+            tag="tests of controls",
+            accepts_file=True,
+            renderers={XLSX: render_evaluated_sheet},
+            ticket=TicketLayout(
+                answer=("selection_fingerprint", "population_size", "evaluations"),
+                method=model_method,
+            ),
+        ),
         ticket=TicketLayout(
             answer=(
                 "sample_deviation_rate",

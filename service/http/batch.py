@@ -30,10 +30,11 @@ logger = logging.getLogger(__name__)
 
 
 def single_operations() -> dict[str, Operation]:
-    """Every single endpoint's operation by name: all operations but the batch itself."""
+    """Every single endpoint's operation by name: all operations but the batch itself and
+    those that need an uploaded file."""
     from service.http import all_operations
 
-    return {op.name: op for op in all_operations() if op.name != NAME}
+    return {op.name: op for op in all_operations() if op.name != NAME and not op.file_required}
 
 
 def work_units(request: Any) -> int:

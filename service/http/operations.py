@@ -4,8 +4,11 @@ An :class:`Operation` names its path, its request and response schemas and
 the one core call it makes. :func:`blueprint` turns a list of them into a
 Flask blueprint whose views all follow the same steps: check the media type,
 read strict JSON, load the request schema, call the core once, dump the
-response schema. The OpenAPI document (:mod:`service.openapi`) is generated
-from the same declarations, so the contract and the behaviour cannot drift.
+response schema. An operation that ``accepts_file`` also takes a ``multipart/form-data``
+upload (:mod:`service.http.uploads`): its ``request`` part is loaded as the body would be,
+and the core call gets the file's temporary path as ``inputs["upload"]``. The OpenAPI
+document (:mod:`service.openapi`) is generated from the same declarations, so the contract
+and the behaviour cannot drift.
 """
 
 from __future__ import annotations
@@ -13,6 +16,7 @@ from __future__ import annotations
 from collections.abc import Callable, Mapping
 from dataclasses import dataclass, field
 from functools import cached_property
+from pathlib import Path
 from typing import Any
 
 from flask import Blueprint, Response, current_app, request
@@ -20,7 +24,7 @@ from marshmallow import Schema, ValidationError
 from werkzeug.exceptions import RequestEntityTooLarge
 
 from service import jsonio
-from service.http import markdown
+from service.http import markdown, uploads
 from service.http.markdown import MARKDOWN, TicketLayout
 from service.problems import (
     MALFORMED_BODY,
@@ -34,8 +38,9 @@ from service.settings import Settings
 
 JSON = "application/json"
 
-# Renders the response document (and the core result it came from) as text.
-Renderer = Callable[[dict[str, Any], Any], str]
+# Renders the response document (and the core result it came from) as text, or as bytes
+# for binary formats such as XLSX.
+Renderer = Callable[[dict[str, Any], Any], str | bytes]
 
 
 @dataclass(frozen=True)
@@ -58,6 +63,17 @@ class Operation:
     # Cheap checks of the raw payload against the settings, before the schema loads it
     # (so that an oversized list is refused without validating every element).
     precheck: Callable[[Any, Settings], None] | None = None
+    # Also takes a multipart/form-data upload: a `file` part and the JSON `request` part.
+    # The core call then finds the file's temporary path in inputs["upload"] (None when
+    # the request came as plain JSON).
+    accepts_file: bool = False
+    # The endpoint means nothing without a file (a profile): the batch leaves it out.
+    file_required: bool = False
+    # Another form of the same endpoint for a multipart/form-data upload, when the file
+    # changes what the request says and what the answer holds (a completed test sheet sent
+    # to the evaluation): its own request and response schemas, core call and renderers,
+    # with accepts_file set. Plain JSON requests keep this operation's own form.
+    file_form: Operation | None = None
 
     @cached_property
     def request_schema(self) -> Schema:
@@ -75,7 +91,9 @@ class Operation:
         extra = [] if MARKDOWN in self.renderers else [MARKDOWN]
         return [JSON, *self.renderers, *extra]
 
-    def render(self, media_type: str, payload: Any, document: dict[str, Any], result: Any) -> str:
+    def render(
+        self, media_type: str, payload: Any, document: dict[str, Any], result: Any
+    ) -> str | bytes:
         """The answer as ``media_type`` (one of :attr:`media_types`)."""
         if media_type == JSON:
             return jsonio.dumps(document)
@@ -91,14 +109,15 @@ def _is_json(mimetype: str) -> bool:
     )
 
 
-def read_json_body() -> Any:
+def read_json_body(accepts_file: bool = False) -> Any:
     """The request body as strict JSON, or a Problem (415, 400, 413)."""
     if not _is_json(request.mimetype):
         got = request.mimetype or "no Content-Type"
+        also = f" or {uploads.MULTIPART} (a file and a request part)" if accepts_file else ""
         raise Problem(
             415,
             "Unsupported Media Type",
-            f"send the body as application/json (got {got})",
+            f"send the body as application/json{also} (got {got})",
             UNSUPPORTED_MEDIA_TYPE,
         )
     try:
@@ -140,8 +159,19 @@ def negotiate(operation: Operation) -> str:
     return best
 
 
-def run(operation: Operation, payload: Any, settings: Settings) -> tuple[dict[str, Any], Any]:
-    """Validate ``payload`` and run the operation: the response document and the core result."""
+def run(
+    operation: Operation,
+    payload: Any,
+    settings: Settings,
+    upload: Path | None = None,
+    upload_name: str = "",
+) -> tuple[dict[str, Any], Any]:
+    """Validate ``payload`` and run the operation: the response document and the core result.
+
+    ``upload`` is the uploaded file's temporary path and ``upload_name`` the name the
+    client gave it, passed on as ``inputs["upload"]`` and ``inputs["upload_name"]`` to an
+    operation that accepts files.
+    """
     if operation.precheck is not None:
         try:
             operation.precheck(payload, settings)
@@ -151,6 +181,8 @@ def run(operation: Operation, payload: Any, settings: Settings) -> tuple[dict[st
         inputs = operation.request_schema.load(payload)
     except ValidationError as exc:
         raise from_validation_error(exc) from None
+    if operation.accepts_file:
+        inputs = {**inputs, "upload": upload, "upload_name": upload_name}
     try:
         result = operation.run(inputs, settings)
     except SamplingError as exc:
@@ -164,21 +196,32 @@ def execute(operation: Operation, payload: Any, settings: Settings) -> dict[str,
     return run(operation, payload, settings)[0]
 
 
-def _view(operation: Operation) -> Callable[[], Response]:
+def _view(declared: Operation) -> Callable[[], Response]:
     def view() -> Response:
         settings: Settings = current_app.config["SETTINGS"]
+        operation = declared
+        if declared.file_form is not None and uploads.is_multipart():
+            operation = declared.file_form
         media_type = negotiate(operation)
-        if operation.takes_item_lists:
-            request.max_content_length = settings.max_list_body_bytes
-        payload = read_json_body()
-        document, result = run(operation, payload, settings)
-        body = operation.render(media_type, payload, document, result)
+        if operation.accepts_file and uploads.is_multipart():
+            # Rendered inside the block: the temporary file lives until the answer is made.
+            with uploads.received(settings) as upload:
+                document, result = run(
+                    operation, upload.payload, settings, upload.path, upload.filename
+                )
+                body = operation.render(media_type, upload.payload, document, result)
+        else:
+            if operation.takes_item_lists:
+                request.max_content_length = settings.max_list_body_bytes
+            payload = read_json_body(operation.accepts_file or operation.file_form is not None)
+            document, result = run(operation, payload, settings)
+            body = operation.render(media_type, payload, document, result)
         response = current_app.response_class(body, status=200, mimetype=media_type)
         response.vary.add("Accept")
         return response
 
-    view.__name__ = operation.name.replace("-", "_")
-    view.__doc__ = operation.summary
+    view.__name__ = declared.name.replace("-", "_")
+    view.__doc__ = declared.summary
     return view
 
 

@@ -1,65 +1,89 @@
-"""Selection endpoint: ``POST /v1/selection``, as JSON or, on request, as CSV."""
+"""Selection endpoint: ``POST /v1/selection``, as JSON or, on request, as CSV or XLSX."""
 
 from __future__ import annotations
 
-import csv
-import io
 from collections.abc import Mapping
 from typing import Any
 
 from schemas.selection import SelectionRequest, SelectionResult, SelectionSchema
 from service.http.markdown import TicketLayout
 from service.http.operations import Operation, blueprint
-from service.sampling.selection import select
+from service.http.populations import read_limits, uploaded
+from service.problems import invalid_input
+from service.render import cells
+from service.render.records_csv import render_records_csv
+from service.render.records_xlsx import render_records_xlsx
+from service.render.selection_report import selection_report
+from service.render.test_sheet import render_test_sheet
+from service.render.xlsx import XLSX
+from service.sampling.errors import InvalidInput
+from service.sampling.populations.canonical import select_from_file
+from service.sampling.populations.reading import PopulationFile, open_population
+from service.sampling.selection import Selection, select
+from service.sampling.test_sheets.layout import MAX_SHEET_ROWS, RECORD_KEYS
 from service.settings import Settings
 
 CSV = "text/csv"
 
-# A spreadsheet reads a cell that starts with one of these as a formula (tab and carriage
-# return are stripped first and the rest read again), so an identifier such as
-# "=HYPERLINK(...)" would run when the file is opened. A leading single quote makes the cell
-# text. Only the CSV is changed; the JSON carries the identifiers exactly.
-FORMULA_STARTS = ("=", "+", "-", "@", "\t", "\r")
+# Kept for the command-line client, which guards its own CSV cells the same way.
+FORMULA_STARTS = cells.FORMULA_STARTS
 
 
 def _select(inputs: dict[str, Any], settings: Settings) -> SelectionResult:
     seed = inputs.get("seed")
-    selection = select(
+    population = inputs["population"]
+    selection: Selection
+    if isinstance(population, PopulationFile):
+        with open_population(uploaded(inputs), population, read_limits(settings)) as table:
+            selection = select_from_file(
+                table, inputs["sample_size"], seed, inputs["method"], max_items=settings.max_items
+            )
+    else:
+        if inputs.get("upload") is not None:
+            raise InvalidInput(
+                "population", "a file was uploaded: describe it as population.file"
+            )
+        selection = select(
+            population,
+            inputs["sample_size"],
+            seed,
+            inputs["method"],
+            max_items=settings.max_items,
+        )
+    attributes = inputs.get("attributes")
+    return SelectionResult(
+        selection,
         inputs["population"],
-        inputs["sample_size"],
-        seed,
-        inputs["method"],
-        max_items=settings.max_items,
+        seed_generated=seed is None,
+        attributes=tuple(attributes) if attributes is not None else None,
     )
-    return SelectionResult(selection, inputs["population"], seed_generated=seed is None)
 
 
 def csv_cell(item: int | str) -> int | str:
     """The item as written to the CSV, with the formula guard applied to text."""
-    if isinstance(item, str) and item.startswith(FORMULA_STARTS):
-        return "'" + item
-    return item
+    return cells.csv_cell(item)
 
 
 def render_csv(document: dict[str, Any], result: Any) -> str:
-    """The selection as CSV: a header, then draw, item and position for each selected item.
+    """The selection as CSV: the header block, the records in draw order, the pull list."""
+    return render_records_csv(selection_report(document, result, document.get("attributes", ())))
 
-    RFC 4180: fields quoted when they hold a comma, a quote or a line break; quotes doubled;
-    CRLF after every record. The text starts with a byte order mark (U+FEFF): without it the
-    most common spreadsheet program opens a UTF-8 file in the local legacy code page and
-    garbles every non-ASCII identifier, while the other common ones skip the mark.
-    """
-    out = io.StringIO()
-    out.write("\ufeff")
-    writer = csv.writer(out, lineterminator="\r\n")
-    writer.writerow(("draw", "item", "position"))
-    writer.writerows(
-        (draw, csv_cell(item), position)
-        for draw, (item, position) in enumerate(
-            zip(document["items"], document["positions"], strict=True), start=1
+
+def render_xlsx(document: dict[str, Any], result: Any) -> bytes:
+    """The selection as XLSX: a test sheet when attributes are named, else the records."""
+    # The record sheet of a test sheet holds its keys, a marker row and one row per item.
+    if document["sample_size"] > MAX_SHEET_ROWS - len(RECORD_KEYS) - 2:
+        raise invalid_input(
+            {
+                "sample_size": [
+                    f"{document['sample_size']:,} rows do not fit a worksheet of "
+                    f"{MAX_SHEET_ROWS:,} rows; ask for CSV or JSON"
+                ]
+            }
         )
-    )
-    return out.getvalue()
+    attributes = document.get("attributes", ())
+    report = selection_report(document, result, attributes)
+    return render_test_sheet(report) if attributes else render_records_xlsx(report)
 
 
 _SELECTION_METHODS = {
@@ -82,24 +106,36 @@ OPERATIONS = [
         name="selection",
         path="/v1/selection",
         takes_item_lists=True,
+        accepts_file=True,
         summary="Select sample items reproducibly",
         description=(
             "Selects sample_size items from a population given as a count of numbered items, "
-            "as document-number ranges less excluded numbers, or as a list of identifiers, by "
+            "as document-number ranges less excluded numbers, as a list of identifiers, or "
+            "as a file of records (CSV, XLSX or Parquet, sent as the file part of a "
+            "multipart/form-data request and described by population.file; the answer then "
+            "adds the selected records with all their columns and a pull list), by "
             "simple random sampling without replacement or systematically. The items depend "
             "only on the population, sample size, seed, method and algorithm version, all "
             "reported, so anyone can re-perform the selection; with the random method, a "
             "larger sample with the same seed starts with the same items. With "
             "Accept: text/csv the same selection comes as CSV (UTF-8 with a byte order mark, "
-            "CRLF line ends, columns draw, item, position); in the CSV only, an identifier "
+            "CRLF line ends): a header block of the inputs, seed, method, algorithm, both "
+            "fingerprints, summary, warnings and caution; then the records in draw order "
+            "(draw, item, position and a file's own columns); then the pull list sorted by "
+            "identifier. With Accept: application/vnd.openxmlformats-officedocument."
+            "spreadsheetml.sheet it comes as an XLSX workbook with the same content on three "
+            "sheets or, when the request names attributes, as a test sheet: the records with "
+            "a result column (passed, deviation or not tested) and a notes column per "
+            "attribute, to be completed and sent back to /v1/evaluation. In the CSV, a text "
             "that starts with =, +, -, @, a tab or a carriage return is preceded by a single "
-            "quote so that a spreadsheet shows it as text instead of running it as a formula."
+            "quote so that a spreadsheet shows it as text instead of running it as a formula; "
+            "in the XLSX every text is a string cell, never a formula."
         ),
         request=SelectionRequest,
         response=SelectionSchema,
         run=_select,
         tag="selection",
-        renderers={CSV: render_csv},
+        renderers={CSV: render_csv, XLSX: render_xlsx},
         ticket=TicketLayout(
             answer=(
                 "sample_size",

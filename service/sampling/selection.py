@@ -24,7 +24,7 @@ import hmac
 import secrets
 import struct
 from bisect import bisect_right
-from collections.abc import Callable, Iterable, Iterator, Mapping
+from collections.abc import Callable, Iterable, Iterator, Mapping, Sequence
 from dataclasses import dataclass
 from fractions import Fraction
 from itertools import count, pairwise
@@ -53,7 +53,9 @@ __all__ = [
     "Selection",
     "check_seed",
     "generate_seed",
+    "items_fingerprint",
     "select",
+    "select_canonical",
     "uniform_below",
     "word_stream",
 ]
@@ -334,15 +336,108 @@ def select(
     >>> every.interval_exact, every.start_exact, every.items[:3]
     ('4200/60', '2749/60', (46, 116, 186))
     """
+    draw = _method(method)
+    seed = generate_seed() if seed is None else seed
+    key = check_seed(seed)
+    _check_sample_size(sample_size, max_items)
+    return _draw(_prepare(population, max_items), sample_size, seed, key, method, draw)
+
+
+def select_canonical(
+    size: int,
+    fingerprint: bytes,
+    items_at: Callable[[list[int]], tuple[int, ...] | tuple[str, ...]],
+    sample_size: int,
+    seed: str | None = None,
+    method: str = "random",
+    *,
+    max_items: int = DEFAULT_MAX_ITEMS,
+) -> Selection:
+    """Select from a population already put in canonical order elsewhere.
+
+    The draws are those of :func:`select` (Notes, steps 2 to 5, and 7) over a population
+    known only by its size, its fingerprint (step 6) and a map from 0-based canonical
+    positions to items. It serves populations too large to hold as an
+    :class:`ItemPopulation`, such as population files sorted by a database engine: given
+    the fingerprint :func:`items_fingerprint` computes from the same identifiers, the
+    result is the one :func:`select` gives for ``ItemPopulation`` of them.
+
+    Parameters
+    ----------
+    size : int
+        Number of items N in the population, at least 1.
+    fingerprint : bytes
+        The population fingerprint, 32 raw bytes.
+    items_at : callable
+        Given a list of 0-based canonical positions, the items there, in the same order.
+    sample_size, seed, method, max_items
+        As for :func:`select`; ``max_items`` caps the sample size only.
+
+    Returns
+    -------
+    Selection
+        As from :func:`select`.
+
+    Examples
+    --------
+    >>> ids = ("PO-3", "PO-1", "PO-2")
+    >>> listed = tuple(sorted(s.encode() for s in ids))
+    >>> direct = select(ItemPopulation(ids), 2, seed="harbour-lane")
+    >>> again = select_canonical(3, items_fingerprint(3, [listed]),
+    ...     lambda at: tuple(listed[p].decode() for p in at), 2, seed="harbour-lane")
+    >>> again == direct
+    True
+    """
+    draw = _method(method)
+    seed = generate_seed() if seed is None else seed
+    key = check_seed(seed)
+    _check_sample_size(sample_size, max_items)
+    if not isinstance(size, int) or size < 1 or len(fingerprint) != 32:
+        raise ValueError("size must be a positive integer and fingerprint 32 bytes")
+    return _draw(_Prepared(size, fingerprint, items_at), sample_size, seed, key, method, draw)
+
+
+def items_fingerprint(count: int, batches: Iterable[Sequence[bytes]]) -> bytes:
+    """The fingerprint of an items population (Notes, step 6), 32 raw bytes.
+
+    Parameters
+    ----------
+    count : int
+        Number of identifiers K.
+    batches : iterable of sequences of bytes
+        The UTF-8 encoded identifiers in canonical (byte) order, in consecutive batches, so
+        that a long population can be hashed without holding it whole. The caller
+        guarantees the order, distinctness and that no identifier is empty or holds a zero
+        byte; ``count`` must be the number of identifiers fed.
+
+    Examples
+    --------
+    >>> items_fingerprint(2, [[b"A"], [b"B"]]) == items_fingerprint(2, [[b"A", b"B"]])
+    True
+    """
+    digest = hashlib.sha256(b"items\x00" + count.to_bytes(8, "big"))
+    fed = 0
+    for batch in batches:
+        if batch:
+            digest.update(b"\x00".join(batch) + b"\x00")
+            fed += len(batch)
+    if fed != count:
+        raise ValueError(f"count is {count} but {fed} identifiers were given")
+    return digest.digest()
+
+
+def _method(method: object) -> _Draw:
     draw = _METHODS.get(method) if isinstance(method, str) else None
     if draw is None:
         raise InvalidInput(
             "method", f"method must be one of {', '.join(map(repr, METHODS))}, got {method!r}"
         )
-    seed = generate_seed() if seed is None else seed
-    key = check_seed(seed)
-    _check_sample_size(sample_size, max_items)
-    prepared = _prepare(population, max_items)
+    return draw
+
+
+def _draw(
+    prepared: _Prepared, sample_size: int, seed: str, key: bytes, method: str, draw: _Draw
+) -> Selection:
     if sample_size > prepared.size:
         raise InvalidInput(
             "sample_size",

@@ -139,7 +139,10 @@ def test_selection_csv_is_the_services_csv(runs: Runs, url: str) -> None:
                                                 "exclude": [10007, 10233]},
                                  "sample_size": 60, "seed": "northwind-2026-q3"})
     assert done.stdout == direct.content
-    assert done.stdout.count(b"\r\n") == 61
+    header, records, _pull_list = done.stdout.split(b"\r\n\r\n")
+    assert header.startswith(b"\xef\xbb\xbfselection,")
+    assert records.split(b"\r\n")[:2] == [b"records in draw order", b"draw,item,position"]
+    assert records.count(b"\r\n") == 61  # the heading, the column names and 60 records
 
 
 def test_the_month_end_batch_of_forty_controls(runs: Runs) -> None:

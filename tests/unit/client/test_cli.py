@@ -96,7 +96,8 @@ def test_selection_csv_is_written_byte_for_byte(through_app: requests.Session, a
                                  json={"population": {"size": 500}, "sample_size": 3,
                                        "seed": "nt"})
     assert out.encode("utf-8") == direct.data
-    assert out.startswith("\ufeffdraw,item,position\r\n")
+    assert out.startswith("\ufeffselection,Selection of sample items\r\n")
+    assert "\r\nrecords in draw order\r\ndraw,item,position\r\n" in out
 
 
 def test_markdown(through_app: requests.Session, capsys: pytest.CaptureFixture[bytes]) -> None:
@@ -586,8 +587,11 @@ def test_a_single_selection_as_csv_without_a_seed_says_so(
     status, out, err = run(capsys, "selection", "--population-size", "12", "--sample-size", "2",
                            "--csv")
     assert status == 0
-    assert out.startswith("\ufeffdraw,item,position\r\n")
-    assert "warning: no --seed given" in err
+    assert out.startswith("\ufeffselection,")
+    assert "\r\ndraw,item,position\r\n" in out
+    seed_row = next(line for line in out.splitlines() if line.startswith("seed,"))
+    assert len(seed_row.split(",")[1]) == 32  # the generated seed, in the answer itself
+    assert "warning: no --seed given" in err and "record the seed" in err
     status, _, err = run(capsys, "selection", "--population-size", "12", "--sample-size", "2",
                          "--seed", "hlp-2026-11-bank", "--csv")
     assert status == 0

@@ -26,7 +26,9 @@ GOOD = {
     "monetary-evaluation": {"book_value": "600000.00", "sample_size": 60},
 }
 EVAL = {"sample_size": 60, "deviations": 0}
-SINGLE = {op.name: op for op in all_operations() if op.name != "batch"}
+SINGLE = {
+    op.name: op for op in all_operations() if op.name != "batch" and not op.file_required
+}
 
 
 def _batch(client: FlaskClient, operations: Any) -> Any:

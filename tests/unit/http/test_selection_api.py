@@ -286,6 +286,14 @@ FORMULA_LIKE = ["=SUM(A1:A9)", "+44 20 7946", "-12", "@risk", "\tPO-1", "\rPO-2"
 AWKWARD = ['PO "quoted", with comma', "PO\nwith line break", "ÉCH-0001", "PO-10001"]
 
 
+def _csv_records(text: str) -> list[list[str]]:
+    """The records section of the selection CSV: its column names, then the records."""
+    rows = list(csv.reader(io.StringIO(text, newline="")))
+    start = rows.index(["records in draw order"]) + 1
+    end = rows.index([], start)
+    return rows[start:end]
+
+
 def _csv_body(response: Any) -> str:
     assert response.status_code == 200, response.get_data(as_text=True)
     assert response.headers["Content-Type"] == "text/csv; charset=utf-8"
@@ -302,7 +310,7 @@ def test_csv_lists_the_same_selection(api: FlaskClient) -> None:
     records = text.split("\r\n")
     assert records[-1] == ""  # every record, the last too, ends with CRLF
     assert all("\n" not in record and "\r" not in record for record in records)
-    rows = list(csv.reader(io.StringIO(text, newline="")))
+    rows = _csv_records(text)
     assert rows[0] == ["draw", "item", "position"]
     document = _select(api, FICTIONAL)
     assert rows[1:] == [
@@ -317,7 +325,7 @@ def test_csv_quotes_and_guards_against_formulas(api: FlaskClient) -> None:
     identifiers = FORMULA_LIKE + AWKWARD
     body = {"population": {"items": identifiers}, "sample_size": len(identifiers), "seed": "q"}
     text = _csv_body(api.post(PATH, json=body, headers={"Accept": "text/csv"}))
-    rows = list(csv.reader(io.StringIO(text, newline="")))[1:]
+    rows = _csv_records(text)[1:]
     document = _select(api, body)
     assert [int(row[0]) for row in rows] == list(range(1, len(identifiers) + 1))
     assert [int(row[2]) for row in rows] == document["positions"]
@@ -447,7 +455,7 @@ BAD_INPUTS: list[tuple[str, dict[str, Any], str, list[str]]] = [
         "two population forms",
         {"population": {"size": 4200, "items": ["PO-1"]}},
         "population",
-        ["exactly one of size, ranges or items", "size and items"],
+        ["exactly one of size, ranges, items or file", "size and items"],
     ),
     ("no population form", {"population": {}}, "population", ["exactly one", "none"]),
     ("population missing", {"population": ABSENT}, "population", ["Missing"]),
