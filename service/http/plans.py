@@ -12,7 +12,11 @@ from service.http.attributes import model_method
 from service.http.markdown import TicketLayout
 from service.http.operations import Operation, blueprint
 from service.render.oc_chart import render_operating_characteristic_svg
-from service.sampling.curves import OperatingCharacteristic, operating_characteristic
+from service.sampling.curves import (
+    OperatingCharacteristic,
+    curve_summary,
+    operating_characteristic,
+)
 from service.sampling.wording import CAUTION, percent
 from service.settings import Settings
 
@@ -82,22 +86,7 @@ def _description(curve: OperatingCharacteristic) -> str:
             + f" (a rate of {percent(k / size)}); the curve is a single step from 100% to 0% "
             "at that rate."
         )
-    text = (
-        f"Probability that a sample of {curve.sample_size:,} items shows at most {k:,} "
-        f"deviations, against the true deviation rate ({curve.method} model)."
-    )
-    if curve.tolerable_rate is not None and curve.risk_of_overreliance is not None:
-        text += (
-            f" At the tolerable rate of {percent(curve.tolerable_rate)} it is "
-            f"{percent(curve.risk_of_overreliance)} (risk of overreliance)."
-        )
-    if curve.expected_rate is not None and curve.risk_of_underreliance is not None:
-        text += (
-            f" At the expected rate of {percent(curve.expected_rate)} the sample fails to "
-            f"support reliance with probability {percent(curve.risk_of_underreliance)} "
-            "(risk of underreliance)."
-        )
-    return text
+    return curve_summary(curve).removesuffix(CAUTION).strip()
 
 
 def _svg(document: dict[str, Any], curve: OperatingCharacteristic) -> str:
