@@ -106,7 +106,10 @@ def build_spec() -> APISpec:
     )
 
     for operation in all_operations():
-        content: dict[str, Any] = {"application/json": {"schema": operation.response}}
+        answer: Any = operation.response
+        if operation.variants:
+            answer = _answer_component(spec, operation)
+        content: dict[str, Any] = {"application/json": {"schema": answer}}
         for media_type in operation.media_types[1:]:
             content[media_type] = {"schema": {"type": "string"}}
         if MARKDOWN in content and MARKDOWN not in operation.renderers:
@@ -176,6 +179,21 @@ def _service_get(
         operation["security"] = security
     operation["responses"] = responses
     spec.path(path=path, operations={"get": operation})
+
+
+def _answer_component(spec: APISpec, operation: Any) -> str:
+    """A component naming every answer of an operation that has variants, as ``oneOf``."""
+    refs = []
+    for schema in (operation.response, *operation.variants.values()):
+        name = _schema_name(schema)
+        if name not in spec.components.schemas:
+            spec.components.schema(name, schema=schema)
+        refs.append({"$ref": f"#/components/schemas/{name}"})
+    name = "".join(part.title() for part in operation.name.split("-")) + "Answer"
+    spec.components.schema(
+        name, {"oneOf": refs, "description": f"The answers of {operation.path}."}
+    )
+    return name
 
 
 def _schema_name(schema: Any) -> str:

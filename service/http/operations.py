@@ -58,6 +58,9 @@ class Operation:
     # Cheap checks of the raw payload against the settings, before the schema loads it
     # (so that an oversized list is refused without validating every element).
     precheck: Callable[[Any, Settings], None] | None = None
+    # Other answers the operation gives: a core result of one of these types is dumped with
+    # its schema instead of ``response`` (the spec lists them all as ``oneOf``).
+    variants: Mapping[type, type[Schema]] = field(default_factory=dict)
 
     @cached_property
     def request_schema(self) -> Schema:
@@ -68,6 +71,13 @@ class Operation:
     @cached_property
     def response_schema(self) -> Schema:
         return self.response()
+
+    def schema_for(self, result: Any) -> Schema:
+        """The response schema that dumps ``result``."""
+        for kind, schema in self.variants.items():
+            if isinstance(result, kind):
+                return _instance(schema)
+        return self.response_schema
 
     @property
     def media_types(self) -> list[str]:
@@ -83,6 +93,16 @@ class Operation:
             return self.renderers[media_type](document, result)
         fields = tuple(self.request_schema.fields)
         return markdown.render(self.summary, self.ticket, payload, document, fields)
+
+
+_SCHEMAS: dict[type[Schema], Schema] = {}
+
+
+def _instance(schema: type[Schema]) -> Schema:
+    """One instance per schema class and process, as for ``Operation.response_schema``."""
+    if schema not in _SCHEMAS:
+        _SCHEMAS[schema] = schema()
+    return _SCHEMAS[schema]
 
 
 def _is_json(mimetype: str) -> bool:
@@ -155,7 +175,7 @@ def run(operation: Operation, payload: Any, settings: Settings) -> tuple[dict[st
         result = operation.run(inputs, settings)
     except SamplingError as exc:
         raise from_sampling_error(exc) from None
-    document: dict[str, Any] = operation.response_schema.dump(result)
+    document: dict[str, Any] = operation.schema_for(result).dump(result)
     return document, result
 
 

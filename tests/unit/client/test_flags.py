@@ -35,12 +35,17 @@ def body(operation: str, *argv: str) -> dict[str, Any]:
 def test_sample_size_fields_become_flags_with_their_descriptions() -> None:
     specs = by_name(SampleSizeRequest())
     assert list(specs) == ["population_size", "population_label", "tolerable_rate",
-                           "expected_rate", "confidence", "method"]
+                           "expected_rate", "confidence", "method", "attributes",
+                           "underreliance_risk"]
     assert specs["population_size"].flag == "--population-size"
     assert specs["population_size"].dotted == "population.size"
     assert specs["tolerable_rate"].kind == flags.NUMBER
-    assert specs["tolerable_rate"].required
-    assert specs["tolerable_rate"].description == "Tolerable deviation rate, as a fraction."
+    # Required unless attributes is given: the service says which is missing.
+    assert not specs["tolerable_rate"].required
+    assert specs["tolerable_rate"].description.startswith(
+        "Tolerable deviation rate, as a fraction.")
+    assert specs["attributes"].kind == flags.RAW_JSON
+    assert specs["underreliance_risk"].kind == flags.NUMBER
     assert specs["confidence"].default == 0.95
     assert specs["method"].choices == ("binomial", "hypergeometric", "poisson")
 

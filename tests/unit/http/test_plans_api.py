@@ -1,0 +1,203 @@
+"""Several attributes and two-risk plans over HTTP (Flask test client).
+
+Values are checked against scipy.stats.binom (reference implementation) and against the
+single-attribute answers of the same service.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+from typing import Any
+
+import pytest
+from flask.testing import FlaskClient
+from scipy import stats
+
+SIZE = "/v1/sample-size"
+EVALUATION = "/v1/evaluation"
+CAUTION = "These figures support, and do not replace, professional judgement"
+
+
+def post(
+    client: FlaskClient, path: str, body: dict[str, Any], accept: str = "application/json"
+) -> Any:
+    return client.post(path, json=body, headers={"Accept": accept})
+
+
+def problem_fields(response: Any) -> dict[str, list[str]]:
+    assert response.status_code == 422, response.get_data(as_text=True)
+    assert response.headers["Content-Type"] == "application/problem+json"
+    return dict(json.loads(response.get_data(as_text=True))["errors"])
+
+
+def test_several_attributes_one_sample(client: FlaskClient) -> None:
+    body = {
+        "confidence": 0.95,
+        "attributes": [
+            {"name": "approval present", "tolerable_rate": 0.05},
+            {"name": "amount matches invoice", "tolerable_rate": 0.05, "expected_rate": 0.01},
+        ],
+    }
+    response = post(client, SIZE, body)
+    assert response.status_code == 200, response.get_data(as_text=True)
+    answer = response.get_json()
+    single = post(client, SIZE, {"tolerable_rate": 0.05, "expected_rate": 0.01}).get_json()
+    assert answer["sample_size"] == single["sample_size"]
+    assert answer["governing_attribute"] == "amount matches invoice"
+    first, second = answer["attributes"]
+    n = answer["sample_size"]
+    assert first["allowed_deviations"] == 0
+    assert first["risk_of_overreliance"] == pytest.approx(stats.binom.cdf(0, n, 0.05), rel=1e-9)
+    assert second["allowed_deviations"] == math.ceil(round(0.01 * n, 9))
+    assert second["risk_of_underreliance"] == pytest.approx(
+        stats.binom.sf(second["allowed_deviations"], n, 0.01), rel=1e-9
+    )
+    assert CAUTION in answer["summary"]
+    assert "tolerable_rate" not in answer
+
+
+def test_several_attributes_evaluation(client: FlaskClient) -> None:
+    body = {
+        "sample_size": 93,
+        "population": {"size": 2500, "label": "Purchase orders, Tallowmere Ltd, 2026"},
+        "attributes": [
+            {"name": "approval", "deviations": 1, "tolerable_rate": 0.05},
+            {"name": "period", "deviations": 3, "tolerable_rate": 0.05},
+        ],
+    }
+    response = post(client, EVALUATION, body)
+    assert response.status_code == 200, response.get_data(as_text=True)
+    answer = response.get_json()
+    for item in answer["attributes"]:
+        alone = post(
+            client,
+            EVALUATION,
+            {
+                "sample_size": 93,
+                "deviations": item["deviations"],
+                "tolerable_rate": 0.05,
+                "population": {"size": 2500},
+            },
+        ).get_json()
+        for name in (
+            "upper_deviation_limit",
+            "risk_at_tolerable_rate",
+            "conclusion",
+            "upper_deviation_count",
+        ):
+            assert item[name] == alone[name]
+    assert answer["attributes_not_supporting"] == ["period"]
+    assert answer["conclusion"] == "does_not_support_reliance"
+    assert CAUTION in answer["summary"]
+
+
+@pytest.mark.parametrize(
+    ("path", "body", "field"),
+    [
+        (SIZE, {"attributes": []}, "attributes"),
+        (
+            SIZE,
+            {
+                "attributes": [
+                    {"name": "a", "tolerable_rate": 0.05},
+                    {"name": "a", "tolerable_rate": 0.06},
+                ]
+            },
+            "attributes[1].name",
+        ),
+        (
+            SIZE,
+            {"tolerable_rate": 0.05, "attributes": [{"name": "a", "tolerable_rate": 0.05}]},
+            "tolerable_rate",
+        ),
+        (
+            SIZE,
+            {"attributes": [{"name": "a", "tolerable_rate": 0.05, "expected_rate": 0.05}]},
+            "attributes[0].expected_rate",
+        ),
+        (
+            SIZE,
+            {"attributes": [{"name": "a", "tolerable_rate": 5}]},
+            "attributes[0].tolerable_rate",
+        ),
+        (SIZE, {"attributes": [{"name": "a"}]}, "attributes[0].tolerable_rate"),
+        (
+            SIZE,
+            {"attributes": [{"name": "a", "tolerable_rate": 0.05, "extra": 1}]},
+            "attributes[0].extra",
+        ),
+        (SIZE, {"expected_rate": 0.01}, "tolerable_rate"),
+        (SIZE, {"tolerable_rate": 0.05, "underreliance_risk": 0}, "underreliance_risk"),
+        (EVALUATION, {"sample_size": 10, "attributes": []}, "attributes"),
+        (
+            EVALUATION,
+            {
+                "sample_size": 10,
+                "attributes": [{"name": "a", "deviations": 11, "tolerable_rate": 0.05}],
+            },
+            "attributes[0].deviations",
+        ),
+        (
+            EVALUATION,
+            {
+                "sample_size": 10,
+                "deviations": 1,
+                "attributes": [{"name": "a", "deviations": 1, "tolerable_rate": 0.05}],
+            },
+            "deviations",
+        ),
+        (
+            EVALUATION,
+            {
+                "sample_size": 10,
+                "attributes": [
+                    {"name": "a", "deviations": 1, "tolerable_rate": 0.05},
+                    {"name": "a", "deviations": 0, "tolerable_rate": 0.05},
+                ],
+            },
+            "attributes[1].name",
+        ),
+        (EVALUATION, {"sample_size": 10}, "deviations"),
+    ],
+)
+def test_bad_input_names_the_field(
+    client: FlaskClient, path: str, body: dict[str, Any], field: str
+) -> None:
+    assert field in problem_fields(post(client, path, body))
+
+
+def test_two_risk_plan(client: FlaskClient) -> None:
+    body = {"tolerable_rate": 0.05, "expected_rate": 0.01, "underreliance_risk": 0.10}
+    answer = post(client, SIZE, body).get_json()
+    n, k = answer["sample_size"], answer["allowed_deviations"]
+    assert stats.binom.cdf(k, n, 0.05) <= 0.05
+    assert answer["risk_of_underreliance"] == pytest.approx(stats.binom.sf(k, n, 0.01), rel=1e-9)
+    assert answer["risk_of_underreliance"] <= 0.10
+    assert answer["underreliance_risk"] == 0.10
+    assert answer["classical_sample_size"] == 93
+    assert answer["curve_request"]["sample_size"] == n
+
+
+def test_two_risk_plan_without_a_solution_is_a_problem(client: FlaskClient) -> None:
+    # 40 items: 5% and 4% both mean 2 deviant items, so no sample tells them apart.
+    body = {
+        "tolerable_rate": 0.05,
+        "expected_rate": 0.04,
+        "underreliance_risk": 0.10,
+        "population": {"size": 40},
+    }
+    errors = problem_fields(post(client, SIZE, body))
+    assert "no sample of at most 40 items" in errors["underreliance_risk"][0]
+
+
+def test_markdown_lists_each_attribute(client: FlaskClient) -> None:
+    body = {
+        "attributes": [
+            {"name": "approval", "tolerable_rate": 0.05},
+            {"name": "amount", "tolerable_rate": 0.07, "expected_rate": 0.01},
+        ]
+    }
+    text = post(client, SIZE, body, "text/markdown").get_data(as_text=True)
+    assert "| name |" in text and "| approval |" in text and "| amount |" in text
+    assert CAUTION in text
