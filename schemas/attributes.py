@@ -17,16 +17,17 @@ from schemas.fields import Rate, StrictFloat, StrictInteger, StrictString
 from schemas.plans import (
     AttributeFindingsSchema,
     AttributeRatesSchema,
+    PriorSchema,
     attributes_field,
+    prior_answer_fields,
     unique_names,
 )
 from service.sampling.attributes import MAX_CONFIDENCE, MIN_CONFIDENCE, MIN_TOLERABLE_RATE
 from service.sampling.distributions import MODELS
+from service.sampling.plans.wording import any_evaluation_summary, any_plan_summary
 from service.sampling.wording import (
     NEXT_STEPS,
     comparison_with_plan,
-    evaluation_summary,
-    plan_summary,
 )
 
 METHOD_NAMES = sorted(MODELS)
@@ -100,6 +101,15 @@ class SampleSizeRequest(StrictSchema):
             "example": 0.10,
         },
     )
+    prior = fields.Nested(
+        PriorSchema,
+        metadata={
+            "description": "Prior evidence (optional): sample_size is then the Bayesian plan, "
+            "the smallest n whose expected result gives a posterior probability of at least "
+            "confidence that the rate is at most tolerable_rate; classical_sample_size is "
+            "the plan without it."
+        },
+    )
 
     @validates_schema(pass_original=True)
     def _expected_below_tolerable(
@@ -117,6 +127,10 @@ class SampleSizeRequest(StrictSchema):
             unique_names(several, errors)
         elif data.get("tolerable_rate") is None:
             errors["tolerable_rate"] = ["Missing data for required field."]
+        if "prior" in data and (several is not None or "underreliance_risk" in data):
+            errors["prior"] = [
+                "a prior applies to a single attribute without underreliance_risk"
+            ]
         tolerable, expected = data.get("tolerable_rate"), data.get("expected_rate")
         if tolerable is not None and expected is not None and expected >= tolerable:
             errors["expected_rate"] = [
@@ -146,6 +160,10 @@ class SampleSizePlanSchema(ResultSchema):
         "underreliance_risk",
         "classical_sample_size",
         "classical_allowed_deviations",
+        "prior",
+        "posterior_probability",
+        "posterior_upper_limit",
+        "items_saved",
     )
 
     sample_size = fields.Integer(required=True, metadata={"description": "Items to test."})
@@ -205,8 +223,17 @@ class SampleSizePlanSchema(ResultSchema):
     classical_allowed_deviations = fields.Integer(
         metadata={"description": "The deviations the classical plan allows."}
     )
+    prior = prior_answer_fields()["prior"]
+    posterior_probability = prior_answer_fields()["posterior_probability"]
+    posterior_upper_limit = prior_answer_fields()["posterior_upper_limit"]
+    items_saved = fields.Integer(
+        metadata={
+            "description": "With a prior: classical_sample_size − sample_size (negative when "
+            "the prior asks for more items)."
+        }
+    )
     summary = fields.Function(
-        plan_summary,
+        any_plan_summary,
         required=True,
         metadata={"type": "string", "description": "Plain-English paragraph."},
     )
@@ -289,6 +316,14 @@ class EvaluationRequest(StrictSchema):
         "found for it and its tolerable rate (instead of deviations and tolerable_rate): "
         "each is evaluated on its own.",
     )
+    prior = fields.Nested(
+        PriorSchema,
+        metadata={
+            "description": "Prior evidence (optional): the answer adds the posterior "
+            "probability that the rate is at most tolerable_rate and the posterior upper "
+            "limit, beside the classical evaluation."
+        },
+    )
 
     @validates_schema
     def _consistent(self, data: dict[str, Any], **kwargs: Any) -> None:
@@ -303,6 +338,8 @@ class EvaluationRequest(StrictSchema):
                         "when attributes is given"
                     ]
             unique_names(several, errors)
+            if "prior" in data:
+                errors["prior"] = ["a prior applies to a single attribute"]
             for index, item in enumerate(several):
                 if n is not None and item.deviations > n:
                     errors[f"attributes[{index}].deviations"] = [
@@ -341,6 +378,9 @@ class EvaluationSchema(ResultSchema):
         "planned_allowed_deviations",
         "comparison_with_plan",
         "tolerable_deviant_items",
+        "prior",
+        "posterior_probability",
+        "posterior_upper_limit",
     )
 
     method = fields.String(required=True)
@@ -426,8 +466,11 @@ class EvaluationSchema(ResultSchema):
             "description": "Present only when tolerable_rate is given.",
         },
     )
+    prior = prior_answer_fields()["prior"]
+    posterior_probability = prior_answer_fields()["posterior_probability"]
+    posterior_upper_limit = prior_answer_fields()["posterior_upper_limit"]
     summary = fields.Function(
-        evaluation_summary,
+        any_evaluation_summary,
         required=True,
         metadata={"type": "string", "description": "Plain-English paragraph."},
     )

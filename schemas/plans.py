@@ -14,6 +14,8 @@ from marshmallow import ValidationError, fields, post_load, validate, validates_
 from schemas.common import ResultSchema, StrictSchema
 from schemas.fields import Rate, StrictFloat, StrictInteger, StrictString
 from service.sampling.attributes import MIN_TOLERABLE_RATE
+from service.sampling.errors import InvalidInput
+from service.sampling.plans.bayesian import PRIOR_TYPES, BetaPrior, beta_prior
 from service.sampling.plans.multiple import AttributeFindings, AttributeRates
 from service.sampling.plans.wording import several_evaluation_summary, several_plan_summary
 
@@ -86,6 +88,92 @@ class AttributeFindingsSchema(StrictSchema):
     @post_load
     def _to_core(self, data: dict[str, Any], **kwargs: Any) -> AttributeFindings:
         return AttributeFindings(**data)
+
+
+class PriorSchema(StrictSchema):
+    """Prior evidence on the deviation rate, as a beta prior."""
+
+    type = StrictString(
+        required=True,
+        validate=validate.OneOf(PRIOR_TYPES, error="must be one of {choices}"),
+        metadata={
+            "description": "uniform: Beta(1, 1). expected_rate: the uniform prior plus "
+            "strength items seen at expected_rate, Beta(1 + e·s, 1 + (1 − e)·s). "
+            "previous_sample: an earlier sample of sample_size items with deviations, "
+            "discounted by weight, Beta(1 + w·d, 1 + w·(n − d)).",
+            "example": "previous_sample",
+        },
+    )
+    expected_rate = Rate(
+        allow_zero=True,
+        metadata={"description": "expected_rate prior: the rate the evidence points to."},
+    )
+    strength = StrictFloat(
+        metadata={
+            "description": "expected_rate prior: its weight, in equivalent items tested.",
+            "exclusiveMinimum": 0,
+            "example": 50,
+        },
+    )
+    sample_size = StrictInteger(
+        metadata={"description": "previous_sample prior: items tested then.", "minimum": 1},
+    )
+    deviations = StrictInteger(
+        metadata={"description": "previous_sample prior: deviations found then.", "minimum": 0},
+    )
+    weight = StrictFloat(
+        metadata={
+            "description": "previous_sample prior: how much of it counts now, from 0 (none) "
+            "to 1 (all of it).",
+            "minimum": 0,
+            "maximum": 1,
+            "example": 0.5,
+        },
+    )
+
+    @post_load
+    def _to_core(self, data: dict[str, Any], **kwargs: Any) -> BetaPrior:
+        try:
+            return beta_prior(**data)
+        except InvalidInput as exc:
+            raise ValidationError(exc.message, exc.field.removeprefix("prior.")) from None
+
+
+class PriorResultSchema(ResultSchema):
+    """The prior used, as the beta distribution it became."""
+
+    absent_when_none = ("expected_rate", "strength", "sample_size", "deviations", "weight")
+
+    type = fields.String(required=True)
+    alpha = fields.Float(required=True)
+    beta = fields.Float(required=True)
+    expected_rate = fields.Float()
+    strength = fields.Float()
+    sample_size = fields.Integer()
+    deviations = fields.Integer()
+    weight = fields.Float()
+
+
+def prior_answer_fields() -> dict[str, fields.Field[Any]]:
+    """The answer fields a prior adds to a plan or an evaluation (absent without one)."""
+    return {
+        "prior": fields.Nested(
+            PriorResultSchema,
+            metadata={"description": "The prior, when the request gave one."},
+        ),
+        "posterior_probability": fields.Float(
+            metadata={
+                "description": "With a prior: the posterior probability that the deviation "
+                "rate is at most tolerable_rate (for a plan, if allowed_deviations are found)."
+            }
+        ),
+        "posterior_upper_limit": fields.Float(
+            metadata={
+                "description": "With a prior: the confidence quantile of the posterior "
+                "deviation rate."
+            }
+        ),
+    }
 
 
 def unique_names(items: list[Any] | None, errors: dict[str, list[str]]) -> None:

@@ -16,6 +16,7 @@ from service.http.markdown import TicketLayout
 from service.http.operations import Operation, blueprint
 from service.sampling.attributes import Evaluation, SampleSizePlan, evaluate_sample, size_sample
 from service.sampling.distributions import MODELS
+from service.sampling.plans.bayesian import evaluate_with_prior, size_with_prior
 from service.sampling.plans.multiple import (
     SeveralAttributesEvaluation,
     SeveralAttributesPlan,
@@ -32,6 +33,11 @@ def _size(inputs: dict[str, Any], settings: Settings) -> SampleSizePlan | Severa
         for name in ("tolerable_rate", "expected_rate"):
             inputs.pop(name, None)
         return size_several(several, **inputs, max_sample_size=settings.max_sample_size)
+    prior = inputs.pop("prior", None)
+    if prior is not None:
+        return size_with_prior(
+            prior=prior, **inputs, max_sample_size=settings.max_sample_size
+        )
     limit = inputs.pop("underreliance_risk", None)
     if limit is not None:
         return size_two_risks(
@@ -46,6 +52,9 @@ def _evaluate(
     several = inputs.pop("attributes", None)
     if several is not None:
         return evaluate_several(attributes=several, **inputs)
+    prior = inputs.pop("prior", None)
+    if prior is not None:
+        return evaluate_with_prior(prior=prior, **inputs)
     return evaluate_sample(**inputs)
 
 
@@ -82,6 +91,10 @@ OPERATIONS = [
                 "risk_of_underreliance",
                 "underreliance_risk",
                 "classical_sample_size",
+                "items_saved",
+                "posterior_probability",
+                "posterior_upper_limit",
+                "prior",
                 "attributes",
             ),
             method=model_method,
@@ -111,6 +124,9 @@ OPERATIONS = [
                 "confidence_interval",
                 "risk_at_tolerable_rate",
                 "conclusion",
+                "posterior_probability",
+                "posterior_upper_limit",
+                "prior",
             ),
             method=model_method,
         ),

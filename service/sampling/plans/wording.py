@@ -2,8 +2,11 @@
 
 from __future__ import annotations
 
+from service.sampling.attributes import Evaluation, SampleSizePlan
+from service.sampling.plans.bayesian import BayesianEvaluation, BayesianPlan, BetaPrior
 from service.sampling.plans.multiple import SeveralAttributesEvaluation, SeveralAttributesPlan
-from service.sampling.wording import CAUTION, percent
+from service.sampling.plans.two_risks import TwoRiskPlan
+from service.sampling.wording import CAUTION, evaluation_summary, percent, plan_summary
 
 
 def _deviations(count: int) -> str:
@@ -44,3 +47,73 @@ def several_evaluation_summary(result: SeveralAttributesEvaluation) -> str:
         f"{result.sample_size:,} items tested for {len(result.attributes)} attributes at "
         f"{percent(result.confidence)} confidence. " + "; ".join(parts) + f". {CAUTION}"
     )
+
+
+def _prior_phrase(prior: BetaPrior) -> str:
+    if prior.type == "uniform":
+        return "a uniform prior"
+    if prior.type == "expected_rate":
+        return (
+            f"a prior worth {prior.strength:g} items at a rate of "
+            f"{percent(prior.expected_rate or 0.0)}"
+        )
+    return (
+        f"a prior from an earlier sample of {prior.sample_size:,} items with "
+        f"{prior.deviations:,} deviations, weighted {prior.weight:g}"
+    )
+
+
+def _without_caution(text: str) -> str:
+    return text.removesuffix(CAUTION).strip()
+
+
+def any_plan_summary(plan: SampleSizePlan) -> str:
+    """The plan's paragraph, with what a prior or a limit on both risks adds."""
+    if isinstance(plan, BayesianPlan) and plan.prior is not None:
+        saved = plan.items_saved or 0
+        change = (
+            f"{saved:,} fewer than"
+            if saved > 0
+            else ("the same as" if saved == 0 else f"{-saved:,} more than")
+        )
+        k = plan.allowed_deviations
+        found = "no deviation is" if k == 0 else f"{k:,} deviation{'' if k == 1 else 's'} are"
+        return (
+            f"With {_prior_phrase(plan.prior)}, test {plan.sample_size:,} items "
+            f"({change} the classical {plan.classical_sample_size:,}): if {found} found, the "
+            f"posterior probability that the deviation rate is at most "
+            f"{percent(plan.tolerable_rate)} is {percent(plan.posterior_probability or 0.0)} "
+            f"and the posterior upper limit is {percent(plan.posterior_upper_limit or 0.0)}. "
+            f"Without the prior, this sample's risk of overreliance is "
+            f"{percent(plan.risk_of_overreliance)}. The prior must be justified and "
+            f"documented. {CAUTION}"
+        )
+    text = plan_summary(plan)
+    if isinstance(plan, TwoRiskPlan) and plan.underreliance_risk is not None:
+        text = (
+            f"{_without_caution(text)} Sized so that the risk of underreliance is at most "
+            f"{percent(plan.underreliance_risk)} as well"
+            + (
+                f" (the classical plan: {plan.classical_sample_size:,} items)."
+                if plan.classical_sample_size is not None
+                else "."
+            )
+            + f" {CAUTION}"
+        )
+    return text
+
+
+def any_evaluation_summary(result: Evaluation) -> str:
+    """The evaluation's paragraph, with the posterior when a prior was given."""
+    text = evaluation_summary(result)
+    if not isinstance(result, BayesianEvaluation) or result.prior is None:
+        return text
+    extra = f" With {_prior_phrase(result.prior)}, the posterior upper limit is " + percent(
+        result.posterior_upper_limit or 0.0
+    )
+    if result.posterior_probability is not None and result.tolerable_rate is not None:
+        extra += (
+            f" and the posterior probability that the rate is at most "
+            f"{percent(result.tolerable_rate)} is {percent(result.posterior_probability)}"
+        )
+    return f"{_without_caution(text)}{extra}; the prior must be justified and documented. {CAUTION}"

@@ -36,7 +36,9 @@ def test_sample_size_fields_become_flags_with_their_descriptions() -> None:
     specs = by_name(SampleSizeRequest())
     assert list(specs) == ["population_size", "population_label", "tolerable_rate",
                            "expected_rate", "confidence", "method", "attributes",
-                           "underreliance_risk"]
+                           "underreliance_risk", "prior_type", "prior_expected_rate",
+                           "prior_strength", "prior_sample_size", "prior_deviations",
+                           "prior_weight"]
     assert specs["population_size"].flag == "--population-size"
     assert specs["population_size"].dotted == "population.size"
     assert specs["tolerable_rate"].kind == flags.NUMBER
@@ -227,3 +229,20 @@ def test_evaluation_fields_cover_the_schema() -> None:
     schema = EvaluationRequest()
     roots = {spec.path[0] for spec in flags.field_specs(schema)}
     assert roots == {field.data_key or name for name, field in schema.fields.items()}
+
+
+def test_attributes_prior_and_underreliance_risk_reach_the_command_line() -> None:
+    assert body("sample-size", "--attributes",
+                '[{"name": "approval", "tolerable_rate": 0.05}]') == {
+        "attributes": [{"name": "approval", "tolerable_rate": 0.05}]}
+    assert body("sample-size", "--tolerable-rate", "0.05", "--expected-rate", "0.01",
+                "--underreliance-risk", "0.1") == {
+        "tolerable_rate": 0.05, "expected_rate": 0.01, "underreliance_risk": 0.1}
+    assert body("evaluation", "--sample-size", "60", "--deviations", "1",
+                "--prior-type", "previous_sample", "--prior-sample-size", "80",
+                "--prior-deviations", "0", "--prior-weight", "0.5") == {
+        "sample_size": 60, "deviations": 1,
+        "prior": {"type": "previous_sample", "sample_size": 80, "deviations": 0, "weight": 0.5}}
+    assert body("evaluation", "--sample-size", "60", "--attributes",
+                '[{"name": "a", "deviations": 0, "tolerable_rate": 0.05}]') == {
+        "sample_size": 60, "attributes": [{"name": "a", "deviations": 0, "tolerable_rate": 0.05}]}

@@ -201,3 +201,87 @@ def test_markdown_lists_each_attribute(client: FlaskClient) -> None:
     text = post(client, SIZE, body, "text/markdown").get_data(as_text=True)
     assert "| name |" in text and "| approval |" in text and "| amount |" in text
     assert CAUTION in text
+
+
+def test_uniform_prior_plan_over_http(client: FlaskClient) -> None:
+    # By hand: Beta(1, 1) and no deviation in n items gives P(p ≤ 5%) = 1 − 0.95^(n + 1),
+    # first at least 0.95 at n = 58; the classical zero-deviation plan needs 59.
+    answer = post(client, SIZE, {"tolerable_rate": 0.05, "prior": {"type": "uniform"}}).get_json()
+    assert (answer["sample_size"], answer["classical_sample_size"], answer["items_saved"]) == (
+        58,
+        59,
+        1,
+    )
+    assert answer["posterior_probability"] == pytest.approx(1 - 0.95**59, rel=1e-12)
+    assert answer["posterior_upper_limit"] == pytest.approx(stats.beta.ppf(0.95, 1, 59), rel=1e-9)
+    assert answer["prior"] == {"type": "uniform", "alpha": 1.0, "beta": 1.0}
+    assert any("justified" in w for w in answer["warnings"])
+    assert "must be justified and documented" in answer["summary"]
+    assert CAUTION in answer["summary"]
+
+
+def test_prior_in_evaluation_against_scipy_beta(client: FlaskClient) -> None:
+    body = {
+        "sample_size": 60,
+        "deviations": 1,
+        "tolerable_rate": 0.05,
+        "prior": {"type": "previous_sample", "sample_size": 80, "deviations": 0, "weight": 0.5},
+    }
+    answer = post(client, EVALUATION, body).get_json()
+    a, b = 1 + 0.5 * 0 + 1, 1 + 0.5 * 80 + 59
+    assert answer["posterior_probability"] == pytest.approx(stats.beta.cdf(0.05, a, b), rel=1e-9)
+    assert answer["posterior_upper_limit"] == pytest.approx(stats.beta.ppf(0.95, a, b), rel=1e-9)
+    classical = post(client, EVALUATION, {k: v for k, v in body.items() if k != "prior"})
+    assert answer["upper_deviation_limit"] == classical.get_json()["upper_deviation_limit"]
+    text = post(client, EVALUATION, body, "text/markdown").get_data(as_text=True)
+    assert "| posterior\\_probability |" in text and "%" in text.split("posterior\\_probability")[1]
+
+
+@pytest.mark.parametrize(
+    ("path", "body", "field"),
+    [
+        (
+            SIZE,
+            {
+                "tolerable_rate": 0.05,
+                "prior": {
+                    "type": "previous_sample",
+                    "sample_size": 60,
+                    "deviations": 0,
+                    "weight": 1.2,
+                },
+            },
+            "prior.weight",
+        ),
+        (SIZE, {"tolerable_rate": 0.05, "prior": {"type": "flat"}}, "prior.type"),
+        (
+            SIZE,
+            {"tolerable_rate": 0.05, "prior": {"type": "expected_rate", "strength": 10}},
+            "prior.expected_rate",
+        ),
+        (SIZE, {"tolerable_rate": 0.05, "prior": {"type": "uniform", "weight": 1}}, "prior.weight"),
+        (
+            SIZE,
+            {"tolerable_rate": 0.05, "underreliance_risk": 0.1, "prior": {"type": "uniform"}},
+            "prior",
+        ),
+        (
+            EVALUATION,
+            {
+                "sample_size": 60,
+                "deviations": 0,
+                "prior": {
+                    "type": "previous_sample",
+                    "sample_size": 60,
+                    "deviations": 0,
+                    "weight": -0.5,
+                },
+            },
+            "prior.weight",
+        ),
+    ],
+)
+def test_bad_priors_name_the_field(
+    client: FlaskClient, path: str, body: dict[str, Any], field: str
+) -> None:
+    assert field in problem_fields(post(client, path, body))
