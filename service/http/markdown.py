@@ -57,6 +57,9 @@ RATE_FIELDS = frozenset({
     "low", "high", "margin", "anticipated_rate", "miss_probability", "rate",
     "probability", "achieved_miss_probability",
     "underreliance_risk", "posterior_probability", "posterior_upper_limit",
+    "confidence_against_1_deviant", "confidence_against_2_deviant",
+    "confidence_against_3_deviant", "upper_deviation_limit_if_none_found",
+    "achieved_confidence_at_tolerable",
 })
 # Coded values shown in words.
 CODE_WORDS = {

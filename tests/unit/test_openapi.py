@@ -119,6 +119,8 @@ HAPPY = [
     ("/v1/evaluation", {"sample_size": 60, "population": {"size": 900},
                         "attributes": [{"name": "approval", "deviations": 0,
                                         "tolerable_rate": 0.05}]}),
+    ("/v1/plans/periodic", {"frequency": "quarterly", "tolerable_rate": 0.2}),
+    ("/v1/sample-size", {"tolerable_rate": 0.05, "prior": {"type": "uniform"}}),
 ]
 
 

@@ -5,6 +5,7 @@ from __future__ import annotations
 from service.sampling.attributes import Evaluation, SampleSizePlan
 from service.sampling.plans.bayesian import BayesianEvaluation, BayesianPlan, BetaPrior
 from service.sampling.plans.multiple import SeveralAttributesEvaluation, SeveralAttributesPlan
+from service.sampling.plans.periodic import PeriodicPlan
 from service.sampling.plans.two_risks import TwoRiskPlan
 from service.sampling.wording import CAUTION, evaluation_summary, percent, plan_summary
 
@@ -117,3 +118,31 @@ def any_evaluation_summary(result: Evaluation) -> str:
             f"{percent(result.tolerable_rate)} is {percent(result.posterior_probability)}"
         )
     return f"{_without_caution(text)}{extra}; the prior must be justified and documented. {CAUTION}"
+
+
+def periodic_summary(plan: PeriodicPlan) -> str:
+    """The periodic control's sizes and what they prove, in words."""
+    occurrences = f"{plan.occurrences:,} occurrence" + ("" if plan.occurrences == 1 else "s")
+    text = (
+        f"A {plan.frequency.replace('_', ' ')} control with {occurrences} in the period "
+        f"({plan.occurrences_basis}); at a tolerable rate of {percent(plan.tolerable_rate)} "
+        f"the population may hold {plan.tolerable_deviant_items:,} deviant "
+        f"occurrence{'' if plan.tolerable_deviant_items == 1 else 's'}. The statistical plan "
+        f"tests {plan.statistical_plan.sample_size:,} of them at "
+        f"{percent(plan.confidence)} confidence."
+    )
+    range_text = (
+        f"{plan.common_practice_low:,}"
+        if plan.common_practice_low == plan.common_practice_high
+        else f"{plan.common_practice_low:,} to {plan.common_practice_high:,}"
+    )
+    text += f" Common practice tests {range_text}: {plan.common_practice_basis}."
+    for meaning in plan.sizes:
+        one = meaning.confidence_against_1_deviant
+        text += (
+            f" Finding no deviation in {meaning.sample_size:,}: upper limit "
+            f"{meaning.upper_deviation_count_if_none_found:,} deviant occurrences"
+            + ("" if one is None else f", a {percent(one)} chance of finding a lone deviant one")
+            + "."
+        )
+    return f"{text} {CAUTION}"

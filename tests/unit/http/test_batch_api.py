@@ -20,6 +20,7 @@ GOOD = {
     "selection": {"population": {"size": 500}, "sample_size": 5, "seed": "fictional-1"},
     "estimation-sample-size": {"margin": 0.05},
     "plan-curve": {"sample_size": 60, "allowed_deviations": 1},
+    "plan-periodic": {"frequency": "monthly", "tolerable_rate": 0.1},
 }
 EVAL = {"sample_size": 60, "deviations": 0}
 SINGLE = {op.name: op for op in all_operations() if op.name != "batch"}

@@ -285,3 +285,47 @@ def test_bad_priors_name_the_field(
     client: FlaskClient, path: str, body: dict[str, Any], field: str
 ) -> None:
     assert field in problem_fields(post(client, path, body))
+
+
+PERIODIC = "/v1/plans/periodic"
+
+
+def test_periodic_plan_over_http(client: FlaskClient) -> None:
+    answer = post(client, PERIODIC, {"frequency": "weekly", "tolerable_rate": 0.10}).get_json()
+    assert answer["occurrences"] == 52
+    assert answer["statistical_plan"]["population_size"] == 52
+    for meaning in answer["sizes"]:
+        n = meaning["sample_size"]
+        # scipy.stats.hypergeom: chance of finding at least one of m deviant weeks
+        for m in (1, 2, 3):
+            assert meaning[f"confidence_against_{m}_deviant"] == pytest.approx(
+                1 - stats.hypergeom.pmf(0, 52, m, n), abs=1e-12
+            )
+    assert CAUTION in answer["summary"]
+    text = post(
+        client, PERIODIC, {"frequency": "weekly", "tolerable_rate": 0.10}, "text/markdown"
+    ).get_data(as_text=True)
+    assert "| sample\\_size | basis |" in text and CAUTION in text
+
+
+@pytest.mark.parametrize(
+    ("body", "field"),
+    [
+        ({"frequency": "hourly", "tolerable_rate": 0.1}, "frequency"),
+        ({"tolerable_rate": 0.1}, "frequency"),
+        ({"frequency": "monthly", "tolerable_rate": 0.1, "occurrences": 0}, "occurrences"),
+        ({"frequency": "monthly", "tolerable_rate": 0.1, "occurrences": 1.5}, "occurrences"),
+        (
+            {
+                "frequency": "monthly",
+                "tolerable_rate": 0.1,
+                "common_practice": {"low": 5, "high": 2},
+            },
+            "common_practice.high",
+        ),
+        ({"frequency": "monthly", "tolerable_rate": 0.1, "expected_rate": 0.1}, "expected_rate"),
+        ({"frequency": "monthly"}, "tolerable_rate"),
+    ],
+)
+def test_periodic_bad_input(client: FlaskClient, body: dict[str, Any], field: str) -> None:
+    assert field in problem_fields(post(client, PERIODIC, body))
