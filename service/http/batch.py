@@ -209,8 +209,8 @@ OPERATIONS = [
         description=(
             "Each item names a single operation by its operationId (sample-size, "
             "evaluation, selection, estimation-sample-size, plan-curve, plan-periodic) and "
-            "carries the body that endpoint takes. Items are validated and answered on their own, in "
-            "order, under the same limits as single calls; each answer repeats the item's "
+            "carries the body that endpoint takes. Items are validated and answered on their "
+            "own, in order, under the same limits as single calls; each answer repeats the item's "
             "id with the status the single endpoint would have given and either its result "
             "or its problem details, whose field paths start with operations[i]. One bad "
             "item never fails the others. The call as a whole is refused (422) when the "
