@@ -53,6 +53,7 @@ OPERATION_PATHS = {
     "selection": "/v1/selection",
     "estimation-sample-size": "/v1/estimation/sample-size",
     "plan-curve": "/v1/plans/curve",
+    "plan-periodic": "/v1/plans/periodic",
     "batch": "/v1/batch",
 }
 
@@ -312,6 +313,10 @@ class SamplingClient:
     def plan_curve_svg(self, request: Body = None, /, **fields: Any) -> str:
         """``POST /v1/plans/curve`` as an SVG chart."""
         return self.call_text("plan-curve", {**(request or {}), **fields}, SVG)
+
+    def plan_periodic(self, request: Body = None, /, **fields: Any) -> dict[str, Any]:
+        """``POST /v1/plans/periodic``: what the sample sizes of a periodic control prove."""
+        return self.call("plan-periodic", {**(request or {}), **fields})
 
     def batch(
         self,

@@ -71,6 +71,7 @@ class SampleSizeRequest(StrictSchema):
     tolerable_rate = Rate(
         metadata={
             "minimum": MIN_TOLERABLE_RATE,
+            "required_unless": "attributes",
             "description": "Tolerable deviation rate, as a fraction. Required unless "
             "attributes is given.",
             "example": 0.05,
@@ -287,6 +288,7 @@ class EvaluationRequest(StrictSchema):
     deviations = StrictInteger(
         validate=validate.Range(min=0, error="must be at least {min}"),
         metadata={
+            "required_unless": "attributes",
             "description": "Deviations found. Required unless attributes is given.",
             "example": 1,
         },

@@ -42,8 +42,9 @@ def test_sample_size_fields_become_flags_with_their_descriptions() -> None:
     assert specs["population_size"].flag == "--population-size"
     assert specs["population_size"].dotted == "population.size"
     assert specs["tolerable_rate"].kind == flags.NUMBER
-    # Required unless attributes is given: the service says which is missing.
+    # Required unless attributes is given (always, in a controls file).
     assert not specs["tolerable_rate"].required
+    assert specs["tolerable_rate"].required_unless == "attributes"
     assert specs["tolerable_rate"].description.startswith(
         "Tolerable deviation rate, as a fraction.")
     assert specs["attributes"].kind == flags.RAW_JSON
@@ -246,3 +247,11 @@ def test_attributes_prior_and_underreliance_risk_reach_the_command_line() -> Non
     assert body("evaluation", "--sample-size", "60", "--attributes",
                 '[{"name": "a", "deviations": 0, "tolerable_rate": 0.05}]') == {
         "sample_size": 60, "attributes": [{"name": "a", "deviations": 0, "tolerable_rate": 0.05}]}
+
+
+def test_periodic_plans_reach_the_command_line() -> None:
+    assert body("plan-periodic", "--frequency", "monthly", "--tolerable-rate", "0.1",
+                "--occurrences", "13", "--common-practice-low", "2",
+                "--common-practice-high", "4") == {
+        "frequency": "monthly", "tolerable_rate": 0.1, "occurrences": 13,
+        "common_practice": {"low": 2, "high": 4}}
