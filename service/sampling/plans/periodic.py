@@ -210,7 +210,7 @@ def plan_periodic(
     if short:
         warnings.append(
             "Finding no deviation in "
-            + ", ".join(f"{n:,}" for n in short)
+            + " or ".join(f"{n:,}" for n in short)
             + f" of {size:,} occurrences does not reach {confidence:.4g} confidence at the "
             "tolerable rate: such a size rests on judgement and other evidence, not on "
             "sampling alone."

@@ -21,7 +21,7 @@ def _deviations(count: int) -> str:
 def several_plan_summary(plan: SeveralAttributesPlan) -> str:
     """One sample for several attributes, in words."""
     parts = [
-        f"{a.name}: {_deviations(a.allowed_deviations)} for a tolerable rate of "
+        f"{a.name}, {_deviations(a.allowed_deviations)} against a tolerable rate of "
         f"{percent(a.tolerable_rate)} (risk of overreliance {percent(a.risk_of_overreliance)})"
         for a in plan.attributes
     ]
@@ -29,7 +29,7 @@ def several_plan_summary(plan: SeveralAttributesPlan) -> str:
         f"Test {plan.sample_size:,} items for all {len(plan.attributes)} attributes "
         f"({plan.method} model, {percent(plan.confidence)} confidence); "
         f"{plan.governing_attribute} needs the largest sample. The sample supports reliance "
-        f"on an attribute when it shows " + "; ".join(parts) + f". {CAUTION}"
+        "on each attribute if it shows, for " + "; for ".join(parts) + f". {CAUTION}"
     )
 
 
@@ -120,29 +120,53 @@ def any_evaluation_summary(result: Evaluation) -> str:
     return f"{_without_caution(text)}{extra}; the prior must be justified and documented. {CAUTION}"
 
 
+_FREQUENCY_WORDS = {
+    "annual": "an annual",
+    "quarterly": "a quarterly",
+    "monthly": "a monthly",
+    "weekly": "a weekly",
+    "daily": "a daily",
+    "several_daily": "a several-times-a-day",
+}
+
+
+def _count(count: int, noun: str) -> str:
+    return f"{count:,} {noun}" + ("" if count == 1 else "s")
+
+
 def periodic_summary(plan: PeriodicPlan) -> str:
     """The periodic control's sizes and what they prove, in words."""
-    occurrences = f"{plan.occurrences:,} occurrence" + ("" if plan.occurrences == 1 else "s")
     text = (
-        f"A {plan.frequency.replace('_', ' ')} control with {occurrences} in the period "
-        f"({plan.occurrences_basis}); at a tolerable rate of {percent(plan.tolerable_rate)} "
-        f"the population may hold {plan.tolerable_deviant_items:,} deviant "
-        f"occurrence{'' if plan.tolerable_deviant_items == 1 else 's'}. The statistical plan "
-        f"tests {plan.statistical_plan.sample_size:,} of them at "
-        f"{percent(plan.confidence)} confidence."
+        f"{_FREQUENCY_WORDS[plan.frequency].capitalize()} control with "
+        f"{_count(plan.occurrences, 'occurrence')} in the period "
+        f"({'as given' if plan.occurrences_basis == 'given' else 'by convention'}); at a "
+        f"tolerable rate of {percent(plan.tolerable_rate)} they may hold "
+        f"{_count(plan.tolerable_deviant_items, 'deviant occurrence')}. The statistical plan "
+        f"tests {plan.statistical_plan.sample_size:,} of them at {percent(plan.confidence)} "
+        "confidence."
     )
     range_text = (
         f"{plan.common_practice_low:,}"
         if plan.common_practice_low == plan.common_practice_high
         else f"{plan.common_practice_low:,} to {plan.common_practice_high:,}"
     )
-    text += f" Common practice tests {range_text}: {plan.common_practice_basis}."
+    source = (
+        "the range given"
+        if plan.common_practice_basis == "given"
+        else "a convention with no published source"
+    )
+    text += f" Common practice tests {range_text} ({source})."
     for meaning in plan.sizes:
         one = meaning.confidence_against_1_deviant
         text += (
-            f" Finding no deviation in {meaning.sample_size:,}: upper limit "
-            f"{meaning.upper_deviation_count_if_none_found:,} deviant occurrences"
-            + ("" if one is None else f", a {percent(one)} chance of finding a lone deviant one")
+            f" Finding no deviation in {meaning.sample_size:,} leaves up to "
+            f"{_count(meaning.upper_deviation_count_if_none_found, 'deviant occurrence')} "
+            "possible"
+            + (
+                ""
+                if one is None
+                else f", and finds a lone deviant one with probability {percent(one)}"
+            )
             + "."
         )
     return f"{text} {CAUTION}"
