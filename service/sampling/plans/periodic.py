@@ -158,7 +158,7 @@ def plan_periodic(
     --------
     >>> plan = plan_periodic("monthly", 0.10)
     >>> plan.occurrences, plan.statistical_plan.sample_size, plan.tolerable_deviant_items
-    (12, 12, 2)
+    (12, 9, 2)
     >>> round(plan.sizes[0].confidence_against_1_deviant, 4)  # 2 of 12 finds 1 deviant
     0.1667
     """
