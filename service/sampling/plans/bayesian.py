@@ -39,6 +39,7 @@ Ibrahim, J. G. & Chen, M.-H. (2000). Power prior distributions for regression mo
 from __future__ import annotations
 
 from dataclasses import dataclass, fields
+from fractions import Fraction
 from typing import Any
 
 import numpy as np
@@ -46,6 +47,7 @@ from scipy import special
 
 from service.sampling.attributes import (
     DEFAULT_MAX_SAMPLE_SIZE,
+    MAX_ALLOWED_DEVIATIONS,
     Evaluation,
     SampleSizePlan,
     evaluate_sample,
@@ -53,15 +55,11 @@ from service.sampling.attributes import (
 )
 from service.sampling.distributions import deviant_items, resolve_model
 from service.sampling.errors import ComputationTooLarge, InvalidInput, NoFeasiblePlan
-from service.sampling.rates import ceil_product, exact_rate
+from service.sampling.rates import ceil_product, exact_rate, floor_quotient
 
 PRIOR_TYPES = ("uniform", "expected_rate", "previous_sample")
 # Largest strength or previous sample accepted, in items.
 MAX_PRIOR_ITEMS = 10_000_000
-# Sample sizes checked at once in the planning search.
-_CHUNK = 4096
-# A computation cap: sample sizes scanned before the request is refused as too large.
-MAX_SCANNED_SIZES = 2_000_000
 
 PRIOR_CAUTION = (
     "The prior is evidence like any other: its choice must be justified by evidence "
@@ -293,22 +291,61 @@ def size_with_prior(
 
 
 def _smallest_bayesian(
-    prior: BetaPrior, expected: Any, tolerable_rate: float, confidence: float, max_n: int
+    prior: BetaPrior, expected: Fraction, tolerable_rate: float, confidence: float, max_n: int
 ) -> int:
-    last = min(max_n, MAX_SCANNED_SIZES)
-    low = 1
-    while low <= last:
-        ns = np.arange(low, min(low + _CHUNK, last + 1), dtype=np.int64)
-        ks = np.array([ceil_product(expected, int(n)) for n in ns], dtype=np.int64)
-        reached = special.betainc(prior.alpha + ks, prior.beta + ns - ks, tolerable_rate)
-        hits = np.flatnonzero(reached >= confidence)
+    """Smallest n with ``I_t(a + k, b + n − k) ≥ confidence`` for ``k = ceil(e n)``.
+
+    For a fixed k the posterior probability grows with n, so within each block of n that
+    share one k the condition holds from some n on: the first block that holds at its
+    largest n holds the answer, found by bisection inside it (the search of
+    :func:`service.sampling.attributes.size_sample`, with the posterior in place of the
+    sampling distribution).
+    """
+
+    def holds(k: Any, n: Any) -> Any:
+        return special.betainc(prior.alpha + k, prior.beta + n - k, tolerable_rate) >= confidence
+
+    def first_in(k: int, low: int, high: int) -> int:
+        while low < high:
+            mid = (low + high) // 2
+            if holds(k, mid):
+                high = mid
+            else:
+                low = mid + 1
+        return low
+
+    if expected == 0:
+        if holds(0, max_n):
+            return first_in(0, 1, max_n)
+        raise _no_bayesian_plan(max_n, confidence)
+    first_k, chunk = 1, 16
+    while first_k <= MAX_ALLOWED_DEVIATIONS:
+        ks = list(range(first_k, first_k + chunk))
+        block_low = [min(floor_quotient(k - 1, expected) + 1, max_n + 1) for k in ks]
+        if block_low[0] > max_n:
+            break
+        block_high = [min(floor_quotient(k, expected), max_n) for k in ks]
+        k_arr, high_arr = np.array(ks), np.array(block_high)
+        nonempty = np.array(block_low) <= high_arr
+        hits = np.flatnonzero(nonempty & holds(k_arr, np.maximum(high_arr, k_arr)))
         if hits.size:
-            return int(ns[hits[0]])
-        low += _CHUNK
-    error = NoFeasiblePlan if last == max_n else ComputationTooLarge
-    raise error(
+            i = int(hits[0])
+            return first_in(ks[i], block_low[i], block_high[i])
+        first_k += chunk
+        chunk = min(4 * chunk, 4096)
+    else:
+        raise ComputationTooLarge(
+            "prior",
+            f"the Bayesian plan would allow more than {MAX_ALLOWED_DEVIATIONS:,} deviations: "
+            "the prior expects too many deviations for this tolerable rate",
+        )
+    raise _no_bayesian_plan(max_n, confidence)
+
+
+def _no_bayesian_plan(max_n: int, confidence: float) -> NoFeasiblePlan:
+    return NoFeasiblePlan(
         "prior",
-        f"with this prior no sample of at most {last:,} items reaches a posterior "
+        f"with this prior no sample of at most {max_n:,} items reaches a posterior "
         f"probability of {confidence!r} that the rate is at most the tolerable rate when the "
         "expected deviations are found: the prior expects too many deviations",
     )

@@ -14,8 +14,8 @@ it gives the smallest risk of underreliance at that ``n``.
 
 For a fixed ``n`` the first condition holds for ``k ≤ K(n)`` (the lower tail grows with
 ``k``) and the second for ``k`` from some point on, so the plan exists at ``n`` exactly
-when ``P(X > K(n) | e) ≤ β``. The search scans ``n`` upward from the zero-deviation size
-in vectorised chunks, finding ``K(n)`` by bisection.
+when ``P(X > K(n) | e) ≤ β``. Only the first ``n`` of each run of equal ``K(n)`` can be
+the first feasible one, so the search scans ``k`` upward (see :func:`_search`).
 
 References
 ----------
@@ -35,17 +35,13 @@ from scipy import special
 
 from service.sampling.attributes import (
     DEFAULT_MAX_SAMPLE_SIZE,
+    MAX_ALLOWED_DEVIATIONS,
     SampleSizePlan,
     size_sample,
 )
 from service.sampling.distributions import Model, deviant_items, resolve_model
 from service.sampling.errors import ComputationTooLarge, InvalidInput, NoFeasiblePlan
 from service.sampling.rates import exact_rate
-
-# Sample sizes checked at once.
-_CHUNK = 1024
-# A computation cap: sizes scanned before the request is refused as too large.
-MAX_SCANNED_SIZES = 2_000_000
 
 
 @dataclass(frozen=True)
@@ -138,12 +134,13 @@ def size_two_risks(
     estimate = _normal_estimate(tolerable_rate, expected_rate, confidence, underreliance_risk)
     if estimate > 2 * max_n and not model.needs_population:
         raise _none_under_cap(tolerable_rate, expected_rate, underreliance_risk, max_n, estimate)
-    if min(estimate, max_n) - zero.sample_size > MAX_SCANNED_SIZES:
+    if min(estimate, max_n) * expected_rate > 2 * MAX_ALLOWED_DEVIATIONS:
         raise ComputationTooLarge(
             "underreliance_risk",
-            f"the plan would need about {estimate:,.0f} items; this service scans at most "
-            f"{MAX_SCANNED_SIZES:,} sample sizes for a two-risk plan: loosen "
-            "underreliance_risk or widen the gap between expected_rate and tolerable_rate",
+            f"the plan would need about {estimate:,.0f} items allowing about "
+            f"{estimate * expected_rate:,.0f} deviations; this service sizes two-risk plans "
+            f"allowing at most {MAX_ALLOWED_DEVIATIONS:,}: loosen underreliance_risk or widen "
+            "the gap between expected_rate and tolerable_rate",
         )
     found = _search(
         model,
@@ -213,18 +210,56 @@ def _search(
     start: int,
     max_n: int,
 ) -> tuple[int, int] | None:
-    low = start
-    while low <= max_n:
-        ns = np.arange(low, min(low + _CHUNK, max_n + 1), dtype=np.int64)
-        ks = _largest_allowed(model, ns, tolerable, alpha, size)
-        valid = ks >= 0
-        under = np.asarray(model.upper_tail(np.maximum(ks, 0), ns, expected, size))
-        hits = np.flatnonzero(valid & (under <= beta))
+    """The smallest feasible n and its K(n), or None when there is none up to max_n.
+
+    K(n) never falls as n grows, and while it stays at one value k the risk of
+    underreliance ``P(X > k | e)`` only grows with n: within each run of equal K(n) only
+    its first n can be the first feasible one. That first n is ``n_k``, the smallest n with
+    ``P(X ≤ k | t) ≤ α``, nondecreasing in k. So the k are scanned upward, ``n_k`` found
+    for a chunk of them at once by bisection on n, and the first k with
+    ``P(X > k | e) ≤ β`` at ``n_k`` gives the plan. (Checking k where K(n_k) is larger is
+    only stricter, and that n_k is checked again with its own K(n_k).)
+    """
+    first_k, chunk = 0, 16
+    while first_k <= MAX_ALLOWED_DEVIATIONS:
+        ks = np.arange(first_k, first_k + chunk, dtype=np.int64)
+        top = np.full(ks.shape, max_n, dtype=np.int64)
+        reachable = ks < max_n
+        reachable &= (
+            np.asarray(model.lower_tail(ks, np.maximum(top, ks + 1), tolerable, size)) <= alpha
+        )
+        if not reachable[0]:
+            return None
+        ks = ks[reachable]
+        low = np.maximum(ks + 1, start)  # below n_k
+        high = np.full(ks.shape, max_n, dtype=np.int64)  # at or above n_k
+        low = np.where(
+            np.asarray(model.lower_tail(ks, low, tolerable, size)) <= alpha, low - 1, low
+        )
+        while np.any(high - low > 1):
+            mid = (low + high) // 2
+            ok = np.asarray(model.lower_tail(ks, mid, tolerable, size)) <= alpha
+            high = np.where(ok, mid, high)
+            low = np.where(ok, low, mid)
+        n_k = high
+        under = np.asarray(model.upper_tail(ks, n_k, expected, size))
+        hits = np.flatnonzero(under <= beta)
         if hits.size:
-            i = int(hits[0])
-            return int(ns[i]), int(ks[i])
-        low += _CHUNK
-    return None
+            n = int(n_k[hits[0]])
+            k = int(
+                _largest_allowed(model, np.array([n], dtype=np.int64), tolerable, alpha, size)[0]
+            )
+            return n, k
+        if ks.size < chunk:
+            return None
+        first_k += chunk
+        chunk = min(4 * chunk, 1024)
+    raise ComputationTooLarge(
+        "underreliance_risk",
+        f"a plan meeting both risks would allow more than {MAX_ALLOWED_DEVIATIONS:,} "
+        "deviations: loosen underreliance_risk or widen the gap between expected_rate and "
+        "tolerable_rate",
+    )
 
 
 def _normal_estimate(tolerable: float, expected: float, confidence: float, beta: float) -> float:

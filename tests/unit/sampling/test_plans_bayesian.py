@@ -130,3 +130,12 @@ def test_bad_priors_name_the_field(kwargs: dict, field: str) -> None:  # type: i
     with pytest.raises(InvalidInput) as caught:
         beta_prior(**kwargs)
     assert caught.value.field == field
+
+
+def test_the_expected_deviation_search_agrees_with_a_plain_scan_near_the_saw_tooth() -> None:
+    # Rates where the allowed deviations step up often: the block search must give the
+    # same first n as scanning every n with scipy.stats.beta.
+    for t, e in ((0.06, 0.03), (0.08, 0.05), (0.2, 0.1)):
+        prior = beta_prior("expected_rate", expected_rate=e, strength=20)
+        plan = size_with_prior(t, e, 0.90, prior)
+        assert plan.sample_size == _scan(prior.alpha, prior.beta, t, e, 0.90)

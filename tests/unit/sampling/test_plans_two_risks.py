@@ -13,7 +13,7 @@ import pytest
 from scipy import stats
 
 from service.sampling.attributes import evaluate_sample, size_sample
-from service.sampling.errors import InvalidInput, NoFeasiblePlan
+from service.sampling.errors import ComputationTooLarge, InvalidInput, NoFeasiblePlan
 from service.sampling.plans.two_risks import size_two_risks
 
 
@@ -101,3 +101,10 @@ def test_limit_outside_the_unit_interval(beta: float) -> None:
     with pytest.raises(InvalidInput) as caught:
         size_two_risks(0.05, 0.01, 0.95, beta)
     assert caught.value.field == "underreliance_risk"
+
+
+def test_a_plan_allowing_too_many_deviations_is_refused_with_the_reason() -> None:
+    with pytest.raises(ComputationTooLarge) as caught:
+        size_two_risks(0.05, 0.049, 0.99, 0.01)
+    assert caught.value.field == "underreliance_risk"
+    assert "10,000" in caught.value.message
