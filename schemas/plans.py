@@ -18,6 +18,7 @@ from service.sampling.errors import InvalidInput
 from service.sampling.plans.bayesian import PRIOR_TYPES, BetaPrior, beta_prior
 from service.sampling.plans.multiple import AttributeFindings, AttributeRates
 from service.sampling.plans.wording import several_evaluation_summary, several_plan_summary
+from service.sampling.wording import NEXT_STEPS
 
 _NAME: dict[str, Any] = {
     "validate": validate.Length(min=1, max=200, error="must be 1 to {max} characters"),
@@ -192,10 +193,25 @@ def unique_names(items: list[Any] | None, errors: dict[str, list[str]]) -> None:
         seen.add(item.name)
 
 
+#: Most attributes one request may list.
+MAX_ATTRIBUTES = 100
+
+
+def count_attributes(payload: Any, settings: Any = None) -> None:
+    """Refuse an over-long attributes list before its elements are validated one by one."""
+    if isinstance(payload, dict):
+        items = payload.get("attributes")
+        if isinstance(items, list) and len(items) > MAX_ATTRIBUTES:
+            raise InvalidInput(
+                "attributes",
+                f"attributes lists {len(items):,} entries; at most {MAX_ATTRIBUTES} are taken",
+            )
+
+
 def attributes_field(schema: type[StrictSchema], description: str) -> fields.List[Any]:
     return fields.List(
         fields.Nested(schema),
-        validate=validate.Length(max=100, error="must list at most {max} attributes"),
+        validate=validate.Length(max=MAX_ATTRIBUTES, error="must list at most {max} attributes"),
         metadata={"description": description},
     )
 
@@ -315,6 +331,17 @@ class SeveralAttributesEvaluationSchema(ResultSchema):
         fields.String(),
         required=True,
         metadata={"description": "The attributes whose result does not support reliance."},
+    )
+    next_steps = fields.Function(
+        lambda result: list(NEXT_STEPS) if not result.supports_reliance else [],
+        required=True,
+        metadata={
+            "type": "array",
+            "items": {"type": "string"},
+            "description": "When an attribute's result does not support reliance: what the "
+            "standards expect next (ISA 530 ¶12-13, AU-C 530), in plain words; empty "
+            "otherwise.",
+        },
     )
     summary = fields.Function(
         several_evaluation_summary,

@@ -11,7 +11,11 @@ from schemas.attributes import (
     SampleSizePlanSchema,
     SampleSizeRequest,
 )
-from schemas.plans import SeveralAttributesEvaluationSchema, SeveralAttributesPlanSchema
+from schemas.plans import (
+    SeveralAttributesEvaluationSchema,
+    SeveralAttributesPlanSchema,
+    count_attributes,
+)
 from service.http.markdown import TicketLayout
 from service.http.operations import Operation, blueprint
 from service.sampling.attributes import Evaluation, SampleSizePlan, evaluate_sample, size_sample
@@ -81,6 +85,7 @@ OPERATIONS = [
         run=_size,
         tag="tests of controls",
         variants={SeveralAttributesPlan: SeveralAttributesPlanSchema},
+        precheck=count_attributes,
         ticket=TicketLayout(
             answer=(
                 "sample_size",
@@ -115,6 +120,7 @@ OPERATIONS = [
         run=_evaluate,
         tag="tests of controls",
         variants={SeveralAttributesEvaluation: SeveralAttributesEvaluationSchema},
+        precheck=count_attributes,
         ticket=TicketLayout(
             answer=(
                 "attributes",

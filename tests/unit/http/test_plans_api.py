@@ -89,6 +89,9 @@ def test_several_attributes_evaluation(client: FlaskClient) -> None:
             assert item[name] == alone[name]
     assert answer["attributes_not_supporting"] == ["period"]
     assert answer["conclusion"] == "does_not_support_reliance"
+    assert answer["next_steps"] and all(isinstance(step, str) for step in answer["next_steps"])
+    body["attributes"] = body["attributes"][:1]
+    assert post(client, EVALUATION, body).get_json()["next_steps"] == []
     assert CAUTION in answer["summary"]
 
 
@@ -329,3 +332,32 @@ def test_periodic_plan_over_http(client: FlaskClient) -> None:
 )
 def test_periodic_bad_input(client: FlaskClient, body: dict[str, Any], field: str) -> None:
     assert field in problem_fields(post(client, PERIODIC, body))
+
+
+def test_the_new_requests_answer_the_same_in_a_batch(client: FlaskClient) -> None:
+    requests = {
+        "sample-size": {
+            "attributes": [{"name": "approval", "tolerable_rate": 0.05}],
+            "population": {"size": 800},
+        },
+        "evaluation": {
+            "sample_size": 50,
+            "deviations": 0,
+            "tolerable_rate": 0.05,
+            "prior": {"type": "uniform"},
+        },
+        "plan-periodic": {"frequency": "quarterly", "tolerable_rate": 0.25},
+    }
+    items = [{"id": name, "operation": name, "request": body} for name, body in requests.items()]
+    results = client.post("/v1/batch", json={"operations": items}).get_json()["results"]
+    paths = {"sample-size": SIZE, "evaluation": EVALUATION, "plan-periodic": PERIODIC}
+    for item, answer in zip(items, results, strict=True):
+        single = client.post(paths[item["id"]], json=item["request"]).get_json()
+        assert answer == {"id": item["id"], "status": 200, "result": single}
+
+
+def test_more_than_a_hundred_attributes_are_refused(client: FlaskClient) -> None:
+    many = [{"name": f"a{i}", "tolerable_rate": 0.05} for i in range(101)]
+    errors = problem_fields(post(client, SIZE, {"attributes": many}))
+    assert "at most 100" in errors["attributes"][0]
+    assert post(client, SIZE, {"attributes": many[:100]}).status_code == 200
