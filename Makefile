@@ -42,6 +42,7 @@ bench: $(VENV)/.installed
 	$(BIN)/python bench/bench_selection.py
 	$(BIN)/python bench/bench_estimation.py
 	$(BIN)/python bench/bench_hypergeometric.py
+	$(BIN)/python bench/bench_plans.py
 
 # Seconds of each wrk run of `make load` (20 runs, then one during which a worker is killed).
 LOAD_SECONDS ?= 10
