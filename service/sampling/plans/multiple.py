@@ -46,7 +46,7 @@ from service.sampling.attributes import (
     size_sample,
 )
 from service.sampling.distributions import Model, deviant_items, resolve_model
-from service.sampling.errors import InvalidInput, NoFeasiblePlan
+from service.sampling.errors import InvalidInput, NoFeasiblePlan, SamplingError
 from service.sampling.rates import ceil_product, exact_rate
 
 # Sample sizes checked at once when the common size is searched past the largest single size.
@@ -199,13 +199,10 @@ def size_several(
                     max_sample_size=max_sample_size,
                 )
             )
-        except InvalidInput as exc:
-            field = exc.field if exc.field in {"confidence", "method"} else None
-            if field is None and exc.field.startswith("population"):
-                field = exc.field
-            raise type(exc)(field or f"attributes[{index}].{exc.field}", exc.message) from None
-        except NoFeasiblePlan as exc:
-            raise type(exc)(f"attributes[{index}].{exc.field}", exc.message) from None
+        except SamplingError as exc:
+            shared = exc.field in {"confidence", "method"} or exc.field.startswith("population")
+            field = exc.field if shared else f"attributes[{index}].{exc.field}"
+            raise type(exc)(field, exc.message) from None
     largest = max(singles, key=lambda plan: plan.sample_size)
     max_n = max_sample_size
     if model.needs_population and population_size is not None:

@@ -13,7 +13,7 @@ import pytest
 from scipy import stats
 
 from service.sampling.attributes import evaluate_sample, size_sample
-from service.sampling.errors import InvalidInput
+from service.sampling.errors import ComputationTooLarge, InvalidInput
 from service.sampling.plans.multiple import (
     AttributeFindings,
     AttributeRates,
@@ -134,3 +134,9 @@ def test_evaluation_errors_name_the_attribute() -> None:
     with pytest.raises(InvalidInput) as caught:
         evaluate_several(10, [AttributeFindings("a", 0, 0.05), AttributeFindings("b", 11, 0.05)])
     assert caught.value.field == "attributes[1].deviations"
+
+
+def test_an_attribute_too_large_to_plan_is_named() -> None:
+    with pytest.raises(ComputationTooLarge) as caught:
+        size_several([AttributeRates("a", 0.05), AttributeRates("b", 0.05, 0.0499)])
+    assert caught.value.field == "attributes[1].expected_rate"
