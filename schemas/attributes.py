@@ -31,6 +31,7 @@ from service.sampling.wording import (
 )
 
 METHOD_NAMES = sorted(MODELS)
+_MISSING_UNLESS_ATTRIBUTES = "Missing data for required field (unless attributes is given)."
 
 _METHOD: dict[str, Any] = {
     "validate": validate.OneOf(METHOD_NAMES, error="must be one of {choices}"),
@@ -113,7 +114,7 @@ class SampleSizeRequest(StrictSchema):
     )
 
     @validates_schema(pass_original=True)
-    def _expected_below_tolerable(
+    def _consistent(
         self, data: dict[str, Any], original: Any, **kwargs: Any
     ) -> None:
         errors: dict[str, list[str]] = {}
@@ -127,7 +128,7 @@ class SampleSizeRequest(StrictSchema):
                     ]
             unique_names(several, errors)
         elif data.get("tolerable_rate") is None:
-            errors["tolerable_rate"] = ["Missing data for required field."]
+            errors["tolerable_rate"] = [_MISSING_UNLESS_ATTRIBUTES]
         if "prior" in data and (several is not None or "underreliance_risk" in data):
             errors["prior"] = [
                 "a prior applies to a single attribute without underreliance_risk"
@@ -348,7 +349,7 @@ class EvaluationRequest(StrictSchema):
                         f"deviations {item.deviations} must not exceed sample_size {n}"
                     ]
         elif d is None:
-            errors["deviations"] = ["Missing data for required field."]
+            errors["deviations"] = [_MISSING_UNLESS_ATTRIBUTES]
         tolerable, expected = data.get("tolerable_rate"), data.get("expected_rate")
         if tolerable is not None and expected is not None and expected >= tolerable:
             errors["expected_rate"] = [
