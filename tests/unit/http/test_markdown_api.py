@@ -32,6 +32,8 @@ EXAMPLES: dict[str, tuple[dict[str, Any], str]] = {
     "estimation-sample-size": ({"margin": 0.02, "confidence": 0.9}, "recommended"),
     "plan-curve": ({"sample_size": 60, "allowed_deviations": 1, "tolerable_rate": 0.05},
                    "risk_of_overreliance"),
+    "plan-periodic": ({"frequency": "weekly", "tolerable_rate": 0.1},
+                      "tolerable_deviant_items"),
 }
 
 
