@@ -45,6 +45,7 @@ bench: $(VENV)/.installed
 	$(BIN)/python bench/tail_accuracy.py
 	$(BIN)/python bench/monetary_coverage.py
 	$(BIN)/python bench/bench_test_sheets.py
+	$(BIN)/python bench/bench_plans.py
 
 # Seconds of each wrk run of `make load` (20 runs, then one during which a worker is killed).
 LOAD_SECONDS ?= 10

@@ -58,6 +58,7 @@ OPERATION_PATHS = {
     "monetary-evaluation": "/v1/monetary/evaluation",
     "population-profile": "/v1/populations/profile",
     "population-stratified-selection": "/v1/populations/stratified-selection",
+    "plan-periodic": "/v1/plans/periodic",
     "batch": "/v1/batch",
 }
 
@@ -336,6 +337,9 @@ class SamplingClient:
     def monetary_evaluation(self, request: Body = None, /, **fields: Any) -> dict[str, Any]:
         """``POST /v1/monetary/evaluation``: misstatement limits by method, side by side."""
         return self.call("monetary-evaluation", {**(request or {}), **fields})
+    def plan_periodic(self, request: Body = None, /, **fields: Any) -> dict[str, Any]:
+        """``POST /v1/plans/periodic``: what the sample sizes of a periodic control prove."""
+        return self.call("plan-periodic", {**(request or {}), **fields})
 
     def batch(
         self,

@@ -115,7 +115,10 @@ def _header(path: str, header: list[str], specs: list[FieldSpec]) -> list[FieldS
             raise ControlsFileError(path, why, line=1, column=name or "(blank)")
         columns.append(spec)
     for spec in known.values():
-        if spec.required and len(spec.path) == 1 and spec.name not in names:
+        # A controls file carries no list, so a field required unless a list is given is
+        # required here.
+        needed = spec.required or spec.required_unless is not None
+        if needed and len(spec.path) == 1 and spec.name not in names:
             raise ControlsFileError(path, f"the header has no {spec.name} column, which is "
                                     "required", line=1)
     return columns
@@ -141,7 +144,7 @@ def _row(path: str, number: int, cells: list[str],
             raise ControlsFileError(path, str(problem), line=number, column=spec.name) from None
         filled.add(spec.path[:-1])
     for spec in columns:
-        if spec is None or not spec.required:
+        if spec is None or not (spec.required or spec.required_unless is not None):
             continue
         # A required field of a nested object is required only when the object is given.
         if (len(spec.path) == 1 or spec.path[:-1] in filled) and not _has(request, spec.path):

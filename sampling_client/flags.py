@@ -70,6 +70,9 @@ class FieldSpec:
     pair: tuple[str, str] = ("first", "last")
     # RECORDS: how each column of a record is read (a kind of this module, by field name).
     columns: tuple[tuple[str, str], ...] = ()
+    # A list field whose presence makes this one optional (``attributes`` for
+    # ``tolerable_rate``): where no list can be given, as in a controls file, it is required.
+    required_unless: str | None = None
 
     @property
     def name(self) -> str:
@@ -162,7 +165,8 @@ def field_specs(schema: Schema, prefix: tuple[str, ...] = ()) -> list[FieldSpec]
         default = field.load_default
         default = None if default is None or callable(default) or _is_missing(default) else default
         specs.append(FieldSpec(path, kind, field.required, _description(field),
-                               _choices(field), default))
+                               _choices(field), default,
+                               required_unless=field.metadata.get("required_unless")))
     return specs
 
 
@@ -354,6 +358,8 @@ def _help(spec: FieldSpec) -> str:
         parts.append("Required.")
     elif spec.required:
         parts.append(f"Required when {'.'.join(spec.path[:-1])} is given.")
+    elif spec.required_unless:
+        parts.append(f"Required unless --{spec.required_unless.replace('_', '-')} is given.")
     if spec.kind == NUMBERS:
         parts.append("Numbers, comma-separated or repeated.")
     elif spec.kind == CHOICES:

@@ -14,16 +14,24 @@ from marshmallow import (
 
 from schemas.common import IntervalSchema, PopulationSchema, ResultSchema, StrictSchema
 from schemas.fields import Rate, StrictFloat, StrictInteger, StrictString
+from schemas.plans import (
+    AttributeFindingsSchema,
+    AttributeRatesSchema,
+    PriorSchema,
+    attributes_field,
+    prior_answer_fields,
+    unique_names,
+)
 from service.sampling.attributes import MAX_CONFIDENCE, MIN_CONFIDENCE, MIN_TOLERABLE_RATE
 from service.sampling.distributions import MODELS
+from service.sampling.plans.wording import any_evaluation_summary, any_plan_summary
 from service.sampling.wording import (
     NEXT_STEPS,
     comparison_with_plan,
-    evaluation_summary,
-    plan_summary,
 )
 
 METHOD_NAMES = sorted(MODELS)
+_MISSING_UNLESS_ATTRIBUTES = "Missing data for required field (unless attributes is given)."
 
 _METHOD: dict[str, Any] = {
     "validate": validate.OneOf(METHOD_NAMES, error="must be one of {choices}"),
@@ -62,10 +70,11 @@ class SampleSizeRequest(StrictSchema):
         metadata={"description": "Absent for a population large enough to ignore its size."},
     )
     tolerable_rate = Rate(
-        required=True,
         metadata={
             "minimum": MIN_TOLERABLE_RATE,
-            "description": "Tolerable deviation rate, as a fraction.",
+            "required_unless": "attributes",
+            "description": "Tolerable deviation rate, as a fraction. Required unless "
+            "attributes is given.",
             "example": 0.05,
         },
     )
@@ -80,15 +89,57 @@ class SampleSizeRequest(StrictSchema):
     )
     confidence = _confidence()
     method = StrictString(**_METHOD)
+    attributes = attributes_field(
+        AttributeRatesSchema,
+        "Several attributes tested on one sample, each with its own rates (instead of "
+        "tolerable_rate and expected_rate): the answer is one sample size, the largest any "
+        "attribute needs, with each attribute's allowed deviations and risks at that size.",
+    )
+    underreliance_risk = Rate(
+        metadata={
+            "description": "Largest acceptable risk of underreliance at expected_rate "
+            "(optional): the plan is then the smallest sample and allowed deviations meeting "
+            "both this limit and the confidence.",
+            "example": 0.10,
+        },
+    )
+    prior = fields.Nested(
+        PriorSchema,
+        metadata={
+            "description": "Prior evidence (optional): sample_size is then the Bayesian plan, "
+            "the smallest n whose expected result gives a posterior probability of at least "
+            "confidence that the rate is at most tolerable_rate; classical_sample_size is "
+            "the plan without it."
+        },
+    )
 
-    @validates_schema
-    def _expected_below_tolerable(self, data: dict[str, Any], **kwargs: Any) -> None:
+    @validates_schema(pass_original=True)
+    def _consistent(
+        self, data: dict[str, Any], original: Any, **kwargs: Any
+    ) -> None:
+        errors: dict[str, list[str]] = {}
+        several = data.get("attributes")
+        if several is not None:
+            for name in ("tolerable_rate", "expected_rate", "underreliance_risk"):
+                if name in original:
+                    errors[name] = [
+                        "attributes carry their own rates; leave this field out when "
+                        "attributes is given"
+                    ]
+            unique_names(several, errors)
+        elif data.get("tolerable_rate") is None:
+            errors["tolerable_rate"] = [_MISSING_UNLESS_ATTRIBUTES]
+        if "prior" in data and (several is not None or "underreliance_risk" in data):
+            errors["prior"] = [
+                "a prior applies to a single attribute without underreliance_risk"
+            ]
         tolerable, expected = data.get("tolerable_rate"), data.get("expected_rate")
         if tolerable is not None and expected is not None and expected >= tolerable:
-            raise ValidationError(
-                f"expected_rate {expected!r} must be below tolerable_rate {tolerable!r}",
-                "expected_rate",
-            )
+            errors["expected_rate"] = [
+                f"expected_rate {expected!r} must be below tolerable_rate {tolerable!r}"
+            ]
+        if errors:
+            raise ValidationError(errors)
 
     @post_load
     def _to_core(self, data: dict[str, Any], **kwargs: Any) -> dict[str, Any]:
@@ -105,7 +156,17 @@ class SampleSizePlanSchema(ResultSchema):
     underreliance are this plan's. Send it with ``Accept: image/svg+xml`` for the chart.
     """
 
-    absent_when_none = ("population_label", "tolerable_deviant_items")
+    absent_when_none = (
+        "population_label",
+        "tolerable_deviant_items",
+        "underreliance_risk",
+        "classical_sample_size",
+        "classical_allowed_deviations",
+        "prior",
+        "posterior_probability",
+        "posterior_upper_limit",
+        "items_saved",
+    )
 
     sample_size = fields.Integer(required=True, metadata={"description": "Items to test."})
     allowed_deviations = fields.Integer(
@@ -149,8 +210,32 @@ class SampleSizePlanSchema(ResultSchema):
             "population holds at the tolerable rate. Present when population.size is given."
         }
     )
+    underreliance_risk = fields.Float(
+        metadata={
+            "description": "The limit on the risk of underreliance the plan was sized for, "
+            "when the request gave one."
+        }
+    )
+    classical_sample_size = fields.Integer(
+        metadata={
+            "description": "The plan allowing ceil(expected_rate × n) deviations, beside a "
+            "plan sized for both risks or with a prior."
+        }
+    )
+    classical_allowed_deviations = fields.Integer(
+        metadata={"description": "The deviations the classical plan allows."}
+    )
+    prior = prior_answer_fields()["prior"]
+    posterior_probability = prior_answer_fields()["posterior_probability"]
+    posterior_upper_limit = prior_answer_fields()["posterior_upper_limit"]
+    items_saved = fields.Integer(
+        metadata={
+            "description": "With a prior: classical_sample_size − sample_size (negative when "
+            "the prior asks for more items)."
+        }
+    )
     summary = fields.Function(
-        plan_summary,
+        any_plan_summary,
         required=True,
         metadata={"type": "string", "description": "Plain-English paragraph."},
     )
@@ -202,9 +287,12 @@ class EvaluationRequest(StrictSchema):
         metadata={"description": "Items tested.", "example": 60},
     )
     deviations = StrictInteger(
-        required=True,
         validate=validate.Range(min=0, error="must be at least {min}"),
-        metadata={"description": "Deviations found.", "example": 1},
+        metadata={
+            "required_unless": "attributes",
+            "description": "Deviations found. Required unless attributes is given.",
+            "example": 1,
+        },
     )
     confidence = _confidence()
     tolerable_rate = Rate(
@@ -225,11 +313,43 @@ class EvaluationRequest(StrictSchema):
         },
     )
     method = StrictString(**_METHOD)
+    attributes = attributes_field(
+        AttributeFindingsSchema,
+        "Several attributes tested on the same sample_size items, each with the deviations "
+        "found for it and its tolerable rate (instead of deviations and tolerable_rate): "
+        "each is evaluated on its own.",
+    )
+    prior = fields.Nested(
+        PriorSchema,
+        metadata={
+            "description": "Prior evidence (optional): the answer adds the posterior "
+            "probability that the rate is at most tolerable_rate and the posterior upper "
+            "limit, beside the classical evaluation."
+        },
+    )
 
     @validates_schema
     def _consistent(self, data: dict[str, Any], **kwargs: Any) -> None:
         n, d = data.get("sample_size"), data.get("deviations")
         errors: dict[str, list[str]] = {}
+        several = data.get("attributes")
+        if several is not None:
+            for name in ("deviations", "tolerable_rate", "expected_rate"):
+                if name in data:
+                    errors[name] = [
+                        "attributes carry their own findings and rates; leave this field out "
+                        "when attributes is given"
+                    ]
+            unique_names(several, errors)
+            if "prior" in data:
+                errors["prior"] = ["a prior applies to a single attribute"]
+            for index, item in enumerate(several):
+                if n is not None and item.deviations > n:
+                    errors[f"attributes[{index}].deviations"] = [
+                        f"deviations {item.deviations} must not exceed sample_size {n}"
+                    ]
+        elif d is None:
+            errors["deviations"] = [_MISSING_UNLESS_ATTRIBUTES]
         tolerable, expected = data.get("tolerable_rate"), data.get("expected_rate")
         if tolerable is not None and expected is not None and expected >= tolerable:
             errors["expected_rate"] = [
@@ -261,6 +381,9 @@ class EvaluationSchema(ResultSchema):
         "planned_allowed_deviations",
         "comparison_with_plan",
         "tolerable_deviant_items",
+        "prior",
+        "posterior_probability",
+        "posterior_upper_limit",
     )
 
     method = fields.String(required=True)
@@ -346,8 +469,11 @@ class EvaluationSchema(ResultSchema):
             "description": "Present only when tolerable_rate is given.",
         },
     )
+    prior = prior_answer_fields()["prior"]
+    posterior_probability = prior_answer_fields()["posterior_probability"]
+    posterior_upper_limit = prior_answer_fields()["posterior_upper_limit"]
     summary = fields.Function(
-        evaluation_summary,
+        any_evaluation_summary,
         required=True,
         metadata={"type": "string", "description": "Plain-English paragraph."},
     )

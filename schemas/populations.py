@@ -37,7 +37,7 @@ class _BoundedList(fields.List[Any]):
     """A JSON array refused at once when longer than ``longest``, before any entry is read;
     an array of strings is checked as a whole (one pass), as identifier lists are."""
 
-    def __init__(self, inner: fields.Field, *, longest: int, noun: str, **kwargs: Any) -> None:
+    def __init__(self, inner: fields.Field[Any], *, longest: int, noun: str, **kwargs: Any) -> None:
         self.longest, self.noun = longest, noun
         super().__init__(inner, **kwargs)
 

@@ -134,19 +134,6 @@ def _add_file_form(
         "SAMPLING_MAX_FILE_BYTES, 2 GiB by default); the part request holds the JSON request "
         "of this form, given by the schema named here.",
     )
-    either = f"{_schema_name(operation.response)}Answer"
-    spec.components.schema(
-        either,
-        component={
-            "description": f"{_schema_name(operation.response)} for a JSON request, "
-            f"{_schema_name(form.response)} for a multipart one.",
-            "oneOf": [
-                {"$ref": f"#/components/schemas/{_schema_name(operation.response)}"},
-                {"$ref": f"#/components/schemas/{_schema_name(form.response)}"},
-            ],
-        },
-    )
-    content["application/json"] = {"schema": {"$ref": f"#/components/schemas/{either}"}}
     for media_type in form.media_types[1:]:
         content.setdefault(media_type, {"schema": {"type": "string"}})
     return (
@@ -192,7 +179,10 @@ def build_spec() -> APISpec:
     )
 
     for operation in all_operations():
-        content: dict[str, Any] = {"application/json": {"schema": operation.response}}
+        answer: Any = operation.response
+        if operation.variants or operation.file_form is not None:
+            answer = _answer_component(spec, operation)
+        content: dict[str, Any] = {"application/json": {"schema": answer}}
         for media_type in operation.media_types[1:]:
             content[media_type] = {"schema": {"type": "string"}}
         if MARKDOWN in content and MARKDOWN not in operation.renderers:
@@ -270,6 +260,23 @@ def _service_get(
         operation["security"] = security
     operation["responses"] = responses
     spec.path(path=path, operations={"get": operation})
+
+
+def _answer_component(spec: APISpec, operation: Any) -> str:
+    """A component naming every answer of an operation that has variants or a file form
+    (its answers for a JSON request and for a multipart one), as ``oneOf``."""
+    refs = []
+    forms = [] if operation.file_form is None else [operation.file_form.response]
+    for schema in (operation.response, *operation.variants.values(), *forms):
+        name = _schema_name(schema)
+        if name not in spec.components.schemas:
+            spec.components.schema(name, schema=schema)
+        refs.append({"$ref": f"#/components/schemas/{name}"})
+    name = "".join(part.title() for part in operation.name.split("-")) + "Answer"
+    spec.components.schema(
+        name, {"oneOf": refs, "description": f"The answers of {operation.path}."}
+    )
+    return name
 
 
 def _schema_name(schema: Any) -> str:

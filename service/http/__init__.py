@@ -12,13 +12,14 @@ from service.http import (
     batch,
     estimation,
     monetary,
+    periodic,
     plans,
     populations,
     selection,
 )
 from service.http.operations import Operation
 
-RESOURCES = [attributes, estimation, plans, selection, populations, monetary, batch]
+RESOURCES = [attributes, estimation, plans, periodic, selection, populations, monetary, batch]
 
 
 def all_operations() -> list[Operation]:

@@ -15,6 +15,11 @@ from schemas.attributes import (
     SampleSizePlanSchema,
     SampleSizeRequest,
 )
+from schemas.plans import (
+    SeveralAttributesEvaluationSchema,
+    SeveralAttributesPlanSchema,
+    count_attributes,
+)
 from schemas.test_sheets import (
     TestSheetEvaluation,
     TestSheetEvaluationRequest,
@@ -27,16 +32,47 @@ from service.render.xlsx import XLSX
 from service.sampling.attributes import Evaluation, SampleSizePlan, evaluate_sample, size_sample
 from service.sampling.distributions import MODELS
 from service.sampling.errors import InvalidInput
+from service.sampling.plans.bayesian import evaluate_with_prior, size_with_prior
+from service.sampling.plans.multiple import (
+    SeveralAttributesEvaluation,
+    SeveralAttributesPlan,
+    evaluate_several,
+    size_several,
+)
+from service.sampling.plans.two_risks import size_two_risks
 from service.sampling.test_sheets.reading import read_test_sheet
 from service.sampling.test_sheets.results import evaluate_tally, tally_test_sheet
 from service.settings import Settings
 
 
-def _size(inputs: dict[str, Any], settings: Settings) -> SampleSizePlan:
+def _size(inputs: dict[str, Any], settings: Settings) -> SampleSizePlan | SeveralAttributesPlan:
+    several = inputs.pop("attributes", None)
+    if several is not None:
+        for name in ("tolerable_rate", "expected_rate"):
+            inputs.pop(name, None)
+        return size_several(several, **inputs, max_sample_size=settings.max_sample_size)
+    prior = inputs.pop("prior", None)
+    if prior is not None:
+        return size_with_prior(
+            prior=prior, **inputs, max_sample_size=settings.max_sample_size
+        )
+    limit = inputs.pop("underreliance_risk", None)
+    if limit is not None:
+        return size_two_risks(
+            **inputs, underreliance_risk=limit, max_sample_size=settings.max_sample_size
+        )
     return size_sample(**inputs, max_sample_size=settings.max_sample_size)
 
 
-def _evaluate(inputs: dict[str, Any], settings: Settings) -> Evaluation:
+def _evaluate(
+    inputs: dict[str, Any], settings: Settings
+) -> Evaluation | SeveralAttributesEvaluation:
+    several = inputs.pop("attributes", None)
+    if several is not None:
+        return evaluate_several(attributes=several, **inputs)
+    prior = inputs.pop("prior", None)
+    if prior is not None:
+        return evaluate_with_prior(prior=prior, **inputs)
     return evaluate_sample(**inputs)
 
 
@@ -77,19 +113,32 @@ OPERATIONS = [
         summary="Sample size for a test of controls",
         description=(
             "The smallest n such that, with k = ceil(expected_rate × n) deviations allowed, "
-            "P(X ≤ k) ≤ 1 − confidence when the true rate equals tolerable_rate."
+            "P(X ≤ k) ≤ 1 − confidence when the true rate equals tolerable_rate. With "
+            "underreliance_risk, the smallest n and the largest k meeting both that and "
+            "P(X > k) ≤ underreliance_risk at expected_rate. With attributes, one sample for "
+            "several attributes: the answer is then a SeveralAttributesPlan."
         ),
         request=SampleSizeRequest,
         response=SampleSizePlanSchema,
         run=_size,
         tag="tests of controls",
+        variants={SeveralAttributesPlan: SeveralAttributesPlanSchema},
+        precheck=count_attributes,
         ticket=TicketLayout(
             answer=(
                 "sample_size",
+                "governing_attribute",
                 "allowed_deviations",
                 "achieved_confidence",
                 "risk_of_overreliance",
                 "risk_of_underreliance",
+                "underreliance_risk",
+                "classical_sample_size",
+                "items_saved",
+                "posterior_probability",
+                "posterior_upper_limit",
+                "prior",
+                "attributes",
             ),
             method=model_method,
         ),
@@ -100,7 +149,9 @@ OPERATIONS = [
         summary="Evaluate the deviations found in a test of controls",
         description=(
             "Sample deviation rate, exact upper deviation limit, allowance for sampling risk, "
-            "two-sided interval and, when tolerable_rate is given, the conclusion."
+            "two-sided interval and, when tolerable_rate is given, the conclusion. With "
+            "attributes, each attribute of one sample is evaluated on its own: the answer is "
+            "then a SeveralAttributesEvaluation."
         ),
         request=EvaluationRequest,
         response=EvaluationSchema,
@@ -131,14 +182,20 @@ OPERATIONS = [
                 method=model_method,
             ),
         ),
+        variants={SeveralAttributesEvaluation: SeveralAttributesEvaluationSchema},
+        precheck=count_attributes,
         ticket=TicketLayout(
             answer=(
+                "attributes",
                 "sample_deviation_rate",
                 "upper_deviation_limit",
                 "allowance_for_sampling_risk",
                 "confidence_interval",
                 "risk_at_tolerable_rate",
                 "conclusion",
+                "posterior_probability",
+                "posterior_upper_limit",
+                "prior",
             ),
             method=model_method,
         ),

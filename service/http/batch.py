@@ -209,7 +209,7 @@ OPERATIONS = [
         summary="Answer several requests in one call",
         description=(
             "Each item names a single operation by its operationId (sample-size, "
-            "evaluation, selection, estimation-sample-size, plan-curve, "
+            "evaluation, selection, estimation-sample-size, plan-curve, plan-periodic, "
             "monetary-sample-size, monetary-selection, monetary-evaluation) and carries the "
             "body that endpoint takes. Items are validated and answered on their own, in "
             "order, under the same limits as single calls; each answer repeats the item's "

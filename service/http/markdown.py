@@ -56,6 +56,10 @@ RATE_FIELDS = frozenset({
     "upper_deviation_limit", "allowance_for_sampling_risk", "risk_at_tolerable_rate",
     "low", "high", "margin", "anticipated_rate", "miss_probability", "rate",
     "probability", "achieved_miss_probability",
+    "underreliance_risk", "posterior_probability", "posterior_upper_limit",
+    "confidence_against_1_deviant", "confidence_against_2_deviant",
+    "confidence_against_3_deviant", "upper_deviation_limit_if_none_found",
+    "achieved_confidence_at_tolerable",
 })
 # Coded values shown in words.
 CODE_WORDS = {

@@ -74,6 +74,9 @@ class Operation:
     # to the evaluation): its own request and response schemas, core call and renderers,
     # with accepts_file set. Plain JSON requests keep this operation's own form.
     file_form: Operation | None = None
+    # Other answers the operation gives: a core result of one of these types is dumped with
+    # its schema instead of ``response`` (the spec lists them all as ``oneOf``).
+    variants: Mapping[type, type[Schema]] = field(default_factory=dict)
 
     @cached_property
     def request_schema(self) -> Schema:
@@ -84,6 +87,13 @@ class Operation:
     @cached_property
     def response_schema(self) -> Schema:
         return self.response()
+
+    def schema_for(self, result: Any) -> Schema:
+        """The response schema that dumps ``result``."""
+        for kind, schema in self.variants.items():
+            if isinstance(result, kind):
+                return _instance(schema)
+        return self.response_schema
 
     @property
     def media_types(self) -> list[str]:
@@ -101,6 +111,16 @@ class Operation:
             return self.renderers[media_type](document, result)
         fields = tuple(self.request_schema.fields)
         return markdown.render(self.summary, self.ticket, payload, document, fields)
+
+
+_SCHEMAS: dict[type[Schema], Schema] = {}
+
+
+def _instance(schema: type[Schema]) -> Schema:
+    """One instance per schema class and process, as for ``Operation.response_schema``."""
+    if schema not in _SCHEMAS:
+        _SCHEMAS[schema] = schema()
+    return _SCHEMAS[schema]
 
 
 def _is_json(mimetype: str) -> bool:
@@ -187,7 +207,7 @@ def run(
         result = operation.run(inputs, settings)
     except SamplingError as exc:
         raise from_sampling_error(exc) from None
-    document: dict[str, Any] = operation.response_schema.dump(result)
+    document: dict[str, Any] = operation.schema_for(result).dump(result)
     return document, result
 
 

@@ -111,6 +111,16 @@ HAPPY = [
       "population": {"size": 1000, "label": "PO-41000 to PO-41999"}}),
     ("/v1/evaluation", {"sample_size": 30, "deviations": 30, "method": "poisson"}),
     ("/v1/evaluation", {"sample_size": 50, "deviations": 0, "population": {"size": 50}}),
+    ("/v1/sample-size", {"attributes": [{"name": "approval", "tolerable_rate": 0.05},
+                                        {"name": "amount", "tolerable_rate": 0.06,
+                                         "expected_rate": 0.01}]}),
+    ("/v1/sample-size", {"tolerable_rate": 0.05, "expected_rate": 0.01,
+                         "underreliance_risk": 0.1}),
+    ("/v1/evaluation", {"sample_size": 60, "population": {"size": 900},
+                        "attributes": [{"name": "approval", "deviations": 0,
+                                        "tolerable_rate": 0.05}]}),
+    ("/v1/plans/periodic", {"frequency": "quarterly", "tolerable_rate": 0.2}),
+    ("/v1/sample-size", {"tolerable_rate": 0.05, "prior": {"type": "uniform"}}),
 ]
 
 

@@ -72,16 +72,18 @@ def test_a_call_can_give_its_own_timeout_and_request_id() -> None:
 
 
 def test_every_endpoint_method_goes_to_its_path() -> None:
-    client, session, _ = client_with(*[(200, {}, None)] * 6)
+    client, session, _ = client_with(*[(200, {}, None)] * 7)
     client.sample_size({"tolerable_rate": 0.05})
     client.evaluation(sample_size=60, deviations=0)
     client.selection(population={"size": 10}, sample_size=2)
     client.estimation_sample_size(margin=0.05)
     client.plan_curve(sample_size=59, allowed_deviations=0)
+    client.plan_periodic(frequency="monthly", tolerable_rate=0.1)
     client.batch([])
     paths = [call["url"].removeprefix(URL) for call in session.calls]
     assert paths == ["/v1/sample-size", "/v1/evaluation", "/v1/selection",
-                     "/v1/estimation/sample-size", "/v1/plans/curve", "/v1/batch"]
+                     "/v1/estimation/sample-size", "/v1/plans/curve", "/v1/plans/periodic",
+                     "/v1/batch"]
 
 
 def test_the_request_argument_and_keyword_fields_are_merged() -> None:

@@ -37,12 +37,20 @@ def body(operation: str, *argv: str) -> dict[str, Any]:
 def test_sample_size_fields_become_flags_with_their_descriptions() -> None:
     specs = by_name(SampleSizeRequest())
     assert list(specs) == ["population_size", "population_label", "tolerable_rate",
-                           "expected_rate", "confidence", "method"]
+                           "expected_rate", "confidence", "method", "attributes",
+                           "underreliance_risk", "prior_type", "prior_expected_rate",
+                           "prior_strength", "prior_sample_size", "prior_deviations",
+                           "prior_weight"]
     assert specs["population_size"].flag == "--population-size"
     assert specs["population_size"].dotted == "population.size"
     assert specs["tolerable_rate"].kind == flags.NUMBER
-    assert specs["tolerable_rate"].required
-    assert specs["tolerable_rate"].description == "Tolerable deviation rate, as a fraction."
+    # Required unless attributes is given (always, in a controls file).
+    assert not specs["tolerable_rate"].required
+    assert specs["tolerable_rate"].required_unless == "attributes"
+    assert specs["tolerable_rate"].description.startswith(
+        "Tolerable deviation rate, as a fraction.")
+    assert specs["attributes"].kind == flags.RECORDS  # JSON text, or a CSV file of them
+    assert specs["underreliance_risk"].kind == flags.NUMBER
     assert specs["confidence"].default == 0.95
     assert specs["method"].choices == ("binomial", "hypergeometric", "poisson")
 
@@ -267,3 +275,28 @@ def test_a_bad_records_cell_names_line_and_column(tmp_path: Path) -> None:
 def test_records_as_json_text() -> None:
     assert body("monetary-selection", "--population", '[{"id": "A", "amount": "1.10"}]') == {
         "population": [{"id": "A", "amount": "1.10"}]}
+
+
+def test_attributes_prior_and_underreliance_risk_reach_the_command_line() -> None:
+    assert body("sample-size", "--attributes",
+                '[{"name": "approval", "tolerable_rate": 0.05}]') == {
+        "attributes": [{"name": "approval", "tolerable_rate": 0.05}]}
+    assert body("sample-size", "--tolerable-rate", "0.05", "--expected-rate", "0.01",
+                "--underreliance-risk", "0.1") == {
+        "tolerable_rate": 0.05, "expected_rate": 0.01, "underreliance_risk": 0.1}
+    assert body("evaluation", "--sample-size", "60", "--deviations", "1",
+                "--prior-type", "previous_sample", "--prior-sample-size", "80",
+                "--prior-deviations", "0", "--prior-weight", "0.5") == {
+        "sample_size": 60, "deviations": 1,
+        "prior": {"type": "previous_sample", "sample_size": 80, "deviations": 0, "weight": 0.5}}
+    assert body("evaluation", "--sample-size", "60", "--attributes",
+                '[{"name": "a", "deviations": 0, "tolerable_rate": 0.05}]') == {
+        "sample_size": 60, "attributes": [{"name": "a", "deviations": 0, "tolerable_rate": 0.05}]}
+
+
+def test_periodic_plans_reach_the_command_line() -> None:
+    assert body("plan-periodic", "--frequency", "monthly", "--tolerable-rate", "0.1",
+                "--occurrences", "13", "--common-practice-low", "2",
+                "--common-practice-high", "4") == {
+        "frequency": "monthly", "tolerable_rate": 0.1, "occurrences": 13,
+        "common_practice": {"low": 2, "high": 4}}

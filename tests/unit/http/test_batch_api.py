@@ -24,6 +24,7 @@ GOOD = {
     "monetary-selection": {"population": [{"id": "KV-1", "amount": 10.5}], "sample_size": 1,
                            "seed": "fictional-1"},
     "monetary-evaluation": {"book_value": "600000.00", "sample_size": 60},
+    "plan-periodic": {"frequency": "monthly", "tolerable_rate": 0.1},
 }
 EVAL = {"sample_size": 60, "deviations": 0}
 SINGLE = {

@@ -34,6 +34,7 @@ ORDINARY: dict[str, dict[str, Any]] = {
     "/v1/evaluation": {"sample_size": 60, "deviations": 1},
     "/v1/estimation/sample-size": {"margin": 0.05},
     "/v1/plans/curve": {"sample_size": 60, "allowed_deviations": 1},
+    "/v1/plans/periodic": {"frequency": "monthly", "tolerable_rate": 0.1},
     "/v1/selection": {"population": {"size": 1000}, "sample_size": 10, "seed": "hostile"},
     "/v1/monetary/sample-size": {"book_value": "2500000.00", "tolerable_misstatement": 125000},
     "/v1/monetary/selection": {"population": [{"id": "KV-1", "amount": "10.50"}],

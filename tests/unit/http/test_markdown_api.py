@@ -39,6 +39,8 @@ EXAMPLES: dict[str, tuple[dict[str, Any], str]] = {
                             "sample_size": 1, "seed": "fictional-1"},
                            "selection_fingerprint"),
     "monetary-evaluation": ({"book_value": "600000.00", "sample_size": 60}, "sample_size"),
+    "plan-periodic": ({"frequency": "weekly", "tolerable_rate": 0.1},
+                      "tolerable_deviant_items"),
 }
 
 
