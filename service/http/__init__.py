@@ -7,10 +7,10 @@ is a new :class:`~service.http.operations.Operation` in one of them.
 
 from __future__ import annotations
 
-from service.http import attributes, batch, estimation, plans, selection
+from service.http import attributes, batch, estimation, plans, selection, sequential
 from service.http.operations import Operation
 
-RESOURCES = [attributes, estimation, plans, selection, batch]
+RESOURCES = [attributes, estimation, plans, sequential, selection, batch]
 
 
 def all_operations() -> list[Operation]:

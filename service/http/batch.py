@@ -208,7 +208,8 @@ OPERATIONS = [
         summary="Answer several requests in one call",
         description=(
             "Each item names a single operation by its operationId (sample-size, "
-            "evaluation, selection, estimation-sample-size, plan-curve) and carries the "
+            "evaluation, selection, estimation-sample-size, plan-curve, staged-plan, "
+            "staged-evaluation) and carries the "
             "body that endpoint takes. Items are validated and answered on their own, in "
             "order, under the same limits as single calls; each answer repeats the item's "
             "id with the status the single endpoint would have given and either its result "

@@ -56,6 +56,7 @@ RATE_FIELDS = frozenset({
     "upper_deviation_limit", "allowance_for_sampling_risk", "risk_at_tolerable_rate",
     "low", "high", "margin", "anticipated_rate", "miss_probability", "rate",
     "probability", "achieved_miss_probability",
+    "plan_risk_of_overreliance", "fixed_risk_of_underreliance",
 })
 # Coded values shown in words.
 CODE_WORDS = {

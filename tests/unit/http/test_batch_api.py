@@ -20,6 +20,12 @@ GOOD = {
     "selection": {"population": {"size": 500}, "sample_size": 5, "seed": "fictional-1"},
     "estimation-sample-size": {"margin": 0.05},
     "plan-curve": {"sample_size": 60, "allowed_deviations": 1},
+    "staged-plan": {"tolerable_rate": 0.05, "expected_rate": 0.01},
+    "staged-evaluation": {
+        "stages": [
+            {"cumulative_sample_size": 66, "accept_if_at_most": 0, "fail_if_at_least": 2},
+            {"cumulative_sample_size": 135, "accept_if_at_most": 2, "fail_if_at_least": 3}],
+        "stage_reached": 1, "deviations": 0, "tolerable_rate": 0.05},
 }
 EVAL = {"sample_size": 60, "deviations": 0}
 SINGLE = {op.name: op for op in all_operations() if op.name != "batch"}

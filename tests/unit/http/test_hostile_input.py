@@ -35,6 +35,11 @@ ORDINARY: dict[str, dict[str, Any]] = {
     "/v1/estimation/sample-size": {"margin": 0.05},
     "/v1/plans/curve": {"sample_size": 60, "allowed_deviations": 1},
     "/v1/selection": {"population": {"size": 1000}, "sample_size": 10, "seed": "hostile"},
+    "/v1/plans/staged": {"tolerable_rate": 0.05},
+    "/v1/plans/staged/evaluation": {
+        "stages": [{"cumulative_sample_size": 59, "accept_if_at_most": 0, "fail_if_at_least": 1}],
+        "stage_reached": 1, "deviations": 0, "tolerable_rate": 0.05,
+    },
     "/v1/batch": {
         "operations": [{"id": "a", "operation": "sample-size", "request": {"tolerable_rate": 0.05}}]
     },

@@ -32,6 +32,14 @@ EXAMPLES: dict[str, tuple[dict[str, Any], str]] = {
     "estimation-sample-size": ({"margin": 0.02, "confidence": 0.9}, "recommended"),
     "plan-curve": ({"sample_size": 60, "allowed_deviations": 1, "tolerable_rate": 0.05},
                    "risk_of_overreliance"),
+    "staged-plan": ({"tolerable_rate": 0.05, "expected_rate": 0.01}, "risk_of_overreliance"),
+    "staged-evaluation": (
+        {"stages": [
+            {"cumulative_sample_size": 66, "accept_if_at_most": 0, "fail_if_at_least": 2},
+            {"cumulative_sample_size": 135, "accept_if_at_most": 2, "fail_if_at_least": 3}],
+         "stage_reached": 2, "deviations": 2, "tolerable_rate": 0.05},
+        "plan_risk_of_overreliance",
+    ),
 }
 
 

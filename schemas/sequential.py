@@ -1,0 +1,254 @@
+"""Contract of the staged, sequential and stratified endpoints."""
+
+from __future__ import annotations
+
+from typing import Any
+
+from marshmallow import Schema, ValidationError, fields, post_load, validate, validates_schema
+
+from schemas.attributes import METHOD_NAMES, _confidence, _flatten_population
+from schemas.common import PopulationSchema, ResultSchema, StrictSchema
+from schemas.fields import Rate, StrictInteger, StrictString
+from service.sampling.attributes import MIN_TOLERABLE_RATE
+from service.sampling.sequential.staged import MAX_STAGES, MIN_STAGES, Stage
+from service.sampling.sequential.wording import staged_evaluation_summary, staged_plan_summary
+
+_METHOD: dict[str, Any] = {
+    "validate": validate.OneOf(METHOD_NAMES, error="must be one of {choices}"),
+    "metadata": {
+        "description": "Distribution used: hypergeometric (finite population, without "
+        "replacement across stages), binomial, or poisson. Default: hypergeometric when "
+        "population.size is given, else binomial."
+    },
+}
+
+
+def _tolerable(description: str) -> Rate:
+    return Rate(
+        required=True,
+        metadata={"minimum": MIN_TOLERABLE_RATE, "description": description, "example": 0.05},
+    )
+
+
+class StagedPlanRequest(StrictSchema):
+    """A staged (stop-or-go) plan for a test of controls."""
+
+    population = fields.Nested(
+        PopulationSchema,
+        metadata={"description": "Absent for a population large enough to ignore its size."},
+    )
+    tolerable_rate = _tolerable("Tolerable deviation rate, as a fraction.")
+    expected_rate = Rate(
+        allow_zero=True,
+        load_default=0.0,
+        metadata={
+            "description": "Expected population deviation rate, as a fraction, below "
+            "tolerable_rate: the expected sample size is minimised at this rate.",
+            "example": 0.01,
+        },
+    )
+    confidence = _confidence()
+    method = StrictString(**_METHOD)
+    max_stages = StrictInteger(
+        load_default=2,
+        validate=validate.Range(
+            min=MIN_STAGES, max=MAX_STAGES, error="must be from {min} to {max}"
+        ),
+        metadata={"description": "Most stages the plan may have: 2 or 3.", "example": 2},
+    )
+
+    @validates_schema
+    def _expected_below_tolerable(self, data: dict[str, Any], **kwargs: Any) -> None:
+        tolerable, expected = data.get("tolerable_rate"), data.get("expected_rate")
+        if tolerable is not None and expected is not None and expected >= tolerable:
+            raise ValidationError(
+                f"expected_rate {expected!r} must be below tolerable_rate {tolerable!r}",
+                "expected_rate",
+            )
+
+    @post_load
+    def _to_core(self, data: dict[str, Any], **kwargs: Any) -> dict[str, Any]:
+        return _flatten_population(data)
+
+
+class StageSchema(StrictSchema):
+    """One stage of a staged plan; counts are cumulative over the stages."""
+
+    cumulative_sample_size = StrictInteger(
+        required=True,
+        validate=validate.Range(min=1, error="must be at least {min}"),
+        metadata={"description": "Items tested by the end of this stage, in all.", "example": 66},
+    )
+    accept_if_at_most = StrictInteger(
+        required=True,
+        validate=validate.Range(min=-1, error="must be at least {min}"),
+        metadata={
+            "description": "Accept when the deviations found so far are at most this "
+            "(-1: never accept at this stage).",
+            "example": 0,
+        },
+    )
+    fail_if_at_least = StrictInteger(
+        required=True,
+        validate=validate.Range(min=0, error="must be at least {min}"),
+        metadata={
+            "description": "Fail when the deviations found so far are at least this; in "
+            "between, extend to the next stage. At the last stage, accept_if_at_most + 1.",
+            "example": 2,
+        },
+    )
+
+    @post_load
+    def _to_core(self, data: dict[str, Any], **kwargs: Any) -> Stage:
+        return Stage(**data)
+
+
+class StageOut(Schema):
+    cumulative_sample_size = fields.Integer(required=True)
+    accept_if_at_most = fields.Integer(required=True)
+    fail_if_at_least = fields.Integer(required=True)
+
+
+class StagedPlanSchema(ResultSchema):
+    """A staged plan with its exact risks, beside the fixed-size plan for the same inputs."""
+
+    absent_when_none = ("population_label",)
+
+    stages = fields.List(fields.Nested(StageOut), required=True)
+    method = fields.String(required=True)
+    tolerable_rate = fields.Float(required=True)
+    expected_rate = fields.Float(required=True)
+    confidence = fields.Float(required=True)
+    max_stages = fields.Integer(required=True)
+    population_size = fields.Integer(required=True, allow_none=True)
+    population_label = fields.String()
+    risk_of_overreliance = fields.Float(
+        required=True,
+        metadata={
+            "description": "Exact probability that the plan accepts when the true rate is the "
+            "tolerable rate, over every stage."
+        },
+    )
+    achieved_confidence = fields.Float(required=True)
+    risk_of_underreliance = fields.Float(
+        required=True,
+        metadata={"description": "Exact probability that the plan fails at the expected rate."},
+    )
+    expected_sample_size_at_expected_rate = fields.Float(required=True)
+    expected_sample_size_at_tolerable_rate = fields.Float(required=True)
+    largest_sample_size = fields.Integer(required=True)
+    fixed_sample_size = fields.Integer(
+        required=True, metadata={"description": "Size of the fixed-size plan (/v1/sample-size)."}
+    )
+    fixed_allowed_deviations = fields.Integer(required=True)
+    fixed_risk_of_underreliance = fields.Float(required=True)
+    plans_examined = fields.Integer(
+        required=True, metadata={"description": "Candidate plans the bounded search examined."}
+    )
+    summary = fields.Function(
+        staged_plan_summary,
+        required=True,
+        metadata={"type": "string", "description": "Plain-English paragraph."},
+    )
+    warnings = fields.List(fields.String(), required=True)
+
+
+class StagedEvaluationRequest(StrictSchema):
+    """A finished staged test: the plan as run, where it stopped and what it found."""
+
+    population = fields.Nested(PopulationSchema)
+    stages = fields.List(
+        fields.Nested(StageSchema),
+        required=True,
+        validate=validate.Length(
+            min=1, max=MAX_STAGES, error="must hold from {min} to {max} stages"
+        ),
+        metadata={"description": "The plan as run (the stages of /v1/plans/staged)."},
+    )
+    stage_reached = StrictInteger(
+        required=True,
+        validate=validate.Range(min=1, error="must be at least {min}"),
+        metadata={"description": "Stage (from 1) at which the test stopped.", "example": 2},
+    )
+    deviations = StrictInteger(
+        required=True,
+        validate=validate.Range(min=0, error="must be at least {min}"),
+        metadata={"description": "Deviations found up to that stage, in all.", "example": 2},
+    )
+    tolerable_rate = _tolerable("Tolerable deviation rate, as a fraction.")
+    confidence = _confidence()
+    method = StrictString(**_METHOD)
+
+    @post_load
+    def _to_core(self, data: dict[str, Any], **kwargs: Any) -> dict[str, Any]:
+        return _flatten_population(data)
+
+
+class StagedEvaluationSchema(ResultSchema):
+    """A finished staged test, evaluated with the plan's own exact probabilities."""
+
+    absent_when_none = ("population_label",)
+
+    method = fields.String(required=True)
+    stages = fields.List(fields.Nested(StageOut), required=True)
+    stage_reached = fields.Integer(required=True)
+    sample_size = fields.Integer(
+        required=True, metadata={"description": "Items tested by the stage reached."}
+    )
+    deviations = fields.Integer(required=True)
+    confidence = fields.Float(required=True)
+    tolerable_rate = fields.Float(required=True)
+    population_size = fields.Integer(required=True, allow_none=True)
+    population_label = fields.String()
+    decision = fields.String(required=True, metadata={"enum": ["accept", "fail"]})
+    conclusion = fields.Function(
+        lambda r: "supports_reliance" if r.supports_reliance else "does_not_support_reliance",
+        required=True,
+        metadata={"type": "string", "enum": ["supports_reliance", "does_not_support_reliance"]},
+    )
+    plan_risk_of_overreliance = fields.Float(
+        required=True,
+        metadata={"description": "Exact probability that the plan accepts at the tolerable rate."},
+    )
+    risk_at_tolerable_rate = fields.Float(
+        required=True,
+        metadata={
+            "description": "Probability, at the tolerable rate, of an outcome at most as "
+            "unfavourable as the one observed (stage-wise ordering)."
+        },
+    )
+    sample_deviation_rate = fields.Float(required=True)
+    upper_deviation_limit = fields.Float(
+        required=True,
+        metadata={
+            "description": "Exact one-sided upper confidence bound from the staged test's own "
+            "probabilities (stage-wise ordering)."
+        },
+    )
+    fixed_size_formula = fields.Function(
+        lambda r: {
+            "upper_deviation_limit": r.fixed_size_upper_deviation_limit,
+            "risk_at_tolerable_rate": r.fixed_size_risk_at_tolerable_rate,
+            "supports_reliance": r.fixed_size_supports_reliance,
+        },
+        required=True,
+        metadata={
+            "type": "object",
+            "description": "For comparison only: the fixed-size formula applied to the items "
+            "tested, as if the sample size had been fixed in advance. Not valid for a staged "
+            "test.",
+            "properties": {
+                "upper_deviation_limit": {"type": "number"},
+                "risk_at_tolerable_rate": {"type": "number"},
+                "supports_reliance": {"type": "boolean"},
+            },
+            "required": ["upper_deviation_limit", "risk_at_tolerable_rate", "supports_reliance"],
+            "additionalProperties": False,
+        },
+    )
+    summary = fields.Function(
+        staged_evaluation_summary,
+        required=True,
+        metadata={"type": "string", "description": "Plain-English paragraph."},
+    )
+    warnings = fields.List(fields.String(), required=True)

@@ -1,0 +1,110 @@
+"""Staged plans and their evaluation: ``POST /v1/plans/staged`` and
+``POST /v1/plans/staged/evaluation``."""
+
+from __future__ import annotations
+
+from collections.abc import Mapping
+from typing import Any
+
+from schemas.sequential import (
+    StagedEvaluationRequest,
+    StagedEvaluationSchema,
+    StagedPlanRequest,
+    StagedPlanSchema,
+)
+from service.http.attributes import model_method
+from service.http.markdown import TicketLayout
+from service.http.operations import Operation, blueprint
+from service.sampling.errors import InvalidInput
+from service.sampling.sequential.staged import (
+    MAX_STAGES,
+    StagedEvaluation,
+    StagedPlan,
+    evaluate_staged,
+    plan_staged,
+)
+from service.settings import Settings
+
+
+def _plan(inputs: dict[str, Any], settings: Settings) -> StagedPlan:
+    return plan_staged(**inputs, max_sample_size=settings.max_sample_size)
+
+
+def _evaluate(inputs: dict[str, Any], settings: Settings) -> StagedEvaluation:
+    return evaluate_staged(**inputs)
+
+
+def _count_stages(payload: Any, settings: Settings) -> None:
+    """Refuse an over-long stage list before each stage is validated."""
+    stages = payload.get("stages") if isinstance(payload, dict) else None
+    if isinstance(stages, list) and len(stages) > MAX_STAGES:
+        raise InvalidInput(
+            "stages", f"stages holds {len(stages):,} stages; at most {MAX_STAGES}"
+        )
+
+
+def _staged_method(document: Mapping[str, Any]) -> str:
+    return (
+        "staged (stop-or-go) plan, exact probabilities by convolution over the stages "
+        f"(Dodge & Romig 1959); {model_method(document)}"
+    )
+
+
+OPERATIONS = [
+    Operation(
+        name="staged-plan",
+        path="/v1/plans/staged",
+        summary="Staged (stop-or-go) plan for a test of controls",
+        description=(
+            "The plan of at most max_stages stages with the smallest expected sample size at "
+            "expected_rate, subject to an exact risk of overreliance of at most "
+            "1 − confidence at tolerable_rate and a risk of underreliance no larger than the "
+            "fixed-size plan's. Each stage gives the cumulative sample size and the "
+            "cumulative deviation counts that accept or fail; in between, extend. The search "
+            "is bounded (see the README)."
+        ),
+        request=StagedPlanRequest,
+        response=StagedPlanSchema,
+        run=_plan,
+        tag="tests of controls",
+        ticket=TicketLayout(
+            answer=(
+                "stages",
+                "risk_of_overreliance",
+                "risk_of_underreliance",
+                "expected_sample_size_at_expected_rate",
+                "expected_sample_size_at_tolerable_rate",
+                "fixed_sample_size",
+            ),
+            method=_staged_method,
+        ),
+    ),
+    Operation(
+        name="staged-evaluation",
+        path="/v1/plans/staged/evaluation",
+        summary="Evaluate a finished staged test of controls",
+        description=(
+            "The plan's decision at the stage reached, its exact risk of overreliance and "
+            "the upper deviation limit from the staged test's own probabilities (stage-wise "
+            "ordering), beside the fixed-size formula for comparison only."
+        ),
+        request=StagedEvaluationRequest,
+        response=StagedEvaluationSchema,
+        run=_evaluate,
+        precheck=_count_stages,
+        tag="tests of controls",
+        ticket=TicketLayout(
+            answer=(
+                "decision",
+                "conclusion",
+                "plan_risk_of_overreliance",
+                "upper_deviation_limit",
+                "risk_at_tolerable_rate",
+                "fixed_size_formula",
+            ),
+            method=_staged_method,
+        ),
+    ),
+]
+
+bp = blueprint("sequential", OPERATIONS)

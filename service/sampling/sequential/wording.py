@@ -1,0 +1,69 @@
+"""Plain-English summaries of staged plans, confidence sequences and strata.
+
+Each summary ends with the service's caution (:data:`service.sampling.wording.CAUTION`).
+"""
+
+from __future__ import annotations
+
+from service.sampling.sequential.staged import StagedEvaluation, StagedPlan
+from service.sampling.wording import CAUTION, percent
+
+
+def _items(count: int) -> str:
+    return f"{count:,} item" + ("" if count == 1 else "s")
+
+
+def _stage_sentence(index: int, stage_size: int, accept: int, fail: int, last: bool) -> str:
+    if last:
+        return (
+            f"Stage {index}: test up to {_items(stage_size)} in all; accept with at most "
+            f"{accept:,} deviations in all, otherwise fail."
+        )
+    accept_text = (
+        "never accept here" if accept < 0 else f"accept with at most {accept:,} deviations"
+    )
+    return (
+        f"Stage {index}: test {_items(stage_size)} in all; {accept_text}, fail with "
+        f"{fail:,} or more, otherwise extend."
+    )
+
+
+def staged_plan_summary(plan: StagedPlan) -> str:
+    """One paragraph describing a staged plan and what it saves."""
+    stages = " ".join(
+        _stage_sentence(
+            j + 1, s.cumulative_sample_size, s.accept_if_at_most, s.fail_if_at_least,
+            j == len(plan.stages) - 1,
+        )
+        for j, s in enumerate(plan.stages)
+    )
+    return (
+        f"{stages} Exact risk of overreliance at the tolerable rate of "
+        f"{percent(plan.tolerable_rate)}: {percent(plan.risk_of_overreliance)} "
+        f"({plan.method} model, computed over every stage). At the expected rate of "
+        f"{percent(plan.expected_rate)} the plan tests "
+        f"{plan.expected_sample_size_at_expected_rate:,.1f} items on average, against "
+        f"{_items(plan.fixed_sample_size)} for the fixed-size plan, and fails with "
+        f"probability {percent(plan.risk_of_underreliance)} (fixed-size plan: "
+        f"{percent(plan.fixed_risk_of_underreliance)}). Evaluate the result with this "
+        f"plan's own probabilities, not the fixed-size formula. {CAUTION}"
+    )
+
+
+def staged_evaluation_summary(result: StagedEvaluation) -> str:
+    """One paragraph on a finished staged test."""
+    verdict = (
+        "supports reliance on the control as tested"
+        if result.supports_reliance
+        else "does not support reliance on the control as tested"
+    )
+    return (
+        f"The test stopped at stage {result.stage_reached} with {result.deviations:,} "
+        f"deviations in {_items(result.sample_size)}: the plan says {result.decision}, which "
+        f"{verdict}. The plan's exact risk of overreliance is "
+        f"{percent(result.plan_risk_of_overreliance)}; the upper deviation limit, from the "
+        f"staged test's own probabilities, is {percent(result.upper_deviation_limit)}. The "
+        f"fixed-size formula for {_items(result.sample_size)} would give "
+        f"{percent(result.fixed_size_upper_deviation_limit)}, which ignores that the sample "
+        f"grew with the deviations found. {CAUTION}"
+    )
