@@ -53,6 +53,9 @@ OPERATION_PATHS = {
     "selection": "/v1/selection",
     "estimation-sample-size": "/v1/estimation/sample-size",
     "plan-curve": "/v1/plans/curve",
+    "staged-plan": "/v1/plans/staged",
+    "staged-evaluation": "/v1/plans/staged/evaluation",
+    "staged-curve": "/v1/plans/staged/curve",
     "batch": "/v1/batch",
 }
 
@@ -312,6 +315,18 @@ class SamplingClient:
     def plan_curve_svg(self, request: Body = None, /, **fields: Any) -> str:
         """``POST /v1/plans/curve`` as an SVG chart."""
         return self.call_text("plan-curve", {**(request or {}), **fields}, SVG)
+
+    def staged_plan(self, request: Body = None, /, **fields: Any) -> dict[str, Any]:
+        """``POST /v1/plans/staged``: a staged (stop-or-go) plan with its exact risks."""
+        return self.call("staged-plan", {**(request or {}), **fields})
+
+    def staged_evaluation(self, request: Body = None, /, **fields: Any) -> dict[str, Any]:
+        """``POST /v1/plans/staged/evaluation``: a finished staged test, evaluated."""
+        return self.call("staged-evaluation", {**(request or {}), **fields})
+
+    def staged_curve(self, request: Body = None, /, **fields: Any) -> dict[str, Any]:
+        """``POST /v1/plans/staged/curve``: acceptance and expected size against the rate."""
+        return self.call("staged-curve", {**(request or {}), **fields})
 
     def batch(
         self,

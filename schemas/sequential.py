@@ -10,8 +10,15 @@ from schemas.attributes import METHOD_NAMES, _confidence, _flatten_population
 from schemas.common import PopulationSchema, ResultSchema, StrictSchema
 from schemas.fields import Rate, StrictInteger, StrictString
 from service.sampling.attributes import MIN_TOLERABLE_RATE
+from service.sampling.sequential.curve import DEFAULT_POINTS as CURVE_DEFAULT_POINTS
+from service.sampling.sequential.curve import MAX_POINTS as CURVE_MAX_POINTS
+from service.sampling.sequential.curve import MIN_POINTS as CURVE_MIN_POINTS
 from service.sampling.sequential.staged import MAX_STAGES, MIN_STAGES, Stage
-from service.sampling.sequential.wording import staged_evaluation_summary, staged_plan_summary
+from service.sampling.sequential.wording import (
+    staged_curve_summary,
+    staged_evaluation_summary,
+    staged_plan_summary,
+)
 
 _METHOD: dict[str, Any] = {
     "validate": validate.OneOf(METHOD_NAMES, error="must be one of {choices}"),
@@ -252,3 +259,84 @@ class StagedEvaluationSchema(ResultSchema):
         metadata={"type": "string", "description": "Plain-English paragraph."},
     )
     warnings = fields.List(fields.String(), required=True)
+
+
+class StagedCurveRequest(StrictSchema):
+    """A staged plan whose curve is asked for (the stages of /v1/plans/staged)."""
+
+    population = fields.Nested(PopulationSchema)
+    stages = fields.List(
+        fields.Nested(StageSchema),
+        required=True,
+        validate=validate.Length(
+            min=1, max=MAX_STAGES, error="must hold from {min} to {max} stages"
+        ),
+        metadata={"description": "The plan's stages, as /v1/plans/staged returns them."},
+    )
+    method = StrictString(**_METHOD)
+    tolerable_rate = Rate(
+        metadata={
+            "minimum": MIN_TOLERABLE_RATE,
+            "description": "When given, the risk of overreliance at this rate is reported.",
+            "example": 0.05,
+        }
+    )
+    expected_rate = Rate(
+        allow_zero=True,
+        metadata={
+            "description": "When given, the risk of underreliance at this rate is reported.",
+            "example": 0.01,
+        },
+    )
+    points = StrictInteger(
+        load_default=CURVE_DEFAULT_POINTS,
+        validate=validate.Range(
+            min=CURVE_MIN_POINTS, max=CURVE_MAX_POINTS, error="must be from {min} to {max}"
+        ),
+        metadata={"description": "Evenly spaced rates on the curve, from 0."},
+    )
+
+    @post_load
+    def _to_core(self, data: dict[str, Any], **kwargs: Any) -> dict[str, Any]:
+        data = _flatten_population(data)
+        data.pop("population_label", None)
+        return data
+
+
+class StagedCurvePointSchema(Schema):
+    rate = fields.Float(required=True)
+    acceptance_probability = fields.Float(
+        required=True, metadata={"description": "Probability that the plan accepts."}
+    )
+    expected_sample_size = fields.Float(
+        required=True, metadata={"description": "Expected number of items tested."}
+    )
+
+
+class StagedCurveSchema(ResultSchema):
+    """Acceptance probability and expected sample size of a staged plan against the rate."""
+
+    absent_when_none = (
+        "tolerable_rate",
+        "expected_rate",
+        "risk_of_overreliance",
+        "risk_of_underreliance",
+        "expected_sample_size_at_tolerable_rate",
+        "expected_sample_size_at_expected_rate",
+    )
+
+    method = fields.String(required=True)
+    stages = fields.List(fields.Nested(StageOut), required=True)
+    population_size = fields.Integer(required=True, allow_none=True)
+    tolerable_rate = fields.Float()
+    expected_rate = fields.Float()
+    risk_of_overreliance = fields.Float()
+    risk_of_underreliance = fields.Float()
+    expected_sample_size_at_tolerable_rate = fields.Float()
+    expected_sample_size_at_expected_rate = fields.Float()
+    points = fields.List(fields.Nested(StagedCurvePointSchema), required=True)
+    summary = fields.Function(
+        staged_curve_summary,
+        required=True,
+        metadata={"type": "string", "description": "Plain-English paragraph."},
+    )

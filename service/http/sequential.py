@@ -7,6 +7,8 @@ from collections.abc import Mapping
 from typing import Any
 
 from schemas.sequential import (
+    StagedCurveRequest,
+    StagedCurveSchema,
     StagedEvaluationRequest,
     StagedEvaluationSchema,
     StagedPlanRequest,
@@ -16,6 +18,7 @@ from service.http.attributes import model_method
 from service.http.markdown import TicketLayout
 from service.http.operations import Operation, blueprint
 from service.sampling.errors import InvalidInput
+from service.sampling.sequential.curve import StagedCurve, staged_curve
 from service.sampling.sequential.staged import (
     MAX_STAGES,
     StagedEvaluation,
@@ -32,6 +35,10 @@ def _plan(inputs: dict[str, Any], settings: Settings) -> StagedPlan:
 
 def _evaluate(inputs: dict[str, Any], settings: Settings) -> StagedEvaluation:
     return evaluate_staged(**inputs)
+
+
+def _curve(inputs: dict[str, Any], settings: Settings) -> StagedCurve:
+    return staged_curve(**inputs)
 
 
 def _count_stages(payload: Any, settings: Settings) -> None:
@@ -106,5 +113,29 @@ OPERATIONS = [
         ),
     ),
 ]
+
+OPERATIONS.append(
+    Operation(
+        name="staged-curve",
+        path="/v1/plans/staged/curve",
+        summary="Operating characteristic of a staged plan",
+        description=(
+            "For a staged plan, at evenly spaced true deviation rates from 0: the exact "
+            "probability that the plan accepts and the expected number of items it tests; "
+            "with the risks and expected sizes at tolerable_rate and expected_rate when they "
+            "are given."
+        ),
+        request=StagedCurveRequest,
+        response=StagedCurveSchema,
+        run=_curve,
+        tag="tests of controls",
+        precheck=_count_stages,
+        ticket=TicketLayout(
+            answer=("risk_of_overreliance", "risk_of_underreliance",
+                    "expected_sample_size_at_expected_rate", "points"),
+            method=_staged_method,
+        ),
+    )
+)
 
 bp = blueprint("sequential", OPERATIONS)

@@ -133,9 +133,16 @@ class StagedPlan:
 # --- exact probabilities ----------------------------------------------------
 
 
-def increment_cdf(model: Model, rate: Fraction, population_size: int | None) -> IncrementCdf:
-    """The conditional distribution of the deviations a stage adds, as a lower tail."""
-    p = float(rate)
+def increment_cdf(
+    model: Model, rate: Fraction | Sequence[Fraction], population_size: int | None
+) -> IncrementCdf:
+    """The conditional distribution of the deviations a stage adds, as a lower tail.
+
+    ``rate`` may be a sequence of rates: the tail then has one value per rate, in the last
+    axis.
+    """
+    rates = [rate] if isinstance(rate, Fraction) else list(rate)
+    p: Any = float(rates[0]) if isinstance(rate, Fraction) else np.array([float(r) for r in rates])
     if model.name == "binomial":
         return lambda x, m, prior, c: _binomial_cdf(x, m, p)
     if model.name == "poisson":
@@ -143,16 +150,19 @@ def increment_cdf(model: Model, rate: Fraction, population_size: int | None) -> 
     if population_size is None:
         raise InvalidInput("population.size", "the hypergeometric method needs a population size")
     size = population_size
-    marked = deviant_items(rate, size)
+    counts = [deviant_items(r, size) for r in rates]
+    marked: Any = counts[0] if isinstance(rate, Fraction) else np.array(counts, dtype=np.int64)
 
     def hyper(x: Any, m: Any, prior: Any, c: Any) -> Any:
-        remaining = np.maximum(size - np.asarray(prior), 1)
+        shape = np.broadcast(np.asarray(x), np.asarray(m), np.asarray(prior), np.asarray(c),
+                             np.asarray(marked)).shape
+        remaining = np.broadcast_to(np.maximum(size - np.asarray(prior), 1), shape)
         left = np.clip(marked - np.asarray(c), 0, remaining)
         drawn = np.clip(m, 0, remaining)
-        x = np.broadcast_to(np.asarray(x), np.broadcast(x, m, prior, c).shape)
         return hypergeometric.cdf(
-            x.astype(np.int64), remaining.astype(np.int64), left.astype(np.int64),
-            np.asarray(drawn).astype(np.int64),
+            np.broadcast_to(np.asarray(x), shape).astype(np.int64),
+            remaining.astype(np.int64), np.broadcast_to(left, shape).astype(np.int64),
+            np.broadcast_to(drawn, shape).astype(np.int64),
         )
 
     return hyper

@@ -5,6 +5,7 @@ Each summary ends with the service's caution (:data:`service.sampling.wording.CA
 
 from __future__ import annotations
 
+from service.sampling.sequential.curve import StagedCurve
 from service.sampling.sequential.staged import StagedEvaluation, StagedPlan
 from service.sampling.wording import CAUTION, percent
 
@@ -67,3 +68,24 @@ def staged_evaluation_summary(result: StagedEvaluation) -> str:
         f"{percent(result.fixed_size_upper_deviation_limit)}, which ignores that the sample "
         f"grew with the deviations found. {CAUTION}"
     )
+
+
+def staged_curve_summary(curve: StagedCurve) -> str:
+    """One paragraph on the curve of a staged plan."""
+    text = (
+        f"Probability that the staged plan of {len(curve.stages)} stages (at most "
+        f"{_items(curve.stages[-1].cumulative_sample_size)}) accepts, and the items it tests "
+        f"on average, against the true deviation rate ({curve.method} model, exact)."
+    )
+    if curve.risk_of_overreliance is not None and curve.tolerable_rate is not None:
+        text += (
+            f" At the tolerable rate of {percent(curve.tolerable_rate)} it accepts with "
+            f"probability {percent(curve.risk_of_overreliance)} (risk of overreliance)."
+        )
+    if curve.risk_of_underreliance is not None and curve.expected_rate is not None:
+        text += (
+            f" At the expected rate of {percent(curve.expected_rate)} it fails with "
+            f"probability {percent(curve.risk_of_underreliance)} (risk of underreliance) and "
+            f"tests {curve.expected_sample_size_at_expected_rate or 0:,.1f} items on average."
+        )
+    return f"{text} {CAUTION}"

@@ -222,3 +222,18 @@ def test_evaluation_fields_cover_the_schema() -> None:
     schema = EvaluationRequest()
     roots = {spec.path[0] for spec in flags.field_specs(schema)}
     assert roots == {field.data_key or name for name, field in schema.fields.items()}
+
+
+def test_the_staged_endpoints_reach_the_command_line() -> None:
+    assert body("staged-plan", "--tolerable-rate", "0.05", "--expected-rate", "0.01",
+                "--max-stages", "3", "--population-size", "4200") == {
+        "population": {"size": 4200}, "tolerable_rate": 0.05, "expected_rate": 0.01,
+        "max_stages": 3}
+    stages = ('[{"cumulative_sample_size": 66, "accept_if_at_most": 0, "fail_if_at_least": 2},'
+              ' {"cumulative_sample_size": 135, "accept_if_at_most": 2, "fail_if_at_least": 3}]')
+    built = body("staged-evaluation", "--stages", stages, "--stage-reached", "2",
+                 "--deviations", "2", "--tolerable-rate", "0.05")
+    assert built["stages"][1] == {"cumulative_sample_size": 135, "accept_if_at_most": 2,
+                                  "fail_if_at_least": 3}
+    assert (built["stage_reached"], built["deviations"]) == (2, 2)
+    assert body("staged-curve", "--stages", stages, "--points", "11")["points"] == 11

@@ -26,6 +26,9 @@ GOOD = {
             {"cumulative_sample_size": 66, "accept_if_at_most": 0, "fail_if_at_least": 2},
             {"cumulative_sample_size": 135, "accept_if_at_most": 2, "fail_if_at_least": 3}],
         "stage_reached": 1, "deviations": 0, "tolerable_rate": 0.05},
+    "staged-curve": {
+        "stages": [{"cumulative_sample_size": 59, "accept_if_at_most": 0, "fail_if_at_least": 1}],
+        "points": 5},
 }
 EVAL = {"sample_size": 60, "deviations": 0}
 SINGLE = {op.name: op for op in all_operations() if op.name != "batch"}

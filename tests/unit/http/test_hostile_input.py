@@ -40,6 +40,10 @@ ORDINARY: dict[str, dict[str, Any]] = {
         "stages": [{"cumulative_sample_size": 59, "accept_if_at_most": 0, "fail_if_at_least": 1}],
         "stage_reached": 1, "deviations": 0, "tolerable_rate": 0.05,
     },
+    "/v1/plans/staged/curve": {
+        "stages": [{"cumulative_sample_size": 59, "accept_if_at_most": 0, "fail_if_at_least": 1}],
+        "points": 5,
+    },
     "/v1/batch": {
         "operations": [{"id": "a", "operation": "sample-size", "request": {"tolerable_rate": 0.05}}]
     },

@@ -40,6 +40,13 @@ EXAMPLES: dict[str, tuple[dict[str, Any], str]] = {
          "stage_reached": 2, "deviations": 2, "tolerable_rate": 0.05},
         "plan_risk_of_overreliance",
     ),
+    "staged-curve": (
+        {"stages": [
+            {"cumulative_sample_size": 66, "accept_if_at_most": 0, "fail_if_at_least": 2},
+            {"cumulative_sample_size": 135, "accept_if_at_most": 2, "fail_if_at_least": 3}],
+         "tolerable_rate": 0.05, "points": 5},
+        "risk_of_overreliance",
+    ),
 }
 
 

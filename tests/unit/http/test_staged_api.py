@@ -119,3 +119,36 @@ def test_staged_plan_as_markdown_carries_the_caution(client: Any) -> None:
     text = response.get_data(as_text=True)
     assert "Staged (stop-or-go) plan" in text
     assert text.rstrip().endswith(CAUTION)
+
+
+def test_staged_curve_over_http(client: Any) -> None:
+    stages = [{"cumulative_sample_size": 66, "accept_if_at_most": 0, "fail_if_at_least": 2},
+              {"cumulative_sample_size": 135, "accept_if_at_most": 2, "fail_if_at_least": 3}]
+    response = client.post("/v1/plans/staged/curve", json={
+        "stages": stages, "tolerable_rate": 0.05, "expected_rate": 0.01, "points": 11})
+    assert response.status_code == 200, response.get_json()
+    body = response.get_json()
+    assert len(body["points"]) == 11
+    assert body["risk_of_overreliance"] == pytest.approx(_acceptance(stages, 0.05), rel=1e-9)
+    assert body["risk_of_underreliance"] == pytest.approx(1 - _acceptance(stages, 0.01),
+                                                          rel=1e-9)
+    middle = body["points"][5]
+    assert middle["acceptance_probability"] == pytest.approx(
+        _acceptance(stages, middle["rate"]), rel=1e-9)
+    assert body["summary"].endswith(CAUTION)
+
+
+@pytest.mark.parametrize(("change", "field"), [
+    ({"points": 1}, "points"),
+    ({"stages": [{"cumulative_sample_size": 66, "accept_if_at_most": 0,
+                  "fail_if_at_least": 2}]}, "stages[0].fail_if_at_least"),
+    ({"stages": [{"cumulative_sample_size": 9, "accept_if_at_most": 0,
+                  "fail_if_at_least": 1}], "population": {"size": 5}},
+     "stages[0].cumulative_sample_size"),
+])
+def test_bad_staged_curve_requests_name_the_field(client: Any, change: dict, field: str) -> None:
+    body = {"stages": [{"cumulative_sample_size": 59, "accept_if_at_most": 0,
+                        "fail_if_at_least": 1}], **change}
+    response = client.post("/v1/plans/staged/curve", json=body)
+    assert response.status_code == 422, response.get_json()
+    assert field in response.get_json()["errors"]
