@@ -56,6 +56,7 @@ OPERATION_PATHS = {
     "staged-plan": "/v1/plans/staged",
     "staged-evaluation": "/v1/plans/staged/evaluation",
     "staged-curve": "/v1/plans/staged/curve",
+    "strata-evaluation": "/v1/evaluation/strata",
     "batch": "/v1/batch",
 }
 
@@ -327,6 +328,10 @@ class SamplingClient:
     def staged_curve(self, request: Body = None, /, **fields: Any) -> dict[str, Any]:
         """``POST /v1/plans/staged/curve``: acceptance and expected size against the rate."""
         return self.call("staged-curve", {**(request or {}), **fields})
+
+    def strata_evaluation(self, request: Body = None, /, **fields: Any) -> dict[str, Any]:
+        """``POST /v1/evaluation/strata``: strata evaluated, one limit for the whole."""
+        return self.call("strata-evaluation", {**(request or {}), **fields})
 
     def batch(
         self,

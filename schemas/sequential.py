@@ -6,7 +6,7 @@ from typing import Any
 
 from marshmallow import Schema, ValidationError, fields, post_load, validate, validates_schema
 
-from schemas.attributes import METHOD_NAMES, _confidence, _flatten_population
+from schemas.attributes import METHOD_NAMES, EvaluationSchema, _confidence, _flatten_population
 from schemas.common import PopulationSchema, ResultSchema, StrictSchema
 from schemas.fields import Rate, StrictInteger, StrictString
 from service.sampling.attributes import MIN_TOLERABLE_RATE
@@ -14,10 +14,13 @@ from service.sampling.sequential.curve import DEFAULT_POINTS as CURVE_DEFAULT_PO
 from service.sampling.sequential.curve import MAX_POINTS as CURVE_MAX_POINTS
 from service.sampling.sequential.curve import MIN_POINTS as CURVE_MIN_POINTS
 from service.sampling.sequential.staged import MAX_STAGES, MIN_STAGES, Stage
+from service.sampling.sequential.strata import MAX_STRATA, StratumInput
 from service.sampling.sequential.wording import (
+    STRATA_GUARANTEE,
     staged_curve_summary,
     staged_evaluation_summary,
     staged_plan_summary,
+    strata_summary,
 )
 
 _METHOD: dict[str, Any] = {
@@ -340,3 +343,153 @@ class StagedCurveSchema(ResultSchema):
         required=True,
         metadata={"type": "string", "description": "Plain-English paragraph."},
     )
+
+
+class StratumSchema(StrictSchema):
+    """One stratum: its population, the items tested and the deviations found."""
+
+    label = StrictString(
+        required=True,
+        validate=validate.Length(min=1, max=200, error="must be from {min} to {max} characters"),
+        metadata={"description": "Name of the stratum, unique in the request.",
+                  "example": "Plant A"},
+    )
+    population_size = StrictInteger(
+        required=True,
+        validate=validate.Range(min=1, error="must be at least {min}"),
+        metadata={"description": "Items in the stratum.", "example": 1200},
+    )
+    sample_size = StrictInteger(
+        required=True,
+        validate=validate.Range(min=1, error="must be at least {min}"),
+        metadata={"description": "Items tested in the stratum.", "example": 40},
+    )
+    deviations = StrictInteger(
+        required=True,
+        validate=validate.Range(min=0, error="must be at least {min}"),
+        metadata={"description": "Deviations found in the stratum.", "example": 0},
+    )
+
+    @post_load
+    def _to_core(self, data: dict[str, Any], **kwargs: Any) -> StratumInput:
+        return StratumInput(**data)
+
+
+class StrataEvaluationRequest(StrictSchema):
+    """A population sampled in strata."""
+
+    strata = fields.List(
+        fields.Nested(StratumSchema),
+        required=True,
+        validate=validate.Length(
+            min=1, max=MAX_STRATA, error="must hold from {min} to {max} strata"
+        ),
+        metadata={"description": "Each stratum's population, sample and deviations."},
+    )
+    confidence = _confidence()
+    tolerable_rate = Rate(
+        metadata={
+            "minimum": MIN_TOLERABLE_RATE,
+            "description": "When given, each stratum and the whole population are judged.",
+            "example": 0.05,
+        },
+    )
+    expected_rate = Rate(
+        allow_zero=True,
+        load_default=0.0,
+        metadata={
+            "description": "The planned expected deviation rate: used only to split the risk "
+            "among the strata, as it was known before the results.",
+            "example": 0.0,
+        },
+    )
+
+    @validates_schema
+    def _consistent(self, data: dict[str, Any], **kwargs: Any) -> None:
+        errors: dict[str, list[str]] = {}
+        labels: dict[str, int] = {}
+        for i, stratum in enumerate(data.get("strata") or []):
+            if stratum.label in labels:
+                errors[f"strata[{i}].label"] = [
+                    f"label {stratum.label!r} repeats that of strata[{labels[stratum.label]}]"
+                ]
+            labels.setdefault(stratum.label, i)
+            if stratum.sample_size > stratum.population_size:
+                errors[f"strata[{i}].sample_size"] = [
+                    f"sample_size {stratum.sample_size} must not exceed population_size "
+                    f"{stratum.population_size}"
+                ]
+            if stratum.deviations > stratum.sample_size:
+                errors[f"strata[{i}].deviations"] = [
+                    f"deviations {stratum.deviations} must not exceed sample_size "
+                    f"{stratum.sample_size}"
+                ]
+        tolerable, expected = data.get("tolerable_rate"), data.get("expected_rate")
+        if tolerable is not None and expected is not None and expected >= tolerable:
+            errors["expected_rate"] = [
+                f"expected_rate {expected!r} must be below tolerable_rate {tolerable!r}"
+            ]
+        if errors:
+            raise ValidationError(errors)
+
+
+class StratumResultSchema(Schema):
+    label = fields.String(required=True)
+    population_size = fields.Integer(required=True)
+    sample_size = fields.Integer(required=True)
+    deviations = fields.Integer(required=True)
+    risk_share = fields.Float(
+        required=True,
+        metadata={"description": "The part of 1 − confidence given to this stratum."},
+    )
+    upper_deviation_count = fields.Integer(
+        required=True,
+        metadata={"description": "This stratum's exact upper bound on deviant items at "
+                  "confidence 1 − risk_share: its part of the combined limit."},
+    )
+    evaluation = fields.Nested(
+        EvaluationSchema,
+        required=True,
+        metadata={"description": "The stratum's own evaluation at the full confidence."},
+    )
+
+
+class StrataEvaluationSchema(ResultSchema):
+    """Each stratum's evaluation and one upper deviation limit for the whole population."""
+
+    absent_when_none = ("tolerable_rate", "tolerable_deviant_items", "conclusion")
+
+    confidence = fields.Float(required=True)
+    tolerable_rate = fields.Float()
+    expected_rate = fields.Float(required=True)
+    population_size = fields.Integer(required=True)
+    sample_size = fields.Integer(required=True)
+    deviations = fields.Integer(required=True)
+    strata = fields.List(fields.Nested(StratumResultSchema), required=True)
+    estimated_deviation_rate = fields.Float(
+        required=True, metadata={"description": "Σ N_h d_h / n_h, divided by Σ N_h."}
+    )
+    upper_deviation_count = fields.Integer(required=True)
+    upper_deviation_limit = fields.Float(
+        required=True,
+        metadata={"description": "upper_deviation_count / population_size, with guaranteed "
+                  "coverage (see guarantee)."},
+    )
+    tolerable_deviant_items = fields.Integer()
+    conclusion = fields.Function(
+        lambda r: None if r.supports_reliance is None else (
+            "supports_reliance" if r.supports_reliance else "does_not_support_reliance"),
+        metadata={"type": "string", "enum": ["supports_reliance", "does_not_support_reliance"],
+                  "description": "Present only when tolerable_rate is given."},
+    )
+    guarantee = fields.Function(
+        lambda r: STRATA_GUARANTEE,
+        required=True,
+        metadata={"type": "string", "description": "What the combined limit guarantees."},
+    )
+    summary = fields.Function(
+        strata_summary,
+        required=True,
+        metadata={"type": "string", "description": "Plain-English paragraph."},
+    )
+    warnings = fields.List(fields.String(), required=True)

@@ -13,6 +13,8 @@ from schemas.sequential import (
     StagedEvaluationSchema,
     StagedPlanRequest,
     StagedPlanSchema,
+    StrataEvaluationRequest,
+    StrataEvaluationSchema,
 )
 from service.http.attributes import model_method
 from service.http.markdown import TicketLayout
@@ -26,6 +28,7 @@ from service.sampling.sequential.staged import (
     evaluate_staged,
     plan_staged,
 )
+from service.sampling.sequential.strata import MAX_STRATA, StratifiedEvaluation, evaluate_strata
 from service.settings import Settings
 
 
@@ -39,6 +42,17 @@ def _evaluate(inputs: dict[str, Any], settings: Settings) -> StagedEvaluation:
 
 def _curve(inputs: dict[str, Any], settings: Settings) -> StagedCurve:
     return staged_curve(**inputs)
+
+
+def _strata(inputs: dict[str, Any], settings: Settings) -> StratifiedEvaluation:
+    return evaluate_strata(**inputs)
+
+
+def _count_strata(payload: Any, settings: Settings) -> None:
+    """Refuse an over-long strata list before each stratum is validated."""
+    strata = payload.get("strata") if isinstance(payload, dict) else None
+    if isinstance(strata, list) and len(strata) > MAX_STRATA:
+        raise InvalidInput("strata", f"strata holds {len(strata):,} strata; at most {MAX_STRATA}")
 
 
 def _count_stages(payload: Any, settings: Settings) -> None:
@@ -134,6 +148,31 @@ OPERATIONS.append(
             answer=("risk_of_overreliance", "risk_of_underreliance",
                     "expected_sample_size_at_expected_rate", "points"),
             method=_staged_method,
+        ),
+    )
+)
+
+OPERATIONS.append(
+    Operation(
+        name="strata-evaluation",
+        path="/v1/evaluation/strata",
+        summary="Evaluate a test of controls sampled in strata",
+        description=(
+            "Each stratum's own evaluation (hypergeometric) and one upper deviation limit for "
+            "the whole population: the sum of exact per-stratum limits at risks that add up "
+            "to 1 − confidence, the split fixed from the design before the results. Its "
+            "coverage is guaranteed (Boole's inequality) and conservative."
+        ),
+        request=StrataEvaluationRequest,
+        response=StrataEvaluationSchema,
+        run=_strata,
+        tag="tests of controls",
+        precheck=_count_strata,
+        ticket=TicketLayout(
+            answer=("estimated_deviation_rate", "upper_deviation_limit",
+                    "upper_deviation_count", "conclusion", "guarantee"),
+            method=lambda document: "sum of exact hypergeometric limits per stratum with a "
+            "Bonferroni split of the risk (Wright 1991; Boole's inequality)",
         ),
     )
 )

@@ -7,6 +7,7 @@ from __future__ import annotations
 
 from service.sampling.sequential.curve import StagedCurve
 from service.sampling.sequential.staged import StagedEvaluation, StagedPlan
+from service.sampling.sequential.strata import StratifiedEvaluation
 from service.sampling.wording import CAUTION, percent
 
 
@@ -87,5 +88,33 @@ def staged_curve_summary(curve: StagedCurve) -> str:
             f" At the expected rate of {percent(curve.expected_rate)} it fails with "
             f"probability {percent(curve.risk_of_underreliance)} (risk of underreliance) and "
             f"tests {curve.expected_sample_size_at_expected_rate or 0:,.1f} items on average."
+        )
+    return f"{text} {CAUTION}"
+
+
+STRATA_GUARANTEE = (
+    "The combined upper deviation limit adds exact hypergeometric limits of each stratum "
+    "taken at risks that sum to 1 − confidence, split before the results were known; by "
+    "Boole's inequality it covers the population's deviation rate with probability at "
+    "least the confidence, whatever the deviant items in each stratum. It is "
+    "conservative: the actual coverage is usually above the confidence."
+)
+
+
+def strata_summary(result: StratifiedEvaluation) -> str:
+    """One paragraph on a population evaluated in strata."""
+    text = (
+        f"{len(result.strata)} strata, {_items(result.sample_size)} tested from "
+        f"{_items(result.population_size)}, {result.deviations:,} deviations. Estimated "
+        f"deviation rate {percent(result.estimated_deviation_rate)}; upper deviation limit "
+        f"for the whole population {percent(result.upper_deviation_limit)} "
+        f"({result.upper_deviation_count:,} deviant items at most) at "
+        f"{percent(result.confidence)} confidence."
+    )
+    if result.supports_reliance is not None and result.tolerable_rate is not None:
+        verdict = "supports" if result.supports_reliance else "does not support"
+        text += (
+            f" Against the tolerable rate of {percent(result.tolerable_rate)} the result "
+            f"{verdict} reliance on the control as tested."
         )
     return f"{text} {CAUTION}"

@@ -237,3 +237,7 @@ def test_the_staged_endpoints_reach_the_command_line() -> None:
                                   "fail_if_at_least": 3}
     assert (built["stage_reached"], built["deviations"]) == (2, 2)
     assert body("staged-curve", "--stages", stages, "--points", "11")["points"] == 11
+    strata = '[{"label": "A", "population_size": 100, "sample_size": 20, "deviations": 0}]'
+    assert body("strata-evaluation", "--strata", strata, "--confidence", "0.9") == {
+        "strata": [{"label": "A", "population_size": 100, "sample_size": 20, "deviations": 0}],
+        "confidence": 0.9}

@@ -29,6 +29,8 @@ GOOD = {
     "staged-curve": {
         "stages": [{"cumulative_sample_size": 59, "accept_if_at_most": 0, "fail_if_at_least": 1}],
         "points": 5},
+    "strata-evaluation": {"strata": [
+        {"label": "A", "population_size": 100, "sample_size": 20, "deviations": 0}]},
 }
 EVAL = {"sample_size": 60, "deviations": 0}
 SINGLE = {op.name: op for op in all_operations() if op.name != "batch"}

@@ -44,6 +44,8 @@ ORDINARY: dict[str, dict[str, Any]] = {
         "stages": [{"cumulative_sample_size": 59, "accept_if_at_most": 0, "fail_if_at_least": 1}],
         "points": 5,
     },
+    "/v1/evaluation/strata": {"strata": [
+        {"label": "A", "population_size": 100, "sample_size": 20, "deviations": 0}]},
     "/v1/batch": {
         "operations": [{"id": "a", "operation": "sample-size", "request": {"tolerable_rate": 0.05}}]
     },

@@ -47,6 +47,13 @@ EXAMPLES: dict[str, tuple[dict[str, Any], str]] = {
          "tolerable_rate": 0.05, "points": 5},
         "risk_of_overreliance",
     ),
+    "strata-evaluation": (
+        {"strata": [{"label": "Plant A", "population_size": 1200, "sample_size": 40,
+                     "deviations": 0},
+                    {"label": "Plant B", "population_size": 800, "sample_size": 30,
+                     "deviations": 1}], "tolerable_rate": 0.1},
+        "upper_deviation_limit",
+    ),
 }
 
 
