@@ -57,6 +57,7 @@ OPERATION_PATHS = {
     "staged-evaluation": "/v1/plans/staged/evaluation",
     "staged-curve": "/v1/plans/staged/curve",
     "strata-evaluation": "/v1/evaluation/strata",
+    "sequence-evaluation": "/v1/evaluation/sequence",
     "batch": "/v1/batch",
 }
 
@@ -332,6 +333,10 @@ class SamplingClient:
     def strata_evaluation(self, request: Body = None, /, **fields: Any) -> dict[str, Any]:
         """``POST /v1/evaluation/strata``: strata evaluated, one limit for the whole."""
         return self.call("strata-evaluation", {**(request or {}), **fields})
+
+    def sequence_evaluation(self, request: Body = None, /, **fields: Any) -> dict[str, Any]:
+        """``POST /v1/evaluation/sequence``: limits valid at any stopping time."""
+        return self.call("sequence-evaluation", {**(request or {}), **fields})
 
     def batch(
         self,

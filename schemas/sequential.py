@@ -10,13 +10,16 @@ from schemas.attributes import METHOD_NAMES, EvaluationSchema, _confidence, _fla
 from schemas.common import PopulationSchema, ResultSchema, StrictSchema
 from schemas.fields import Rate, StrictInteger, StrictString
 from service.sampling.attributes import MIN_TOLERABLE_RATE
+from service.sampling.sequential.anytime import MAX_RESULTS
 from service.sampling.sequential.curve import DEFAULT_POINTS as CURVE_DEFAULT_POINTS
 from service.sampling.sequential.curve import MAX_POINTS as CURVE_MAX_POINTS
 from service.sampling.sequential.curve import MIN_POINTS as CURVE_MIN_POINTS
 from service.sampling.sequential.staged import MAX_STAGES, MIN_STAGES, Stage
 from service.sampling.sequential.strata import MAX_STRATA, StratumInput
 from service.sampling.sequential.wording import (
+    SEQUENCE_GUARANTEE,
     STRATA_GUARANTEE,
+    sequence_summary,
     staged_curve_summary,
     staged_evaluation_summary,
     staged_plan_summary,
@@ -493,3 +496,114 @@ class StrataEvaluationSchema(ResultSchema):
         metadata={"type": "string", "description": "Plain-English paragraph."},
     )
     warnings = fields.List(fields.String(), required=True)
+
+
+class DeviationFlag(fields.Field):  # type: ignore[type-arg]
+    """true/false or 1/0: whether a tested item was a deviation. Nothing else is read as one."""
+
+    default_error_messages = {  # noqa: RUF012 - marshmallow's documented extension point
+        "invalid": "must be true, false, 1 or 0",
+    }
+
+    def _deserialize(self, value: Any, attr: str | None, data: Any, **kwargs: Any) -> bool:
+        if isinstance(value, bool):
+            return value
+        if type(value) is int and value in (0, 1):
+            return bool(value)
+        raise self.make_error("invalid")
+
+
+class SequenceRequest(StrictSchema):
+    """The results of an open-ended test, in the order the items were tested."""
+
+    results = fields.List(
+        DeviationFlag(metadata={"oneOf": [{"type": "boolean"},
+                                          {"type": "integer", "enum": [0, 1]}]}),
+        required=True,
+        validate=validate.Length(
+            min=1, max=MAX_RESULTS, error="must hold from {min} to {max} results"
+        ),
+        metadata={
+            "description": "One entry per tested item, in testing order: true (or 1) for a "
+            "deviation, false (or 0) otherwise.",
+            "example": [False, False, True, False],
+        },
+    )
+    confidence = _confidence()
+    population = fields.Nested(
+        PopulationSchema,
+        metadata={"description": "When given, the without-replacement form is used."},
+    )
+    tolerable_rate = Rate(
+        metadata={
+            "minimum": MIN_TOLERABLE_RATE,
+            "description": "When given: whether, and from which item on, the limit is below it.",
+            "example": 0.05,
+        },
+    )
+
+    @validates_schema
+    def _fits_population(self, data: dict[str, Any], **kwargs: Any) -> None:
+        size = (data.get("population") or {}).get("size")
+        results = data.get("results")
+        if size is not None and results is not None and len(results) > size:
+            raise ValidationError(
+                f"population.size {size} is below the {len(results)} items tested",
+                "population.size",
+            )
+
+    @post_load
+    def _to_core(self, data: dict[str, Any], **kwargs: Any) -> dict[str, Any]:
+        data = _flatten_population(data)
+        data.pop("population_label", None)
+        return data
+
+
+class SequencePointSchema(Schema):
+    sample_size = fields.Integer(required=True)
+    deviations = fields.Integer(required=True)
+    upper_deviation_limit = fields.Float(
+        required=True, metadata={"description": "Valid at any stopping time."}
+    )
+    fixed_size_upper_deviation_limit = fields.Float(
+        required=True,
+        metadata={"description": "Clopper–Pearson, for comparison only: valid only for a "
+                  "sample size fixed in advance."},
+    )
+
+
+class SequenceSchema(ResultSchema):
+    """Upper deviation limits after each tested item, valid at any stopping time."""
+
+    absent_when_none = ("tolerable_rate", "conclusion", "first_supporting_sample_size")
+
+    method = fields.String(
+        required=True, metadata={"enum": ["with_replacement", "without_replacement"]}
+    )
+    confidence = fields.Float(required=True)
+    population_size = fields.Integer(required=True, allow_none=True)
+    tolerable_rate = fields.Float()
+    sample_size = fields.Integer(required=True)
+    deviations = fields.Integer(required=True)
+    upper_deviation_limit = fields.Float(
+        required=True, metadata={"description": "After the last item; valid at any stopping time."}
+    )
+    first_supporting_sample_size = fields.Integer(
+        metadata={"description": "First item after which the limit was below tolerable_rate."}
+    )
+    conclusion = fields.Function(
+        lambda r: None if r.supports_reliance is None else (
+            "supports_reliance" if r.supports_reliance else "does_not_support_reliance"),
+        metadata={"type": "string", "enum": ["supports_reliance", "does_not_support_reliance"]},
+    )
+    points = fields.List(fields.Nested(SequencePointSchema), required=True)
+    guarantee = fields.Function(
+        lambda r: SEQUENCE_GUARANTEE,
+        required=True,
+        metadata={"type": "string", "description": "What the limits guarantee."},
+    )
+    summary = fields.Function(
+        sequence_summary,
+        required=True,
+        metadata={"type": "string", "description": "Plain-English paragraph."},
+    )

@@ -209,7 +209,8 @@ OPERATIONS = [
         description=(
             "Each item names a single operation by its operationId (sample-size, "
             "evaluation, selection, estimation-sample-size, plan-curve, staged-plan, "
-            "staged-evaluation, staged-curve, strata-evaluation) and carries the "
+            "staged-evaluation, staged-curve, strata-evaluation, sequence-evaluation) and "
+            "carries the "
             "body that endpoint takes. Items are validated and answered on their own, in "
             "order, under the same limits as single calls; each answer repeats the item's "
             "id with the status the single endpoint would have given and either its result "

@@ -56,7 +56,8 @@ RATE_FIELDS = frozenset({
     "upper_deviation_limit", "allowance_for_sampling_risk", "risk_at_tolerable_rate",
     "low", "high", "margin", "anticipated_rate", "miss_probability", "rate",
     "probability", "achieved_miss_probability",
-    "plan_risk_of_overreliance", "fixed_risk_of_underreliance",
+    "plan_risk_of_overreliance", "fixed_risk_of_underreliance", "risk_share",
+    "estimated_deviation_rate", "fixed_size_upper_deviation_limit",
 })
 # Coded values shown in words.
 CODE_WORDS = {

@@ -7,6 +7,8 @@ from collections.abc import Mapping
 from typing import Any
 
 from schemas.sequential import (
+    SequenceRequest,
+    SequenceSchema,
     StagedCurveRequest,
     StagedCurveSchema,
     StagedEvaluationRequest,
@@ -20,6 +22,11 @@ from service.http.attributes import model_method
 from service.http.markdown import TicketLayout
 from service.http.operations import Operation, blueprint
 from service.sampling.errors import InvalidInput
+from service.sampling.sequential.anytime import (
+    MAX_RESULTS,
+    ConfidenceSequence,
+    confidence_sequence,
+)
 from service.sampling.sequential.curve import StagedCurve, staged_curve
 from service.sampling.sequential.staged import (
     MAX_STAGES,
@@ -53,6 +60,19 @@ def _count_strata(payload: Any, settings: Settings) -> None:
     strata = payload.get("strata") if isinstance(payload, dict) else None
     if isinstance(strata, list) and len(strata) > MAX_STRATA:
         raise InvalidInput("strata", f"strata holds {len(strata):,} strata; at most {MAX_STRATA}")
+
+
+def _sequence(inputs: dict[str, Any], settings: Settings) -> ConfidenceSequence:
+    return confidence_sequence(**inputs)
+
+
+def _count_results(payload: Any, settings: Settings) -> None:
+    """Refuse an over-long result list before each entry is validated."""
+    results = payload.get("results") if isinstance(payload, dict) else None
+    if isinstance(results, list) and len(results) > MAX_RESULTS:
+        raise InvalidInput(
+            "results", f"results holds {len(results):,} items; at most {MAX_RESULTS:,}"
+        )
 
 
 def _count_stages(payload: Any, settings: Settings) -> None:
@@ -173,6 +193,34 @@ OPERATIONS.append(
                     "upper_deviation_count", "conclusion", "guarantee"),
             method=lambda document: "sum of exact hypergeometric limits per stratum with a "
             "Bonferroni split of the risk (Wright 1991; Boole's inequality)",
+        ),
+    )
+)
+
+OPERATIONS.append(
+    Operation(
+        name="sequence-evaluation",
+        path="/v1/evaluation/sequence",
+        summary="Anytime-valid evaluation of an open-ended test of controls",
+        description=(
+            "Given the results in testing order, the upper deviation limit after each item "
+            "from a confidence sequence (Robbins' beta-binomial mixture; without replacement "
+            "when population.size is given): the probability that it is ever below the true "
+            "rate is at most 1 − confidence, so the tester may stop at any item, chosen by "
+            "looking at the results. The fixed-size limit is shown beside it for comparison."
+        ),
+        request=SequenceRequest,
+        response=SequenceSchema,
+        run=_sequence,
+        tag="tests of controls",
+        takes_item_lists=True,
+        precheck=_count_results,
+        ticket=TicketLayout(
+            answer=("upper_deviation_limit", "first_supporting_sample_size", "conclusion",
+                    "guarantee"),
+            method=lambda document: "confidence sequence, beta-binomial mixture (Robbins 1970; "
+            "Howard, Ramdas, McAuliffe & Sekhon 2021); without replacement, prior-posterior "
+            "ratio (Waudby-Smith & Ramdas 2020)",
         ),
     )
 )

@@ -5,6 +5,7 @@ Each summary ends with the service's caution (:data:`service.sampling.wording.CA
 
 from __future__ import annotations
 
+from service.sampling.sequential.anytime import ConfidenceSequence
 from service.sampling.sequential.curve import StagedCurve
 from service.sampling.sequential.staged import StagedEvaluation, StagedPlan
 from service.sampling.sequential.strata import StratifiedEvaluation
@@ -117,4 +118,31 @@ def strata_summary(result: StratifiedEvaluation) -> str:
             f" Against the tolerable rate of {percent(result.tolerable_rate)} the result "
             f"{verdict} reliance on the control as tested."
         )
+    return f"{text} {CAUTION}"
+
+
+SEQUENCE_GUARANTEE = (
+    "Valid at any stopping time: the probability that the upper deviation limit is ever "
+    "below the true deviation rate, after any item of the sequence, is at most "
+    "1 − confidence. The tester may look after every item and stop when the limit is low "
+    "enough; the fixed-size limit shown beside it holds only for a sample size fixed in "
+    "advance, which is why it is narrower."
+)
+
+
+def sequence_summary(cs: ConfidenceSequence) -> str:
+    """One paragraph on a confidence sequence."""
+    text = (
+        f"After {_items(cs.sample_size)} with {cs.deviations:,} deviations, the upper "
+        f"deviation limit valid at any stopping time is {percent(cs.upper_deviation_limit)} "
+        f"at {percent(cs.confidence)} confidence."
+    )
+    if cs.tolerable_rate is not None:
+        if cs.first_supporting_sample_size is not None:
+            text += (
+                f" It first fell below the tolerable rate of {percent(cs.tolerable_rate)} "
+                f"after item {cs.first_supporting_sample_size:,}."
+            )
+        verdict = "supports" if cs.supports_reliance else "does not support"
+        text += f" Stopping now, the result {verdict} reliance on the control as tested."
     return f"{text} {CAUTION}"

@@ -241,3 +241,6 @@ def test_the_staged_endpoints_reach_the_command_line() -> None:
     assert body("strata-evaluation", "--strata", strata, "--confidence", "0.9") == {
         "strata": [{"label": "A", "population_size": 100, "sample_size": 20, "deviations": 0}],
         "confidence": 0.9}
+    # A list of true/false flags is read as JSON text.
+    assert body("sequence-evaluation", "--results", "[false, true, 0]")["results"] == [
+        False, True, 0]

@@ -31,6 +31,7 @@ GOOD = {
         "points": 5},
     "strata-evaluation": {"strata": [
         {"label": "A", "population_size": 100, "sample_size": 20, "deviations": 0}]},
+    "sequence-evaluation": {"results": [0, 0, 1, 0]},
 }
 EVAL = {"sample_size": 60, "deviations": 0}
 SINGLE = {op.name: op for op in all_operations() if op.name != "batch"}

@@ -46,6 +46,7 @@ ORDINARY: dict[str, dict[str, Any]] = {
     },
     "/v1/evaluation/strata": {"strata": [
         {"label": "A", "population_size": 100, "sample_size": 20, "deviations": 0}]},
+    "/v1/evaluation/sequence": {"results": [False, True, False]},
     "/v1/batch": {
         "operations": [{"id": "a", "operation": "sample-size", "request": {"tolerable_rate": 0.05}}]
     },

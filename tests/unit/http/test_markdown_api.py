@@ -54,6 +54,8 @@ EXAMPLES: dict[str, tuple[dict[str, Any], str]] = {
                      "deviations": 1}], "tolerable_rate": 0.1},
         "upper_deviation_limit",
     ),
+    "sequence-evaluation": ({"results": [False] * 30 + [True] + [False] * 69,
+                             "tolerable_rate": 0.2}, "upper_deviation_limit"),
 }
 
 
