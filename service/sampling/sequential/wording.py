@@ -106,7 +106,8 @@ def strata_summary(result: StratifiedEvaluation) -> str:
     """One paragraph on a population evaluated in strata."""
     text = (
         f"{len(result.strata)} strata, {_items(result.sample_size)} tested from "
-        f"{_items(result.population_size)}, {result.deviations:,} deviations. Estimated "
+        f"{_items(result.population_size)}, {result.deviations:,} "
+        f"deviation{'' if result.deviations == 1 else 's'}. Estimated "
         f"deviation rate {percent(result.estimated_deviation_rate)}; upper deviation limit "
         f"for the whole population {percent(result.upper_deviation_limit)} "
         f"({result.upper_deviation_count:,} deviant items at most) at "
