@@ -28,7 +28,10 @@ Plan search
     request stays fast (documented in the README):
 
     - final allowance ``a_s`` from ``k`` to ``k + EXTRA_ALLOWANCE``, ``k`` the
-      fixed-size plan's allowance, and ``k ≤ MAX_FIXED_ALLOWANCE``;
+      fixed-size plan's allowance, and ``k ≤ MAX_FIXED_ALLOWANCE``; three-stage
+      plans are searched only when ``k ≤ MAX_THREE_STAGE_ALLOWANCE`` (else two-stage
+      plans, with a warning); stage counts of a plan sent for evaluation are at most
+      ``MAX_STAGE_COUNT``;
     - earlier allowances ``0 ≤ a_1 ≤ a_2 ≤ a_s``; fail points
       ``a_j + 2 ≤ r_j ≤ a_s + 1`` (two stages), ``r_j = a_s + 1`` (three stages:
       fail early only once the deviations pass the final allowance);
@@ -70,6 +73,10 @@ MIN_STAGES = 2
 MAX_STAGES = 3
 EXTRA_ALLOWANCE = 1
 MAX_FIXED_ALLOWANCE = 6
+MAX_THREE_STAGE_ALLOWANCE = 3
+# Largest deviation count a stage may name (accept_if_at_most, fail_if_at_least): the
+# exact computation costs the square of the counts between them at each stage.
+MAX_STAGE_COUNT = 50
 FIRST_SIZES = 64
 GRID_POINTS = 16
 LARGEST_FACTOR = 3
@@ -261,6 +268,12 @@ def check_stages(stages: Sequence[Stage], population_size: int | None) -> None:
             raise InvalidInput(
                 f"{field}.cumulative_sample_size",
                 f"cumulative_sample_size {n} exceeds population.size {population_size}",
+            )
+        if r > MAX_STAGE_COUNT:
+            raise InvalidInput(
+                f"{field}.fail_if_at_least",
+                f"fail_if_at_least {r} is above {MAX_STAGE_COUNT}, the largest deviation "
+                "count a stage may name here",
             )
         if not (-1 <= a < r):
             raise InvalidInput(
@@ -457,11 +470,19 @@ def plan_staged(
 
     single = (Stage(n, k, k + 1),)
     candidates = [_Candidate(single, float(n), n)]
+    notes: list[str] = []
+    searched = max_stages
+    if max_stages == 3 and k > MAX_THREE_STAGE_ALLOWANCE:
+        searched = 2
+        notes.append(
+            f"The fixed-size plan allows {k} deviations; three-stage plans are searched only "
+            f"up to {MAX_THREE_STAGE_ALLOWANCE}, so the best two-stage plan is returned."
+        )
     found, examined = _search(
-        max_stages, n, k, cdf_t, cdf_e, alpha, fixed.risk_of_underreliance, cap
+        searched, n, k, cdf_t, cdf_e, alpha, fixed.risk_of_underreliance, cap
     )
     candidates += found
-    if max_stages == 3:
+    if searched == 3:
         more, count = _search(2, n, k, cdf_t, cdf_e, alpha, fixed.risk_of_underreliance, cap)
         candidates += more
         examined += count
@@ -469,7 +490,7 @@ def plan_staged(
     return _describe(
         best.stages, model, tolerable, expected, confidence, population_size,
         population_label, tolerable_rate, expected_rate, max_stages, fixed.sample_size,
-        fixed.allowed_deviations, fixed.risk_of_underreliance, examined + 1,
+        fixed.allowed_deviations, fixed.risk_of_underreliance, examined + 1, tuple(notes),
     )
 
 
@@ -477,12 +498,12 @@ def _describe(
     stages: tuple[Stage, ...], model: Model, tolerable: Fraction, expected: Fraction,
     confidence: float, population_size: int | None, population_label: str | None,
     tolerable_rate: float, expected_rate: float, max_stages: int, fixed_n: int,
-    fixed_k: int, fixed_under: float, examined: int,
+    fixed_k: int, fixed_under: float, examined: int, notes: tuple[str, ...] = (),
 ) -> StagedPlan:
     at_t = stage_outcomes(stages, model, tolerable, population_size)
     at_e = stage_outcomes(stages, model, expected, population_size)
     risk = at_t.acceptance
-    warnings: list[str] = []
+    warnings: list[str] = list(notes)
     if len(stages) == 1:
         warnings.append(
             "No staged plan within the search limits has a smaller expected sample size than "

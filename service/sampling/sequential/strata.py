@@ -131,15 +131,17 @@ def risk_split(
         return upper_count(planned[h], s.sample_size, s.population_size, count * step)
 
     current = [bound(h, 0) for h in range(len(strata))]
+    following = [bound(h, 1) for h in range(len(strata))]
     for _ in range(SPLIT_UNITS):
         best, gain = 0, -1
         for h, s in enumerate(strata):
-            g = current[h] - bound(h, units[h] + 1)
+            g = current[h] - following[h]
             if g > gain or (g == gain and s.population_size > strata[best].population_size):
                 best, gain = h, g
         units[best] += 1
-        current[best] = bound(best, units[best])
-    return [u * step for u in units]
+        current[best] = following[best]
+        following[best] = bound(best, units[best] + 1)
+    return [u * alpha / SPLIT_UNITS for u in units]
 
 
 def _check(strata: Sequence[StratumInput]) -> None:

@@ -219,3 +219,16 @@ def test_inconsistent_stages_are_refused(stages: list[Stage], field: str) -> Non
 def test_every_enumerated_plan_outcome_sums_to_one() -> None:
     total = sum(enumerate_outcomes(PLAN, "binomial", 0.03).values())
     assert total == pytest.approx(1.0, abs=1e-12)
+
+
+def test_three_stages_beyond_their_cap_fall_back_to_two_with_a_warning() -> None:
+    plan = plan_staged(0.05, 0.02, 0.95, max_stages=3)  # fixed-size plan allows 4
+    assert plan.fixed_allowed_deviations > 3
+    assert len(plan.stages) <= 2
+    assert any("three-stage plans are searched only" in w for w in plan.warnings)
+
+
+def test_stage_counts_above_the_cap_are_refused() -> None:
+    with pytest.raises(InvalidInput) as caught:
+        evaluate_staged([Stage(1000, 0, 60), Stage(2000, 70, 71)], 2, 65, 0.05)
+    assert caught.value.field == "stages[0].fail_if_at_least"
