@@ -59,6 +59,11 @@ OPERATION_PATHS = {
     "population-profile": "/v1/populations/profile",
     "population-stratified-selection": "/v1/populations/stratified-selection",
     "plan-periodic": "/v1/plans/periodic",
+    "staged-plan": "/v1/plans/staged",
+    "staged-evaluation": "/v1/plans/staged/evaluation",
+    "staged-curve": "/v1/plans/staged/curve",
+    "strata-evaluation": "/v1/evaluation/strata",
+    "sequence-evaluation": "/v1/evaluation/sequence",
     "batch": "/v1/batch",
 }
 
@@ -337,9 +342,30 @@ class SamplingClient:
     def monetary_evaluation(self, request: Body = None, /, **fields: Any) -> dict[str, Any]:
         """``POST /v1/monetary/evaluation``: misstatement limits by method, side by side."""
         return self.call("monetary-evaluation", {**(request or {}), **fields})
+
     def plan_periodic(self, request: Body = None, /, **fields: Any) -> dict[str, Any]:
         """``POST /v1/plans/periodic``: what the sample sizes of a periodic control prove."""
         return self.call("plan-periodic", {**(request or {}), **fields})
+
+    def staged_plan(self, request: Body = None, /, **fields: Any) -> dict[str, Any]:
+        """``POST /v1/plans/staged``: a staged (stop-or-go) plan with its exact risks."""
+        return self.call("staged-plan", {**(request or {}), **fields})
+
+    def staged_evaluation(self, request: Body = None, /, **fields: Any) -> dict[str, Any]:
+        """``POST /v1/plans/staged/evaluation``: a finished staged test, evaluated."""
+        return self.call("staged-evaluation", {**(request or {}), **fields})
+
+    def staged_curve(self, request: Body = None, /, **fields: Any) -> dict[str, Any]:
+        """``POST /v1/plans/staged/curve``: acceptance and expected size against the rate."""
+        return self.call("staged-curve", {**(request or {}), **fields})
+
+    def strata_evaluation(self, request: Body = None, /, **fields: Any) -> dict[str, Any]:
+        """``POST /v1/evaluation/strata``: strata evaluated, one limit for the whole."""
+        return self.call("strata-evaluation", {**(request or {}), **fields})
+
+    def sequence_evaluation(self, request: Body = None, /, **fields: Any) -> dict[str, Any]:
+        """``POST /v1/evaluation/sequence``: limits valid at any stopping time."""
+        return self.call("sequence-evaluation", {**(request or {}), **fields})
 
     def batch(
         self,

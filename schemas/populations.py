@@ -424,7 +424,7 @@ class ReconciliationSchema(ResultSchema):
     reconciles = fields.Boolean(required=True)
 
 
-class StratumSchema(ResultSchema):
+class SelectedStratumSchema(ResultSchema):
     number = fields.Integer(required=True)
     low = Amount(metadata={"description": "Lowest amount (inclusive); null: no bound."})
     high = Amount(metadata={"description": "Amounts below this (exclusive); null: no bound."})
@@ -439,7 +439,7 @@ class StrataSuggestionSchema(ResultSchema):
     classes = fields.Integer(
         required=True, metadata={"description": "Equal-width classes the rule counted in."}
     )
-    strata = fields.List(fields.Nested(StratumSchema), required=True)
+    strata = fields.List(fields.Nested(SelectedStratumSchema), required=True)
     top_threshold = Amount()
     top_items = fields.Integer(required=True)
     top_total = Amount(required=True)

@@ -16,10 +16,14 @@ from service.http import (
     plans,
     populations,
     selection,
+    sequential,
 )
 from service.http.operations import Operation
 
-RESOURCES = [attributes, estimation, plans, periodic, selection, populations, monetary, batch]
+RESOURCES = [
+    attributes, estimation, plans, periodic, sequential, selection, populations, monetary,
+    batch,
+]
 
 
 def all_operations() -> list[Operation]:

@@ -210,7 +210,9 @@ OPERATIONS = [
         description=(
             "Each item names a single operation by its operationId (sample-size, "
             "evaluation, selection, estimation-sample-size, plan-curve, plan-periodic, "
-            "monetary-sample-size, monetary-selection, monetary-evaluation) and carries the "
+            "staged-plan, staged-evaluation, staged-curve, strata-evaluation, "
+            "sequence-evaluation, monetary-sample-size, monetary-selection, "
+            "monetary-evaluation) and carries the "
             "body that endpoint takes. Items are validated and answered on their own, in "
             "order, under the same limits as single calls; each answer repeats the item's "
             "id with the status the single endpoint would have given and either its result "

@@ -60,6 +60,8 @@ RATE_FIELDS = frozenset({
     "confidence_against_1_deviant", "confidence_against_2_deviant",
     "confidence_against_3_deviant", "upper_deviation_limit_if_none_found",
     "achieved_confidence_at_tolerable",
+    "plan_risk_of_overreliance", "fixed_risk_of_underreliance", "risk_share",
+    "estimated_deviation_rate", "fixed_size_upper_deviation_limit",
 })
 # Coded values shown in words.
 CODE_WORDS = {

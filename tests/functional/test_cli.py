@@ -123,6 +123,47 @@ def test_json_is_the_services_answer_exactly(runs: Runs, url: str) -> None:
     assert done.stdout == direct.content + b"\n"
 
 
+LATER = {
+    "staged": ["staged-plan", "--tolerable-rate", "0.05", "--expected-rate", "0.01",
+               "--max-stages", "3", "--json"],
+    "sequence": ["sequence-evaluation", "--results", "[0, 0, 1, 0]", "--json"],
+}
+
+
+@pytest.fixture(scope="module")
+def later_runs(url: str, runs: Runs) -> Runs:
+    """The commands of the newer endpoints, run once the first batch is done (not beside
+    it, so as not to slow it down)."""
+    env = {**os.environ, "ATTRIBUTE_SAMPLING_URL": url}
+    env.pop("ATTRIBUTE_SAMPLING_API_KEY", None)
+    started = {name: subprocess.Popen([str(CLI), *argv], env=env, cwd=ROOT,
+                                      stdout=subprocess.PIPE, stderr=subprocess.PIPE)
+               for name, argv in LATER.items()}
+    done = {}
+    for name, process in started.items():
+        try:
+            out, err = process.communicate(timeout=RUN_SECONDS)
+        except subprocess.TimeoutExpired:
+            process.kill()
+            out, err = process.communicate()
+        done[name] = subprocess.CompletedProcess(LATER[name], process.returncode, out, err)
+    return done
+
+
+@pytest.mark.parametrize(("name", "path", "body"), [
+    ("staged", "/v1/plans/staged",
+     {"tolerable_rate": 0.05, "expected_rate": 0.01, "max_stages": 3}),
+    ("sequence", "/v1/evaluation/sequence", {"results": [0, 0, 1, 0]}),
+])
+def test_the_staged_and_sequence_endpoints_answer_on_the_command_line(
+    later_runs: Runs, url: str, name: str, path: str, body: dict[str, object]
+) -> None:
+    done = later_runs[name]
+    assert done.returncode == 0, done.stderr
+    direct = requests.post(f"{url}{path}", json=body, timeout=30)
+    assert json.loads(done.stdout) == direct.json()
+
+
 def test_evaluation_table(runs: Runs) -> None:
     done = runs["evaluation"]
     assert done.returncode == 0, done.stderr

@@ -300,3 +300,25 @@ def test_periodic_plans_reach_the_command_line() -> None:
                 "--common-practice-high", "4") == {
         "frequency": "monthly", "tolerable_rate": 0.1, "occurrences": 13,
         "common_practice": {"low": 2, "high": 4}}
+
+
+def test_the_staged_endpoints_reach_the_command_line() -> None:
+    assert body("staged-plan", "--tolerable-rate", "0.05", "--expected-rate", "0.01",
+                "--max-stages", "3", "--population-size", "4200") == {
+        "population": {"size": 4200}, "tolerable_rate": 0.05, "expected_rate": 0.01,
+        "max_stages": 3}
+    stages = ('[{"cumulative_sample_size": 66, "accept_if_at_most": 0, "fail_if_at_least": 2},'
+              ' {"cumulative_sample_size": 135, "accept_if_at_most": 2, "fail_if_at_least": 3}]')
+    built = body("staged-evaluation", "--stages", stages, "--stage-reached", "2",
+                 "--deviations", "2", "--tolerable-rate", "0.05")
+    assert built["stages"][1] == {"cumulative_sample_size": 135, "accept_if_at_most": 2,
+                                  "fail_if_at_least": 3}
+    assert (built["stage_reached"], built["deviations"]) == (2, 2)
+    assert body("staged-curve", "--stages", stages, "--points", "11")["points"] == 11
+    strata = '[{"label": "A", "population_size": 100, "sample_size": 20, "deviations": 0}]'
+    assert body("strata-evaluation", "--strata", strata, "--confidence", "0.9") == {
+        "strata": [{"label": "A", "population_size": 100, "sample_size": 20, "deviations": 0}],
+        "confidence": 0.9}
+    # A list of true/false flags is read as JSON text.
+    assert body("sequence-evaluation", "--results", "[false, true, 0]")["results"] == [
+        False, True, 0]

@@ -25,6 +25,18 @@ GOOD = {
                            "seed": "fictional-1"},
     "monetary-evaluation": {"book_value": "600000.00", "sample_size": 60},
     "plan-periodic": {"frequency": "monthly", "tolerable_rate": 0.1},
+    "staged-plan": {"tolerable_rate": 0.05, "expected_rate": 0.01},
+    "staged-evaluation": {
+        "stages": [
+            {"cumulative_sample_size": 66, "accept_if_at_most": 0, "fail_if_at_least": 2},
+            {"cumulative_sample_size": 135, "accept_if_at_most": 2, "fail_if_at_least": 3}],
+        "stage_reached": 1, "deviations": 0, "tolerable_rate": 0.05},
+    "staged-curve": {
+        "stages": [{"cumulative_sample_size": 59, "accept_if_at_most": 0, "fail_if_at_least": 1}],
+        "points": 5},
+    "strata-evaluation": {"strata": [
+        {"label": "A", "population_size": 100, "sample_size": 20, "deviations": 0}]},
+    "sequence-evaluation": {"results": [0, 0, 1, 0]},
 }
 EVAL = {"sample_size": 60, "deviations": 0}
 SINGLE = {

@@ -40,6 +40,18 @@ ORDINARY: dict[str, dict[str, Any]] = {
     "/v1/monetary/selection": {"population": [{"id": "KV-1", "amount": "10.50"}],
                                "sample_size": 1, "seed": "hostile"},
     "/v1/monetary/evaluation": {"book_value": "600000.00", "sample_size": 60},
+    "/v1/plans/staged": {"tolerable_rate": 0.05},
+    "/v1/plans/staged/evaluation": {
+        "stages": [{"cumulative_sample_size": 59, "accept_if_at_most": 0, "fail_if_at_least": 1}],
+        "stage_reached": 1, "deviations": 0, "tolerable_rate": 0.05,
+    },
+    "/v1/plans/staged/curve": {
+        "stages": [{"cumulative_sample_size": 59, "accept_if_at_most": 0, "fail_if_at_least": 1}],
+        "points": 5,
+    },
+    "/v1/evaluation/strata": {"strata": [
+        {"label": "A", "population_size": 100, "sample_size": 20, "deviations": 0}]},
+    "/v1/evaluation/sequence": {"results": [False, True, False]},
     "/v1/batch": {
         "operations": [{"id": "a", "operation": "sample-size", "request": {"tolerable_rate": 0.05}}]
     },

@@ -41,6 +41,30 @@ EXAMPLES: dict[str, tuple[dict[str, Any], str]] = {
     "monetary-evaluation": ({"book_value": "600000.00", "sample_size": 60}, "sample_size"),
     "plan-periodic": ({"frequency": "weekly", "tolerable_rate": 0.1},
                       "tolerable_deviant_items"),
+    "staged-plan": ({"tolerable_rate": 0.05, "expected_rate": 0.01}, "risk_of_overreliance"),
+    "staged-evaluation": (
+        {"stages": [
+            {"cumulative_sample_size": 66, "accept_if_at_most": 0, "fail_if_at_least": 2},
+            {"cumulative_sample_size": 135, "accept_if_at_most": 2, "fail_if_at_least": 3}],
+         "stage_reached": 2, "deviations": 2, "tolerable_rate": 0.05},
+        "plan_risk_of_overreliance",
+    ),
+    "staged-curve": (
+        {"stages": [
+            {"cumulative_sample_size": 66, "accept_if_at_most": 0, "fail_if_at_least": 2},
+            {"cumulative_sample_size": 135, "accept_if_at_most": 2, "fail_if_at_least": 3}],
+         "tolerable_rate": 0.05, "points": 5},
+        "risk_of_overreliance",
+    ),
+    "strata-evaluation": (
+        {"strata": [{"label": "Plant A", "population_size": 1200, "sample_size": 40,
+                     "deviations": 0},
+                    {"label": "Plant B", "population_size": 800, "sample_size": 30,
+                     "deviations": 1}], "tolerable_rate": 0.1},
+        "upper_deviation_limit",
+    ),
+    "sequence-evaluation": ({"results": [False] * 30 + [True] + [False] * 69,
+                             "tolerable_rate": 0.2}, "upper_deviation_limit"),
 }
 
 

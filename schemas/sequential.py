@@ -1,0 +1,609 @@
+"""Contract of the staged, sequential and stratified endpoints."""
+
+from __future__ import annotations
+
+from typing import Any
+
+from marshmallow import Schema, ValidationError, fields, post_load, validate, validates_schema
+
+from schemas.attributes import METHOD_NAMES, EvaluationSchema, _confidence, _flatten_population
+from schemas.common import PopulationSchema, ResultSchema, StrictSchema
+from schemas.fields import Rate, StrictInteger, StrictString
+from service.sampling.attributes import MIN_TOLERABLE_RATE
+from service.sampling.sequential.anytime import MAX_RESULTS
+from service.sampling.sequential.curve import DEFAULT_POINTS as CURVE_DEFAULT_POINTS
+from service.sampling.sequential.curve import MAX_POINTS as CURVE_MAX_POINTS
+from service.sampling.sequential.curve import MIN_POINTS as CURVE_MIN_POINTS
+from service.sampling.sequential.staged import MAX_STAGES, MIN_STAGES, Stage
+from service.sampling.sequential.strata import MAX_STRATA, StratumInput
+from service.sampling.sequential.wording import (
+    SEQUENCE_GUARANTEE,
+    STRATA_GUARANTEE,
+    sequence_summary,
+    staged_curve_summary,
+    staged_evaluation_summary,
+    staged_plan_summary,
+    strata_summary,
+)
+
+_METHOD: dict[str, Any] = {
+    "validate": validate.OneOf(METHOD_NAMES, error="must be one of {choices}"),
+    "metadata": {
+        "description": "Distribution used: hypergeometric (finite population, without "
+        "replacement across stages), binomial, or poisson. Default: hypergeometric when "
+        "population.size is given, else binomial."
+    },
+}
+
+
+def _tolerable(description: str) -> Rate:
+    return Rate(
+        required=True,
+        metadata={"minimum": MIN_TOLERABLE_RATE, "description": description, "example": 0.05},
+    )
+
+
+class StagedPlanRequest(StrictSchema):
+    """A staged (stop-or-go) plan for a test of controls."""
+
+    population = fields.Nested(
+        PopulationSchema,
+        metadata={"description": "Absent for a population large enough to ignore its size."},
+    )
+    tolerable_rate = _tolerable("Tolerable deviation rate, as a fraction.")
+    expected_rate = Rate(
+        allow_zero=True,
+        load_default=0.0,
+        metadata={
+            "description": "Expected population deviation rate, as a fraction, below "
+            "tolerable_rate: the expected sample size is minimised at this rate.",
+            "example": 0.01,
+        },
+    )
+    confidence = _confidence()
+    method = StrictString(**_METHOD)
+    max_stages = StrictInteger(
+        load_default=2,
+        validate=validate.Range(
+            min=MIN_STAGES, max=MAX_STAGES, error="must be from {min} to {max}"
+        ),
+        metadata={"description": "Most stages the plan may have: 2 or 3.", "example": 2},
+    )
+
+    @validates_schema
+    def _expected_below_tolerable(self, data: dict[str, Any], **kwargs: Any) -> None:
+        tolerable, expected = data.get("tolerable_rate"), data.get("expected_rate")
+        if tolerable is not None and expected is not None and expected >= tolerable:
+            raise ValidationError(
+                f"expected_rate {expected!r} must be below tolerable_rate {tolerable!r}",
+                "expected_rate",
+            )
+
+    @post_load
+    def _to_core(self, data: dict[str, Any], **kwargs: Any) -> dict[str, Any]:
+        return _flatten_population(data)
+
+
+class StageSchema(StrictSchema):
+    """One stage of a staged plan; counts are cumulative over the stages."""
+
+    cumulative_sample_size = StrictInteger(
+        required=True,
+        validate=validate.Range(min=1, error="must be at least {min}"),
+        metadata={"description": "Items tested by the end of this stage, in all.", "example": 66},
+    )
+    accept_if_at_most = StrictInteger(
+        required=True,
+        validate=validate.Range(min=-1, error="must be at least {min}"),
+        metadata={
+            "description": "Accept when the deviations found so far are at most this "
+            "(-1: never accept at this stage).",
+            "example": 0,
+        },
+    )
+    fail_if_at_least = StrictInteger(
+        required=True,
+        validate=validate.Range(min=0, error="must be at least {min}"),
+        metadata={
+            "description": "Fail when the deviations found so far are at least this; in "
+            "between, extend to the next stage. At the last stage, accept_if_at_most + 1.",
+            "example": 2,
+        },
+    )
+
+    @post_load
+    def _to_core(self, data: dict[str, Any], **kwargs: Any) -> Stage:
+        return Stage(**data)
+
+
+class StageOut(Schema):
+    cumulative_sample_size = fields.Integer(required=True)
+    accept_if_at_most = fields.Integer(required=True)
+    fail_if_at_least = fields.Integer(required=True)
+
+
+class StagedPlanSchema(ResultSchema):
+    """A staged plan with its exact risks, beside the fixed-size plan for the same inputs."""
+
+    absent_when_none = ("population_label",)
+
+    stages = fields.List(fields.Nested(StageOut), required=True)
+    method = fields.String(required=True)
+    tolerable_rate = fields.Float(required=True)
+    expected_rate = fields.Float(required=True)
+    confidence = fields.Float(required=True)
+    max_stages = fields.Integer(required=True)
+    population_size = fields.Integer(required=True, allow_none=True)
+    population_label = fields.String()
+    risk_of_overreliance = fields.Float(
+        required=True,
+        metadata={
+            "description": "Exact probability that the plan accepts when the true rate is the "
+            "tolerable rate, over every stage."
+        },
+    )
+    achieved_confidence = fields.Float(required=True)
+    risk_of_underreliance = fields.Float(
+        required=True,
+        metadata={"description": "Exact probability that the plan fails at the expected rate."},
+    )
+    expected_sample_size_at_expected_rate = fields.Float(required=True)
+    expected_sample_size_at_tolerable_rate = fields.Float(required=True)
+    largest_sample_size = fields.Integer(required=True)
+    fixed_sample_size = fields.Integer(
+        required=True, metadata={"description": "Size of the fixed-size plan (/v1/sample-size)."}
+    )
+    fixed_allowed_deviations = fields.Integer(required=True)
+    fixed_risk_of_underreliance = fields.Float(required=True)
+    plans_examined = fields.Integer(
+        required=True, metadata={"description": "Candidate plans the bounded search examined."}
+    )
+    summary = fields.Function(
+        staged_plan_summary,
+        required=True,
+        metadata={"type": "string", "description": "Plain-English paragraph."},
+    )
+    warnings = fields.List(fields.String(), required=True)
+
+
+class StagedEvaluationRequest(StrictSchema):
+    """A finished staged test: the plan as run, where it stopped and what it found."""
+
+    population = fields.Nested(PopulationSchema)
+    stages = fields.List(
+        fields.Nested(StageSchema),
+        required=True,
+        validate=validate.Length(
+            min=1, max=MAX_STAGES, error="must hold from {min} to {max} stages"
+        ),
+        metadata={"description": "The plan as run (the stages of /v1/plans/staged)."},
+    )
+    stage_reached = StrictInteger(
+        required=True,
+        validate=validate.Range(min=1, error="must be at least {min}"),
+        metadata={"description": "Stage (from 1) at which the test stopped.", "example": 2},
+    )
+    deviations = StrictInteger(
+        required=True,
+        validate=validate.Range(min=0, error="must be at least {min}"),
+        metadata={"description": "Deviations found up to that stage, in all.", "example": 2},
+    )
+    tolerable_rate = _tolerable("Tolerable deviation rate, as a fraction.")
+    confidence = _confidence()
+    method = StrictString(**_METHOD)
+
+    @post_load
+    def _to_core(self, data: dict[str, Any], **kwargs: Any) -> dict[str, Any]:
+        return _flatten_population(data)
+
+
+class StagedEvaluationSchema(ResultSchema):
+    """A finished staged test, evaluated with the plan's own exact probabilities."""
+
+    absent_when_none = ("population_label",)
+
+    method = fields.String(required=True)
+    stages = fields.List(fields.Nested(StageOut), required=True)
+    stage_reached = fields.Integer(required=True)
+    sample_size = fields.Integer(
+        required=True, metadata={"description": "Items tested by the stage reached."}
+    )
+    deviations = fields.Integer(required=True)
+    confidence = fields.Float(required=True)
+    tolerable_rate = fields.Float(required=True)
+    population_size = fields.Integer(required=True, allow_none=True)
+    population_label = fields.String()
+    decision = fields.String(required=True, metadata={"enum": ["accept", "fail"]})
+    conclusion = fields.Function(
+        lambda r: "supports_reliance" if r.supports_reliance else "does_not_support_reliance",
+        required=True,
+        metadata={"type": "string", "enum": ["supports_reliance", "does_not_support_reliance"]},
+    )
+    plan_risk_of_overreliance = fields.Float(
+        required=True,
+        metadata={"description": "Exact probability that the plan accepts at the tolerable rate."},
+    )
+    risk_at_tolerable_rate = fields.Float(
+        required=True,
+        metadata={
+            "description": "Probability, at the tolerable rate, of an outcome at most as "
+            "unfavourable as the one observed (stage-wise ordering)."
+        },
+    )
+    sample_deviation_rate = fields.Float(required=True)
+    upper_deviation_limit = fields.Float(
+        required=True,
+        metadata={
+            "description": "Exact one-sided upper confidence bound from the staged test's own "
+            "probabilities (stage-wise ordering)."
+        },
+    )
+    fixed_size_formula = fields.Function(
+        lambda r: {
+            "upper_deviation_limit": r.fixed_size_upper_deviation_limit,
+            "risk_at_tolerable_rate": r.fixed_size_risk_at_tolerable_rate,
+            "supports_reliance": r.fixed_size_supports_reliance,
+        },
+        required=True,
+        metadata={
+            "type": "object",
+            "description": "For comparison only: the fixed-size formula applied to the items "
+            "tested, as if the sample size had been fixed in advance. Not valid for a staged "
+            "test.",
+            "properties": {
+                "upper_deviation_limit": {"type": "number"},
+                "risk_at_tolerable_rate": {"type": "number"},
+                "supports_reliance": {"type": "boolean"},
+            },
+            "required": ["upper_deviation_limit", "risk_at_tolerable_rate", "supports_reliance"],
+            "additionalProperties": False,
+        },
+    )
+    summary = fields.Function(
+        staged_evaluation_summary,
+        required=True,
+        metadata={"type": "string", "description": "Plain-English paragraph."},
+    )
+    warnings = fields.List(fields.String(), required=True)
+
+
+class StagedCurveRequest(StrictSchema):
+    """A staged plan whose curve is asked for (the stages of /v1/plans/staged)."""
+
+    population = fields.Nested(PopulationSchema)
+    stages = fields.List(
+        fields.Nested(StageSchema),
+        required=True,
+        validate=validate.Length(
+            min=1, max=MAX_STAGES, error="must hold from {min} to {max} stages"
+        ),
+        metadata={"description": "The plan's stages, as /v1/plans/staged returns them."},
+    )
+    method = StrictString(**_METHOD)
+    tolerable_rate = Rate(
+        metadata={
+            "minimum": MIN_TOLERABLE_RATE,
+            "description": "When given, the risk of overreliance at this rate is reported.",
+            "example": 0.05,
+        }
+    )
+    expected_rate = Rate(
+        allow_zero=True,
+        metadata={
+            "description": "When given, the risk of underreliance at this rate is reported.",
+            "example": 0.01,
+        },
+    )
+    points = StrictInteger(
+        load_default=CURVE_DEFAULT_POINTS,
+        validate=validate.Range(
+            min=CURVE_MIN_POINTS, max=CURVE_MAX_POINTS, error="must be from {min} to {max}"
+        ),
+        metadata={"description": "Evenly spaced rates on the curve, from 0."},
+    )
+
+    @post_load
+    def _to_core(self, data: dict[str, Any], **kwargs: Any) -> dict[str, Any]:
+        data = _flatten_population(data)
+        data.pop("population_label", None)
+        return data
+
+
+class StagedCurvePointSchema(Schema):
+    rate = fields.Float(required=True)
+    acceptance_probability = fields.Float(
+        required=True, metadata={"description": "Probability that the plan accepts."}
+    )
+    expected_sample_size = fields.Float(
+        required=True, metadata={"description": "Expected number of items tested."}
+    )
+
+
+class StagedCurveSchema(ResultSchema):
+    """Acceptance probability and expected sample size of a staged plan against the rate."""
+
+    absent_when_none = (
+        "tolerable_rate",
+        "expected_rate",
+        "risk_of_overreliance",
+        "risk_of_underreliance",
+        "expected_sample_size_at_tolerable_rate",
+        "expected_sample_size_at_expected_rate",
+    )
+
+    method = fields.String(required=True)
+    stages = fields.List(fields.Nested(StageOut), required=True)
+    population_size = fields.Integer(required=True, allow_none=True)
+    tolerable_rate = fields.Float()
+    expected_rate = fields.Float()
+    risk_of_overreliance = fields.Float()
+    risk_of_underreliance = fields.Float()
+    expected_sample_size_at_tolerable_rate = fields.Float()
+    expected_sample_size_at_expected_rate = fields.Float()
+    points = fields.List(fields.Nested(StagedCurvePointSchema), required=True)
+    summary = fields.Function(
+        staged_curve_summary,
+        required=True,
+        metadata={"type": "string", "description": "Plain-English paragraph."},
+    )
+
+
+class StratumCountsSchema(StrictSchema):
+    """One stratum: its population, the items tested and the deviations found."""
+
+    label = StrictString(
+        required=True,
+        validate=validate.Length(min=1, max=200, error="must be from {min} to {max} characters"),
+        metadata={"description": "Name of the stratum, unique in the request.",
+                  "example": "Plant A"},
+    )
+    population_size = StrictInteger(
+        required=True,
+        validate=validate.Range(min=1, error="must be at least {min}"),
+        metadata={"description": "Items in the stratum.", "example": 1200},
+    )
+    sample_size = StrictInteger(
+        required=True,
+        validate=validate.Range(min=1, error="must be at least {min}"),
+        metadata={"description": "Items tested in the stratum.", "example": 40},
+    )
+    deviations = StrictInteger(
+        required=True,
+        validate=validate.Range(min=0, error="must be at least {min}"),
+        metadata={"description": "Deviations found in the stratum.", "example": 0},
+    )
+
+    @post_load
+    def _to_core(self, data: dict[str, Any], **kwargs: Any) -> StratumInput:
+        return StratumInput(**data)
+
+
+class StrataEvaluationRequest(StrictSchema):
+    """A population sampled in strata."""
+
+    strata = fields.List(
+        fields.Nested(StratumCountsSchema),
+        required=True,
+        validate=validate.Length(
+            min=1, max=MAX_STRATA, error="must hold from {min} to {max} strata"
+        ),
+        metadata={"description": "Each stratum's population, sample and deviations."},
+    )
+    confidence = _confidence()
+    tolerable_rate = Rate(
+        metadata={
+            "minimum": MIN_TOLERABLE_RATE,
+            "description": "When given, each stratum and the whole population are judged.",
+            "example": 0.05,
+        },
+    )
+    expected_rate = Rate(
+        allow_zero=True,
+        load_default=0.0,
+        metadata={
+            "description": "The planned expected deviation rate: used only to split the risk "
+            "among the strata, as it was known before the results.",
+            "example": 0.0,
+        },
+    )
+
+    @validates_schema
+    def _consistent(self, data: dict[str, Any], **kwargs: Any) -> None:
+        errors: dict[str, list[str]] = {}
+        labels: dict[str, int] = {}
+        for i, stratum in enumerate(data.get("strata") or []):
+            if stratum.label in labels:
+                errors[f"strata[{i}].label"] = [
+                    f"label {stratum.label!r} repeats that of strata[{labels[stratum.label]}]"
+                ]
+            labels.setdefault(stratum.label, i)
+            if stratum.sample_size > stratum.population_size:
+                errors[f"strata[{i}].sample_size"] = [
+                    f"sample_size {stratum.sample_size} must not exceed population_size "
+                    f"{stratum.population_size}"
+                ]
+            if stratum.deviations > stratum.sample_size:
+                errors[f"strata[{i}].deviations"] = [
+                    f"deviations {stratum.deviations} must not exceed sample_size "
+                    f"{stratum.sample_size}"
+                ]
+        tolerable, expected = data.get("tolerable_rate"), data.get("expected_rate")
+        if tolerable is not None and expected is not None and expected >= tolerable:
+            errors["expected_rate"] = [
+                f"expected_rate {expected!r} must be below tolerable_rate {tolerable!r}"
+            ]
+        if errors:
+            raise ValidationError(errors)
+
+
+class StratumResultSchema(Schema):
+    label = fields.String(required=True)
+    population_size = fields.Integer(required=True)
+    sample_size = fields.Integer(required=True)
+    deviations = fields.Integer(required=True)
+    risk_share = fields.Float(
+        required=True,
+        metadata={"description": "The part of 1 − confidence given to this stratum."},
+    )
+    upper_deviation_count = fields.Integer(
+        required=True,
+        metadata={"description": "This stratum's exact upper bound on deviant items at "
+                  "confidence 1 − risk_share: its part of the combined limit."},
+    )
+    evaluation = fields.Nested(
+        EvaluationSchema,
+        required=True,
+        metadata={"description": "The stratum's own evaluation at the full confidence."},
+    )
+
+
+class StrataEvaluationSchema(ResultSchema):
+    """Each stratum's evaluation and one upper deviation limit for the whole population."""
+
+    absent_when_none = ("tolerable_rate", "tolerable_deviant_items", "conclusion")
+
+    confidence = fields.Float(required=True)
+    tolerable_rate = fields.Float()
+    expected_rate = fields.Float(required=True)
+    population_size = fields.Integer(required=True)
+    sample_size = fields.Integer(required=True)
+    deviations = fields.Integer(required=True)
+    strata = fields.List(fields.Nested(StratumResultSchema), required=True)
+    estimated_deviation_rate = fields.Float(
+        required=True, metadata={"description": "Σ N_h d_h / n_h, divided by Σ N_h."}
+    )
+    upper_deviation_count = fields.Integer(required=True)
+    upper_deviation_limit = fields.Float(
+        required=True,
+        metadata={"description": "upper_deviation_count / population_size, with guaranteed "
+                  "coverage (see guarantee)."},
+    )
+    tolerable_deviant_items = fields.Integer()
+    conclusion = fields.Function(
+        lambda r: None if r.supports_reliance is None else (
+            "supports_reliance" if r.supports_reliance else "does_not_support_reliance"),
+        metadata={"type": "string", "enum": ["supports_reliance", "does_not_support_reliance"],
+                  "description": "Present only when tolerable_rate is given."},
+    )
+    guarantee = fields.Function(
+        lambda r: STRATA_GUARANTEE,
+        required=True,
+        metadata={"type": "string", "description": "What the combined limit guarantees."},
+    )
+    summary = fields.Function(
+        strata_summary,
+        required=True,
+        metadata={"type": "string", "description": "Plain-English paragraph."},
+    )
+    warnings = fields.List(fields.String(), required=True)
+
+
+class DeviationFlag(fields.Field):  # type: ignore[type-arg]
+    """true/false or 1/0: whether a tested item was a deviation. Nothing else is read as one."""
+
+    default_error_messages = {  # noqa: RUF012 - marshmallow's documented extension point
+        "invalid": "must be true, false, 1 or 0",
+    }
+
+    def _deserialize(self, value: Any, attr: str | None, data: Any, **kwargs: Any) -> bool:
+        if isinstance(value, bool):
+            return value
+        if type(value) is int and value in (0, 1):
+            return bool(value)
+        raise self.make_error("invalid")
+
+
+class SequenceRequest(StrictSchema):
+    """The results of an open-ended test, in the order the items were tested."""
+
+    results = fields.List(
+        DeviationFlag(metadata={"oneOf": [{"type": "boolean"},
+                                          {"type": "integer", "enum": [0, 1]}]}),
+        required=True,
+        validate=validate.Length(
+            min=1, max=MAX_RESULTS, error="must hold from {min} to {max} results"
+        ),
+        metadata={
+            "description": "One entry per tested item, in testing order: true (or 1) for a "
+            "deviation, false (or 0) otherwise.",
+            "example": [False, False, True, False],
+        },
+    )
+    confidence = _confidence()
+    population = fields.Nested(
+        PopulationSchema,
+        metadata={"description": "When given, the without-replacement form is used."},
+    )
+    tolerable_rate = Rate(
+        metadata={
+            "minimum": MIN_TOLERABLE_RATE,
+            "description": "When given: whether, and from which item on, the limit is below it.",
+            "example": 0.05,
+        },
+    )
+
+    @validates_schema
+    def _fits_population(self, data: dict[str, Any], **kwargs: Any) -> None:
+        size = (data.get("population") or {}).get("size")
+        results = data.get("results")
+        if size is not None and results is not None and len(results) > size:
+            raise ValidationError(
+                f"population.size {size} is below the {len(results)} items tested",
+                "population.size",
+            )
+
+    @post_load
+    def _to_core(self, data: dict[str, Any], **kwargs: Any) -> dict[str, Any]:
+        data = _flatten_population(data)
+        data.pop("population_label", None)
+        return data
+
+
+class SequencePointSchema(Schema):
+    sample_size = fields.Integer(required=True)
+    deviations = fields.Integer(required=True)
+    upper_deviation_limit = fields.Float(
+        required=True, metadata={"description": "Valid at any stopping time."}
+    )
+    fixed_size_upper_deviation_limit = fields.Float(
+        required=True,
+        metadata={"description": "Clopper–Pearson, for comparison only: valid only for a "
+                  "sample size fixed in advance."},
+    )
+
+
+class SequenceSchema(ResultSchema):
+    """Upper deviation limits after each tested item, valid at any stopping time."""
+
+    absent_when_none = ("tolerable_rate", "conclusion", "first_supporting_sample_size")
+
+    method = fields.String(
+        required=True, metadata={"enum": ["with_replacement", "without_replacement"]}
+    )
+    confidence = fields.Float(required=True)
+    population_size = fields.Integer(required=True, allow_none=True)
+    tolerable_rate = fields.Float()
+    sample_size = fields.Integer(required=True)
+    deviations = fields.Integer(required=True)
+    upper_deviation_limit = fields.Float(
+        required=True, metadata={"description": "After the last item; valid at any stopping time."}
+    )
+    first_supporting_sample_size = fields.Integer(
+        metadata={"description": "First item after which the limit was below tolerable_rate."}
+    )
+    conclusion = fields.Function(
+        lambda r: None if r.supports_reliance is None else (
+            "supports_reliance" if r.supports_reliance else "does_not_support_reliance"),
+        metadata={"type": "string", "enum": ["supports_reliance", "does_not_support_reliance"]},
+    )
+    points = fields.List(fields.Nested(SequencePointSchema), required=True)
+    guarantee = fields.Function(
+        lambda r: SEQUENCE_GUARANTEE,
+        required=True,
+        metadata={"type": "string", "description": "What the limits guarantee."},
+    )
+    summary = fields.Function(
+        sequence_summary,
+        required=True,
+        metadata={"type": "string", "description": "Plain-English paragraph."},
+    )
