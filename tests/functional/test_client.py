@@ -95,8 +95,10 @@ def test_the_selection_csv_lists_the_json_selection(client: SamplingClient) -> N
                "sample_size": 25, "seed": "northwind-2026-q3"}
     chosen = client.selection(request)
     text = client.selection_csv(request)
-    assert text.startswith("\ufeffdraw,item,position\r\n")
-    rows = list(csv.reader(io.StringIO(text.removeprefix("\ufeff"))))[1:]
+    assert text.startswith("\ufeffselection,")  # the header block, then the draws
+    rows = list(csv.reader(io.StringIO(text.removeprefix("\ufeff"))))
+    start = rows.index(["draw", "item", "position"]) + 1
+    rows = rows[start:rows.index([], start)]
     assert rows == [[str(k), str(item), str(position)] for k, (item, position) in
                     enumerate(zip(chosen["items"], chosen["positions"], strict=True), 1)]
 
