@@ -46,6 +46,7 @@ _LABELS = {
     "upper_deviation_count": "Upper deviation count",
     "ratio_to_exact": "Ratio to exact",
     "finite_population_correction": "Finite population correction",
+    "strata.strata": "Suggested amount strata",
 }
 
 # Rates and probabilities, shown as percentages.
