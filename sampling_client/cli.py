@@ -477,6 +477,36 @@ def _emit(args: argparse.Namespace, data: str | bytes) -> None:
         _write_file("--output", args.output_file, raw)
 
 
+def _send_controls(args: argparse.Namespace, client: SamplingClient,
+                   rows: Sequence[controls.Control],
+                   items: list[dict[str, Any]]) -> dict[str, Any]:
+    """The answers of every control, in the file's order, as a batch answers them: the
+    controls with a population file each sent with it, the others as one batch."""
+    operation = args.operation.name
+    answers = iter(client.batch(items, chunk_size=api.MAX_BATCH_OPERATIONS,
+                                request_id=args.request_id)["results"] if items else [])
+    results: list[dict[str, Any]] = []
+    for row in rows:
+        if row.file is None:
+            results.append(next(answers))
+            continue
+        try:
+            result = client.call_file(operation, row.file, row.request,
+                                      request_id=args.request_id)
+        except AuthenticationFailed:
+            raise
+        except RequestRejected as refused:
+            results.append({"id": row.control_id, "status": refused.status,
+                            "problem": refused.problem})
+            continue
+        except OSError as exc:
+            raise UsageProblem(f"{args.controls}, line {row.line}, column "
+                               f"{controls.FILE_COLUMN}: {row.file}: "
+                               f"{exc.strerror or exc}") from None
+        results.append({"id": row.control_id, "status": 200, "result": result})
+    return {"results": results}
+
+
 def _batch_status(results: Sequence[Mapping[str, Any]]) -> int:
     return EXIT_OK if all(r.get("status") == 200 for r in results) else EXIT_REFUSED
 
@@ -492,25 +522,29 @@ def _run_controls(args: argparse.Namespace, shared: dict[str, Any]) -> int:
                            "text/markdown for one workpaper block per control")
     given = _leaf_names(shared)
     try:
-        rows = controls.read_controls(args.controls, args.specs)
+        rows = controls.read_controls(args.controls, args.specs, files=operation.accepts_file,
+                                      file_required=operation.file_required)
     except controls.ControlsFileError as problem:
         raise UsageProblem(str(problem)) from None
     twice = sorted(given & {name for row in rows for name in _leaf_names(row.request)})
     if twice:
         raise UsageProblem(f"{args.controls}: {', '.join(twice)} is given both on the command "
                            "line and in the file; give each field in one place")
-    items = controls.batch_operations(
-        [controls.Control(r.control_id, r.line, _merge(shared, r.request)) for r in rows],
-        operation.name,
-    )
+    merged = [controls.Control(r.control_id, r.line, _merge(shared, r.request), r.file)
+              for r in rows]
+    batched = [row for row in merged if row.file is None]
+    items = controls.batch_operations(batched, operation.name)
     ids = [r.control_id for r in rows]
     items_out = getattr(args, "items_out", None)
     if items_out is not None:
         _check_writable("--items-out", items_out)
-    args.control_rows = rows  # so that a refusal of the whole batch can name the rows
+    args.control_rows = batched  # so that a refusal of the whole batch can name the rows
     text = None
-    with _client(args) as client:
-        if args.output == "json" and len(items) <= api.MAX_BATCH_OPERATIONS:
+    with _client(args, sends_files=len(batched) < len(merged)) as client:
+        if len(batched) < len(merged):
+            document = _send_controls(args, client, merged, items)
+            results = document["results"]
+        elif args.output == "json" and len(items) <= api.MAX_BATCH_OPERATIONS:
             text = client.call_text("batch", {"operations": items}, JSON,
                                     request_id=args.request_id)
             results = json.loads(text)["results"]

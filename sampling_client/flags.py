@@ -75,6 +75,8 @@ class FieldSpec:
     # A list field whose presence makes this one optional (``attributes`` for
     # ``tolerable_rate``): where no list can be given, as in a controls file, it is required.
     required_unless: str | None = None
+    # An exact amount, which a table cell (a controls file's) gives as the text written.
+    amount: bool = False
 
     @property
     def name(self) -> str:
@@ -168,7 +170,8 @@ def field_specs(schema: Schema, prefix: tuple[str, ...] = ()) -> list[FieldSpec]
         default = None if default is None or callable(default) or _is_missing(default) else default
         specs.append(FieldSpec(path, kind, field.required, _description(field),
                                _choices(field), default,
-                               required_unless=field.metadata.get("required_unless")))
+                               required_unless=field.metadata.get("required_unless"),
+                               amount=_accepts_text(field)))
     return specs
 
 
@@ -406,7 +409,7 @@ def file_dest(spec: FieldSpec) -> str:
 
 
 def add_flags(
-    parser: argparse.ArgumentParser,
+    parser: argparse.ArgumentParser | argparse._ArgumentGroup,
     specs: list[FieldSpec],
     groups: Mapping[tuple[str, ...], str] | None = None,
 ) -> None:

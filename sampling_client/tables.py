@@ -64,7 +64,24 @@ HEADLINES: dict[str, tuple[str, ...]] = {
     "estimation-sample-size": ("recommended",),
     "selection": ("population_size", "sample_size", "seed", "seed_generated",
                   "selection_fingerprint"),
+    "population-profile": ("rows_read", "rows_kept", "distinct_ids", "repeated_ids",
+                           "blank_ids", "amounts.total", "reconciliation.total_difference",
+                           "reconciliation.count_difference", "reconciliation.reconciles"),
+    "population-stratified-selection": ("sample_size", "seed", "seed_generated", "method",
+                                        "allocation"),
 }
+
+
+def field_value(result: Mapping[str, Any], path: str) -> Any:
+    """The value at ``path`` (``amounts.total``) of an answer, None where it has none.
+
+    >>> field_value({"amounts": {"total": "12.50"}}, "amounts.total")
+    '12.50'
+    """
+    value: Any = result
+    for key in path.split("."):
+        value = value.get(key) if isinstance(value, Mapping) else None
+    return value
 
 
 def label(path: str) -> str:
@@ -144,11 +161,22 @@ def _is_objects(value: Any) -> bool:
 
 
 def _objects_table(name: str, items: list[Mapping[str, Any]]) -> list[str]:
+    """A list of objects as a table; objects that carry a summary of their own (one
+    evaluation per attribute) have it as a paragraph under the table, after their first
+    column's value, and their nested objects left to ``--json``."""
+    summarised = any(isinstance(item.get("summary"), str) for item in items)
     columns: list[str] = []
     for item in items:
-        columns += [k for k, v in item.items() if k not in columns and not isinstance(v, list)]
+        columns += [k for k, v in item.items() if k not in columns and not isinstance(v, list)
+                    and not (summarised and (k in _NOT_SHOWN or isinstance(v, Mapping)))]
     rows = [[value_text(c, item.get(c)) for c in columns] for item in items]
-    return [f"{label(name)}:", "", *aligned(rows, [label(c) for c in columns])]
+    lines = [f"{label(name)}:", "", *aligned(rows, [label(c) for c in columns])]
+    for item in items if summarised else ():
+        summary = item.get("summary")
+        if isinstance(summary, str) and summary:
+            lead = f"{item.get(columns[0])}: " if columns else ""
+            lines += ["", *_paragraph(lead + split_caution(summary))]
+    return lines
 
 
 def _selected_items(document: Mapping[str, Any]) -> list[str] | None:
@@ -259,7 +287,7 @@ def _rows(ids: Sequence[str], results: Sequence[Mapping[str, Any]],
             notes.append(f"{control}: {warning}")
             numbers.append(f"[{len(notes)}]")
         if isinstance(result, Mapping):
-            cells = [value_text(c, result.get(c)) for c in columns]
+            cells = [value_text(c, field_value(result, c)) for c in columns]
             rows.append([control, *cells, " ".join(numbers), ""])
         else:
             refused = True
@@ -397,7 +425,7 @@ def controls_csv(
     for index, (control, answer) in enumerate(zip(ids, results, strict=True)):
         result = answer.get("result")
         if isinstance(result, Mapping):
-            cells = [_csv_value(result.get(c)) for c in columns]
+            cells = [_csv_value(field_value(result, c)) for c in columns]
             problem = ""
         else:
             cells = [""] * len(columns)
