@@ -11,6 +11,7 @@ from __future__ import annotations
 import csv
 import io
 import json
+import re
 import textwrap
 from collections.abc import Iterable, Mapping, Sequence
 from typing import Any
@@ -436,13 +437,18 @@ def controls_csv(
     return out.getvalue()
 
 
+# An exact amount of an answer (a string such as "-7.24"): a spreadsheet reads it as the
+# number it is, never as a formula, so it is written without the guard's quote.
+_PLAIN_AMOUNT = re.compile(r"-?[0-9]+(\.[0-9]+)?")
+
+
 def _csv_value(value: Any) -> Any:
     if value is None:
         return ""
     if isinstance(value, bool):
         return "true" if value else "false"
     if isinstance(value, str):
-        return csv_cell(value)
+        return value if _PLAIN_AMOUNT.fullmatch(value) else csv_cell(value)
     return value
 
 
