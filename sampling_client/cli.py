@@ -652,13 +652,17 @@ class Sources:
     lists: Mapping[str, str] = field(default_factory=dict)
     controls_file: str | None = None
     rows: Sequence[controls.Control] = ()
+    #: The flag and path of the file sent with the request (--file, --test-sheet).
+    upload: tuple[str, str] | None = None
 
 
 def sources(args: argparse.Namespace) -> Sources:
     """Where the request of ``args`` came from (see :class:`Sources`)."""
     lists = {spec.dotted: path for spec in getattr(args, "specs", ())
              if (path := getattr(args, flags.file_dest(spec), None)) is not None}
-    return Sources(lists, getattr(args, "controls", None), getattr(args, "control_rows", ()))
+    upload = getattr(args, "upload", None)
+    return Sources(lists, getattr(args, "controls", None), getattr(args, "control_rows", ()),
+                   None if upload is None else (_upload_flag(args), upload))
 
 
 def _field_flag(name: str, specs: Sequence[flags.FieldSpec], where: Sources = Sources()) -> str:
@@ -673,6 +677,8 @@ def _field_flag(name: str, specs: Sequence[flags.FieldSpec], where: Sources = So
                 f"{item.group(2) or 'request'}")
     if name in where.lists:
         return f"{where.lists[name]} ({name})"
+    if name == "file" and where.upload is not None:
+        return f"{where.upload[0]} {where.upload[1]} (file)"
     entry = _ENTRY_FIELD.fullmatch(name)
     if entry is not None and entry.group(1) in where.lists:
         # file_lines keeps every line up to the last entry, so entry k is on line k + 1.
