@@ -161,22 +161,42 @@ def _is_objects(value: Any) -> bool:
     return isinstance(value, list) and bool(value) and all(isinstance(v, Mapping) for v in value)
 
 
+#: The columns of a list of objects whose full content is in ``--json``: the attributes of
+#: a test sheet's evaluation, the strata of a stratified selection.
+_LIST_COLUMNS = {
+    "evaluations": ("attribute", "passed", "deviations_found", "not_tested",
+                    "sample_deviation_rate", "upper_deviation_limit",
+                    "allowance_for_sampling_risk", "tolerable_rate", "conclusion"),
+    "strata": ("label", "population_size", "total", "standard_deviation", "sample_size",
+               "taken_in_full", "seed"),
+}
+
+
 def _objects_table(name: str, items: list[Mapping[str, Any]]) -> list[str]:
     """A list of objects as a table; objects that carry a summary of their own (one
-    evaluation per attribute) have it as a paragraph under the table, after their first
-    column's value, and their nested objects left to ``--json``."""
+    evaluation per attribute) have it as a paragraph under the table, and objects with
+    selected items (strata) their items, each after their first column's value."""
     summarised = any(isinstance(item.get("summary"), str) for item in items)
     columns: list[str] = []
     for item in items:
         columns += [k for k, v in item.items() if k not in columns and not isinstance(v, list)
                     and not (summarised and (k in _NOT_SHOWN or isinstance(v, Mapping)))]
+    if name in _LIST_COLUMNS and set(_LIST_COLUMNS[name]) <= set(columns):
+        columns = list(_LIST_COLUMNS[name])
     rows = [[value_text(c, item.get(c)) for c in columns] for item in items]
     lines = [f"{label(name)}:", "", *aligned(rows, [label(c) for c in columns])]
-    for item in items if summarised else ():
-        summary = item.get("summary")
+    listed: list[str] = []
+    for item in items:
+        lead = f"{item.get(columns[0])}" if columns else ""
+        summary, chosen = item.get("summary"), item.get("items")
         if isinstance(summary, str) and summary:
-            lead = f"{item.get(columns[0])}: " if columns else ""
-            lines += ["", *_paragraph(lead + split_caution(summary))]
+            lines += ["", *_paragraph(f"{lead}: {split_caution(summary)}")]
+        elif isinstance(chosen, list) and chosen:
+            text = f"{lead} ({len(chosen):,}): " + ", ".join(_item_text(i) for i in chosen)
+            listed += textwrap.wrap(text, WIDTH, subsequent_indent="    ",
+                                    break_on_hyphens=False)
+    if listed:
+        lines += ["", "Selected items, in draw order:", *listed]
     return lines
 
 
