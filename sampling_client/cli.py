@@ -212,7 +212,10 @@ def _add_operation(subparsers: Any, operation: Any, common: argparse.ArgumentPar
             f"{api.MAX_BATCH_OPERATIONS:,}): a CSV file whose header names {controls.ID_COLUMN} "
             f"and any of {columns}. Numbers are plain decimals (0.05, not 5%% or 0,05); a "
             "blank cell leaves the field to the service's default; flags given apply to "
-            "every row. Prints one row per control, its warnings numbered under the table.",
+            "every row. Prints one row per control, its warnings numbered under the table."
+            + (f" A {controls.FILE_COLUMN} column names each control's population file "
+               "(relative to the controls file's folder); such a control is sent with its "
+               "file, on its own." if operation.accepts_file else ""),
         )
     if operation.name == "selection":
         parser.add_argument(

@@ -385,3 +385,21 @@ def test_the_client_returns_the_workbook_bytes(
         attributes=list(ATTRIBUTES))
     assert data.startswith(b"PK")
     assert "Tests" in openpyxl.load_workbook(io.BytesIO(data), read_only=True).sheetnames
+
+
+def test_the_stratified_table_lists_each_stratums_items(
+    through_app: requests.Session, adapter: AppAdapter, capsys: pytest.CaptureFixture[bytes]
+) -> None:
+    argv = ["stratified-selection", "--file", str(ORDERS), "--id-column", "doc_no",
+            "--amount-column", "amount", "--strata-bands", '["500"]', "--strata-top-threshold",
+            "3000", "--sample-size", "6", "--seed", "hl-strata"]
+    status, out, err = run(capsys, *argv, "--json")
+    assert status == 0, err
+    strata = json.loads(out)["strata"]
+    status, out, err = run(capsys, *argv)
+    assert status == 0, err
+    listed = " ".join(out.split("Selected items, in draw order:\n", 1)[1].split("\n\n")[0].split())
+    assert listed == " ".join(
+        f"{s['label']} ({len(s['items'])}): {', '.join(s['items'])}" for s in strata if s["items"])
+    # A call that sends a file waits longer for its answer than the default 10 s.
+    assert adapter.timeouts[-1] == (10.0, 600.0)
