@@ -389,9 +389,11 @@ def _run_operation(args: argparse.Namespace) -> int:
     if args.output_file is not None:
         _check_writable("--output", args.output_file)
     if getattr(args, "controls", None):
+        if upload is not None and operation.accepts_file:
+            raise UsageProblem(f"--file cannot be given with --controls; give each control's "
+                               f"file in the {controls.FILE_COLUMN} column")
         if upload is not None:
-            raise UsageProblem(f"{_upload_flag(args)} cannot be given with --controls; give "
-                               f"each control's file in the {controls.FILE_COLUMN} column")
+            raise UsageProblem(f"{_upload_flag(args)} cannot be given with --controls")
         return _run_controls(args, body)
     if args.output in _BINARY and args.output_file is None and sys.stdout.isatty():
         raise UsageProblem(f"--{args.output} writes a binary file: give --output FILE, or "

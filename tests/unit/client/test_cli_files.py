@@ -129,6 +129,8 @@ def test_a_file_that_cannot_be_read_is_a_usage_error(
      "--not-tested needs --test-sheet"),
     (["selection", "--file", str(ORDERS), "--controls", str(ORDERS)],
      "--file cannot be given with --controls; give each control's file in the file column"),
+    (["evaluation", "--test-sheet", str(ORDERS), "--controls", str(ORDERS)],
+     "--test-sheet cannot be given with --controls"),
     (["profile", "--file", str(ORDERS), "--id-column", "doc_no", "--output",
       "no-such-folder/profile.txt"], "--output no-such-folder/profile.txt: no such folder"),
 ])
