@@ -184,7 +184,12 @@ def _objects_table(name: str, items: list[Mapping[str, Any]]) -> list[str]:
     if name in _LIST_COLUMNS and set(_LIST_COLUMNS[name]) <= set(columns):
         columns = list(_LIST_COLUMNS[name])
     rows = [[value_text(c, item.get(c)) for c in columns] for item in items]
-    lines = [f"{label(name)}:", "", *aligned(rows, [label(c) for c in columns])]
+    # A file's records keep the file's own column names, and its cells are text as written.
+    headers = columns if name == "records" else [label(c) for c in columns]
+    if name == "records":
+        rows = [[str(item.get(c) if item.get(c) is not None else "") for c in columns]
+                for item in items]
+    lines = [f"{label(name)}:", "", *aligned(rows, headers)]
     listed: list[str] = []
     for item in items:
         lead = f"{item.get(columns[0])}" if columns else ""
