@@ -37,7 +37,7 @@ from urllib.parse import urlsplit
 
 import requests
 
-from sampling_client.multipart import FileUpload
+from sampling_client.multipart import FileChanged, FileUpload
 from sampling_client.retrying import RetryPolicy
 
 DEFAULT_URL = "http://127.0.0.1:8000"
@@ -213,6 +213,20 @@ def _media_type(response: requests.Response) -> str:
 def _is_json(media_type: str) -> bool:
     return media_type == JSON or (media_type.startswith("application/") and
                                   media_type.endswith("+json"))
+
+
+def _file_changed(exc: BaseException) -> FileChanged | None:
+    """The :class:`FileChanged` behind a connection error, if the upload raised one (requests
+    and urllib3 wrap what the body raised while it was sent)."""
+    seen: BaseException | None = exc
+    for _ in range(10):
+        if seen is None:
+            return None
+        if isinstance(seen, FileChanged):
+            return seen
+        inner = [a for a in getattr(seen, "args", ()) if isinstance(a, BaseException)]
+        seen = seen.__cause__ or seen.__context__ or (inner[-1] if inner else None)
+    return None
 
 
 def _connection_reason(exc: requests.RequestException, timeout: Timeout) -> str:
@@ -624,6 +638,9 @@ class SamplingClient:
                     method, url, data=data, headers=headers, timeout=wait, allow_redirects=False
                 )
             except requests.ConnectionError as exc:  # ConnectTimeout is one too
+                changed = _file_changed(exc)
+                if changed is not None:
+                    raise changed from None  # the file's fault, not the connection's
                 if attempt < self.retry.retries:
                     self._sleep(self.retry.delay(attempt))
                     attempt += 1

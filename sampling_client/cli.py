@@ -20,6 +20,8 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any, NoReturn
 
+import requests
+
 from sampling_client import api, controls, flags, tables
 from sampling_client.api import (
     DEFAULT_URL,
@@ -464,6 +466,8 @@ def _run_upload(args: argparse.Namespace, body: dict[str, Any]) -> int:
                 t for t, name in _FORMAT_FLAGS.items() if name == args.output)
             data = client.call_file_bytes(operation.name, path, body, media_type,
                                           request_id=args.request_id)
+    except requests.RequestException:
+        raise  # an OSError too, but the transport's, not the file's
     except OSError as exc:
         raise UsageProblem(f"{_upload_flag(args)} {path}: {exc.strerror or exc}") from None
     if media_type == JSON and not data.endswith(b"\n"):
@@ -504,6 +508,8 @@ def _send_controls(args: argparse.Namespace, client: SamplingClient,
             results.append({"id": row.control_id, "status": refused.status,
                             "problem": refused.problem})
             continue
+        except requests.RequestException:
+            raise
         except OSError as exc:
             raise UsageProblem(f"{args.controls}, line {row.line}, column "
                                f"{controls.FILE_COLUMN}: {row.file}: "

@@ -405,3 +405,33 @@ def test_the_stratified_table_lists_each_stratums_items(
         f"{s['label']} ({len(s['items'])}): {', '.join(s['items'])}" for s in strata if s["items"])
     # A call that sends a file waits longer for its answer than the default 10 s.
     assert adapter.timeouts[-1] == (10.0, 600.0)
+
+
+def _aborted_by(cause: BaseException) -> requests.ConnectionError:
+    """The error requests raises when the body raised ``cause`` while urllib3 sent it."""
+    from urllib3.exceptions import ProtocolError
+
+    try:
+        try:
+            raise cause
+        except BaseException as raised:
+            raise ProtocolError("Connection aborted.", raised) from None
+    except ProtocolError as aborted:
+        return requests.ConnectionError(aborted)
+
+
+def test_a_file_that_changes_while_sent_is_said_so_and_not_tried_again(
+    monkeypatch: pytest.MonkeyPatch, capsys: pytest.CaptureFixture[bytes]
+) -> None:
+    session = ScriptedSession([_aborted_by(multipart.FileChanged("orders.csv changed size")),
+                               (200, {"rows_read": 60}, None)])
+
+    def make(*args: Any, **kwargs: Any) -> SamplingClient:
+        return SamplingClient(*args, session=session, sleep=lambda s: None,  # type: ignore[arg-type]
+                              **kwargs)
+
+    monkeypatch.setattr(cli, "SamplingClient", make)
+    status, _, err = run(capsys, "profile", "--file", str(ORDERS), "--id-column", "doc_no")
+    assert status == 2
+    assert f"--file {ORDERS}: orders.csv changed size" in err
+    assert len(session.calls) == 1
