@@ -5,6 +5,12 @@
 >>> client.sample_size(tolerable_rate=0.05, expected_rate=0.01)["sample_size"]  # doctest: +SKIP
 93
 
+A population file or a completed test sheet goes with its request as
+``multipart/form-data``, streamed from disk as it is sent (:mod:`sampling_client.multipart`):
+``client.population_profile("ledger.csv", population={"file": {"id_column": "doc_no"}})``,
+:meth:`SamplingClient.selection_from_file`, :meth:`SamplingClient.test_sheet_evaluation` and
+the others, or :meth:`SamplingClient.call_file` for any operation that reads a file.
+
 Every call has a timeout. A call is tried again only when the connection could not be
 made or the service answered ``503`` (see :mod:`sampling_client.retrying`); every endpoint
 is a stateless computation whose answer depends only on the request, so sending a POST

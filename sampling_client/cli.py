@@ -2,8 +2,11 @@
 
 One subcommand per operation of the service (its operationId), with one flag per request
 field derived from the operation's request schema (:mod:`sampling_client.flags`), so a new
-endpoint or field is on the command line without new code here. ``serve`` runs the
-service itself under gunicorn; ``health`` and ``ready`` ask a running one how it is.
+endpoint or field is on the command line without new code here. An operation that reads a
+file takes it with ``--file`` (a population file) or ``--test-sheet`` (a completed test
+sheet, for ``evaluation``), and an answer that is a file (``--xlsx``) goes to ``--output``.
+``serve`` runs the service itself under gunicorn; ``health`` and ``ready`` ask a running
+one how it is.
 """
 
 from __future__ import annotations
