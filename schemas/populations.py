@@ -72,6 +72,8 @@ _NAME = validate.Length(min=1, max=MAX_NAME, error="must have between {min} and 
 class Amount(fields.Field[Decimal]):
     """An exact amount: a string in plain decimal notation, or a JSON number."""
 
+    accepts_text = True  # the command line sends table cells for this field as they are
+
     default_error_messages = {  # noqa: RUF012 - marshmallow's documented extension point
         "invalid": "must be an amount (a number, or a string such as \"1234.56\"), not {kind}",
         "format": "must be written as digits with an optional '.' and at most "
