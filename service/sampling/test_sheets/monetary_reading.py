@@ -117,23 +117,26 @@ def _whole(facts: dict[str, Cell], key: str) -> int:
         raise InvalidInput(FIELD, f"the record sheet's {key} is damaged") from None
 
 
+def _item(cells: list[Any]) -> RecordedItem:
+    try:
+        line, kind, identifier, amount, hits = (_text(c) for c in cells)
+        item = RecordedItem(int(line), kind, identifier, int(amount), int(hits))
+    except ValueError:
+        raise InvalidInput(FIELD, "the record sheet's list of items is damaged") from None
+    if kind not in KINDS or not identifier:
+        raise InvalidInput(FIELD, "the record sheet's list of items is damaged")
+    return item
+
+
 def _recorded(rows: list[list[Any]]) -> RecordedMonetarySelection:
     facts: dict[str, Cell] = {}
-    items: list[RecordedItem] = []
+    listed: list[list[Any]] = []
     in_items = False
     for raw in rows:
         cells = [*raw, "", "", "", "", ""][:5]
         if in_items:
-            if all(cell_value(c) is None for c in cells):
-                continue
-            try:
-                line, kind, identifier, amount, hits = (_text(c) for c in cells)
-                item = RecordedItem(int(line), kind, identifier, int(amount), int(hits))
-            except ValueError:
-                raise InvalidInput(FIELD, "the record sheet's list of items is damaged") from None
-            if kind not in KINDS or not identifier:
-                raise InvalidInput(FIELD, "the record sheet's list of items is damaged")
-            items.append(item)
+            if any(cell_value(c) is not None for c in cells):
+                listed.append(cells)
         elif _text(cells[0]) == ITEMS_MARKER:
             in_items = True
         elif _text(cells[0]):
@@ -163,7 +166,7 @@ def _recorded(rows: list[list[Any]]) -> RecordedMonetarySelection:
         sampled_value=_whole(facts, "sampled_value"),
         excluded_count=_whole(facts, "excluded_count"),
         excluded_total=_whole(facts, "excluded_total"),
-        items=tuple(items),
+        items=tuple(_item(cells) for cells in listed),
     )
 
 
