@@ -174,6 +174,8 @@ def _add_operation(subparsers: Any, operation: Any, common: argparse.ArgumentPar
             "standard error with the warning to record it, and the rows show it.",
         )
     _output_options(parser, operation, single)
+    if operation.name in MONETARY_FILE_COMMANDS:
+        _add_monetary_file_options(parser, operation.name)
 
 
 #: Commands that need no request schema: their parser is built without the operations.
@@ -287,6 +289,10 @@ def _leaf_names(body: Mapping[str, Any], prefix: str = "") -> set[str]:
 def _run_operation(args: argparse.Namespace) -> int:
     operation = args.operation
     body = _body(args)
+    if operation.name in MONETARY_FILE_COMMANDS:
+        done = _run_monetary_files(args, body)
+        if done is not None:
+            return done
     if getattr(args, "controls", None):
         return _run_controls(args, body)
     if getattr(args, "items_out", None):
@@ -313,6 +319,123 @@ def _run_operation(args: argparse.Namespace) -> int:
         _write(text if text.endswith("\n") or media_type != JSON else text + "\n")
         if operation.name == "batch" and media_type == JSON:
             return _batch_status(json.loads(text)["results"])
+        return EXIT_OK
+
+
+# --------------------------------------------------------------------------- monetary files
+
+MONETARY_FILE_COMMANDS = frozenset({"monetary-selection", "monetary-evaluation"})
+_LEDGER_FLAGS = (
+    ("--id-column", "id_column", "the column that identifies each record (required with "
+     "--ledger)"),
+    ("--amount-column", "amount_column", "the column of recorded amounts (required with "
+     "--ledger)"),
+    ("--amount-style", "amount_style", "how the file writes amounts: 1,234.56 (default), "
+     "1.234,56 or (1,234.56)"),
+    ("--sheet", "sheet", "XLSX only: the sheet to read (default: the first)"),
+    ("--delimiter", "delimiter", "CSV only: , ; | or a tab (default: detected)"),
+)
+
+
+def _add_monetary_file_options(parser: argparse.ArgumentParser, name: str) -> None:
+    """Flags for the multipart forms of the monetary operations, and the XLSX answer."""
+    group = parser.add_argument_group("files")
+    taken = set(parser._option_string_actions)
+    if name == "monetary-selection":
+        if "--ledger" not in taken:
+            group.add_argument(
+                "--ledger", metavar="FILE", dest="monetary_ledger",
+                help="select from a population file (CSV, XLSX or Parquet) instead of "
+                "--population; each record kept is the item {id, amount}. Filters and "
+                "exclusions go in --body as population.file.",
+            )
+        for flag, dest, text in _LEDGER_FLAGS:
+            if flag not in taken:
+                group.add_argument(flag, dest=f"monetary_{dest}", metavar="TEXT",
+                                   help=f"with --ledger: {text}")
+        what = "the test sheet, to be completed and given back to monetary-evaluation"
+    else:
+        if "--test-sheet" not in taken:
+            group.add_argument(
+                "--test-sheet", metavar="FILE", dest="monetary_test_sheet",
+                help="evaluate a completed monetary-unit test sheet (XLSX) instead of "
+                "listing --misstatements; --tolerable-misstatement and --confidence apply.",
+            )
+        if "--not-tested" not in taken:
+            group.add_argument(
+                "--not-tested", dest="monetary_not_tested", choices=["count_as_misstated"],
+                help="with --test-sheet: how items without an audited amount are treated "
+                "(each taken as audited at 0)",
+            )
+        what = "with --test-sheet, the completed sheet with an Evaluation sheet added"
+    if "--xlsx" not in taken:
+        group.add_argument("--xlsx", metavar="FILE", dest="monetary_xlsx",
+                           help=f"write the XLSX answer to FILE: {what}")
+
+
+def _run_monetary_files(args: argparse.Namespace, body: dict[str, Any]) -> int | None:
+    """Run a monetary operation with a file or an XLSX answer; None when neither is asked."""
+    from sampling_client import monetary_files
+
+    ledger = getattr(args, "monetary_ledger", None)
+    sheet = getattr(args, "monetary_test_sheet", None)
+    xlsx = getattr(args, "monetary_xlsx", None)
+    if ledger is None and sheet is None and xlsx is None:
+        return None
+    if ledger is not None:
+        described = {
+            dest: getattr(args, f"monetary_{dest}")
+            for _, dest, _ in _LEDGER_FLAGS
+            if getattr(args, f"monetary_{dest}", None) is not None
+        }
+        population = body.get("population")
+        if population is not None and not isinstance(population, Mapping):
+            raise UsageProblem("--ledger replaces the population list; give one or the other")
+        body = _merge(body, {"population": {"file": described}})
+        path: str | None = ledger
+    elif sheet is not None:
+        if getattr(args, "monetary_not_tested", None):
+            body = {**body, "not_tested": args.monetary_not_tested}
+        path = sheet
+    else:
+        path = None
+    for given in (p for p in (path,) if p is not None):
+        if not Path(given).is_file():
+            raise UsageProblem(f"{given}: no such file")
+    if xlsx is not None:
+        if args.output is not None:
+            raise UsageProblem("--xlsx writes the answer to a file; leave out --json, "
+                               "--markdown and --csv")
+        target = Path(xlsx)
+        if target.is_dir() or not target.resolve().parent.is_dir():
+            raise UsageProblem(f"--xlsx {xlsx}: cannot be written (a folder, or no such folder)")
+    with _client(args) as client:
+        if xlsx is not None:
+            if path is None:
+                content = monetary_files.test_sheet(client, body, request_id=args.request_id)
+            else:
+                content = monetary_files.upload(
+                    client, args.operation.name, path, body, monetary_files.XLSX,
+                    request_id=args.request_id,
+                ).content
+            try:
+                Path(xlsx).write_bytes(content)
+            except OSError as exc:
+                raise UsageProblem(f"--xlsx {xlsx}: {exc.strerror}") from None
+            _say(args, f"wrote {xlsx} ({len(content):,} bytes)")
+            return EXIT_OK
+        if path is None:  # neither a file nor --xlsx: the ordinary JSON call
+            return None
+        accept = {"json": JSON, "markdown": MARKDOWN, "csv": monetary_files.CSV}.get(
+            args.output or "json", JSON)
+        response = monetary_files.upload(
+            client, args.operation.name, path, body, accept, request_id=args.request_id
+        )
+        if args.output is None:
+            _write(tables.document_text(args.operation.summary, response.json()))
+        else:
+            text = response.content.decode("utf-8")
+            _write(text if text.endswith("\n") or accept != JSON else text + "\n")
         return EXIT_OK
 
 
