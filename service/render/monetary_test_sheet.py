@@ -39,6 +39,11 @@ _LIMIT = 10**15
 
 
 def _number(text: str) -> int | float:
+    """A decimal string as the number a spreadsheet cell holds.
+
+    >>> _number("1250.00"), _number("745.20")
+    (1250, 745.2)
+    """
     value = Decimal(text)
     return int(value) if value == value.to_integral_value() else float(value)
 

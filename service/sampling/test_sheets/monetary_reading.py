@@ -92,7 +92,11 @@ class CompletedMonetarySheet:
 
 
 def cell_value(cell: Any) -> Cell:
-    """A cell as a whole number, a float, a text, or None when blank."""
+    """A cell as a whole number, a float, a text, or None when blank.
+
+    >>> cell_value(1250.0), cell_value(0.1), cell_value(""), cell_value(True)
+    (1250, 0.1, None, 'TRUE')
+    """
     if cell is None or cell == "":
         return None
     if isinstance(cell, bool):
