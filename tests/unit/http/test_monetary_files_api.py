@@ -46,6 +46,16 @@ def _csv(rows: list[list[str]], header: list[str] = HEADER, delimiter: str = ","
     return out.getvalue().encode()
 
 
+def _european(rows: list[list[str]]) -> list[list[str]]:
+    """Balances written 1.234,56, as some exports write them."""
+    def written(amount: str) -> str:
+        sign = "-" if amount.startswith("-") else ""
+        units, part = amount.lstrip("-").split(".")
+        return f"{sign}{int(units):,}".replace(",", ".") + "," + part
+
+    return [[*row[:3], written(row[3])] for row in rows]
+
+
 def _xlsx(rows: list[list[str]]) -> bytes:
     """Balances as numeric cells, as a spreadsheet export writes them."""
     buffer = io.BytesIO()
@@ -101,6 +111,7 @@ COMPARED = (
         ("csv", "random_units"),
         ("shuffled csv", "cell"),
         ("semicolon csv", "fixed_interval"),
+        ("1.234,56 csv", "cell"),
         ("xlsx", "random_units"),
         ("parquet", "fixed_interval"),
     ],
@@ -114,10 +125,13 @@ def test_a_file_selects_as_the_same_items_listed(
         "csv": (_csv(ROWS), "ledger.csv"),
         "shuffled csv": (_csv(shuffled), "ledger.csv"),
         "semicolon csv": (_csv(ROWS, delimiter=";"), "ledger.csv"),
+        "1.234,56 csv": (_csv(_european(shuffled), delimiter=";"), "ledger.csv"),
         "xlsx": (_xlsx(shuffled), "ledger.xlsx"),
         "parquet": (_parquet(shuffled), "ledger.parquet"),
     }[form]
     request = {**REQUEST, "method": method}
+    if form == "1.234,56 csv":
+        request["population"] = {"file": {**FILE, "amount_style": "1.234,56"}}
     by_file = _upload(client, request, content, name)
     assert by_file.status_code == 200, by_file.get_data(as_text=True)
     listed = {**request, "population": [{"id": r[0], "amount": r[3]} for r in ROWS]}
