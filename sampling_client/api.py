@@ -434,6 +434,39 @@ class SamplingClient:
         an Evaluation sheet added), as the service wrote it."""
         return self.call_file_bytes("evaluation", file, {**(request or {}), **fields}, accept)
 
+    def monetary_selection_from_file(self, file: FilePath, request: Body = None, /,
+                                     **fields: Any) -> dict[str, Any]:
+        """``POST /v1/monetary/selection`` from the ledger file at ``file`` (described by
+        ``population.file`` with ``id_column`` and ``amount_column``): the currency units
+        selected, with each selected record."""
+        return self.call_file("monetary-selection", file, {**(request or {}), **fields})
+
+    def monetary_selection_from_file_as(self, accept: str, file: FilePath,
+                                        request: Body = None, /, **fields: Any) -> bytes:
+        """The same selection as :data:`CSV`, :data:`MARKDOWN`, or :data:`XLSX` (the
+        monetary-unit test sheet), as the service wrote it."""
+        return self.call_file_bytes("monetary-selection", file,
+                                    {**(request or {}), **fields}, accept)
+
+    def monetary_test_sheet(self, request: Body = None, /, **fields: Any) -> bytes:
+        """The monetary-unit test sheet (XLSX) of a selection from a JSON list of
+        ``{"id", "amount"}`` items."""
+        return self.call_bytes("monetary-selection", {**(request or {}), **fields}, XLSX)
+
+    def monetary_sheet_evaluation(self, file: FilePath, request: Body = None, /,
+                                  **fields: Any) -> dict[str, Any]:
+        """``POST /v1/monetary/evaluation`` of the completed monetary-unit test sheet at
+        ``file``: ``client.monetary_sheet_evaluation("completed.xlsx",
+        tolerable_misstatement="20000")``."""
+        return self.call_file("monetary-evaluation", file, {**(request or {}), **fields})
+
+    def monetary_sheet_evaluation_as(self, accept: str, file: FilePath, request: Body = None,
+                                     /, **fields: Any) -> bytes:
+        """The same evaluation as :data:`MARKDOWN`, or :data:`XLSX` (the workbook again with
+        an Evaluation sheet added), as the service wrote it."""
+        return self.call_file_bytes("monetary-evaluation", file,
+                                    {**(request or {}), **fields}, accept)
+
     def batch(
         self,
         operations: Sequence[Mapping[str, Any]],
@@ -520,6 +553,22 @@ class SamplingClient:
             "POST", self.path_of(operation), request, accept, timeout, request_id
         )
         return self._expect(response, accept).content.decode("utf-8")
+
+    def call_bytes(
+        self,
+        operation: str,
+        request: Mapping[str, Any],
+        accept: str,
+        *,
+        timeout: Timeout | None = None,
+        request_id: str | None = None,
+    ) -> bytes:
+        """POST ``request`` asking for ``accept`` (an XLSX workbook, say) and return the
+        answer's bytes exactly."""
+        response = self._send(
+            "POST", self.path_of(operation), request, accept, timeout, request_id
+        )
+        return self._expect(response, accept).content
 
     def call_file(
         self,

@@ -237,23 +237,38 @@ def _add_operation(subparsers: Any, operation: Any, common: argparse.ArgumentPar
 
 def _add_test_sheet(parser: argparse.ArgumentParser, operation: Any,
                     specs: list[flags.FieldSpec]) -> None:
-    """``--test-sheet`` and the flags of the file form's request that the JSON form lacks."""
+    """The flag of the file form's upload and the flags of its request that the JSON form
+    lacks: ``--file`` when the form reads a population file (``population.file``), else
+    ``--test-sheet`` (a completed test sheet)."""
     form = operation.file_form
     sheet_specs = flags.field_specs(form.request_schema)
     known = {spec.path for spec in specs}
+    extra = [spec for spec in sheet_specs if spec.path not in known]
+    reads_population = any(spec.path[:2] == flags.SHORT_PREFIX for spec in sheet_specs)
+    title = "population file" if reads_population else "completed test sheet"
     group = parser.add_argument_group(
-        "completed test sheet",
+        title,
         textwrap.fill(f"{form.summary} (POST {form.path} as multipart/form-data). "
                       f"{form.description}", flags.HELP_WIDTH),
     )
-    group.add_argument(
-        "--test-sheet", metavar="PATH", dest="upload",
-        help="the completed test sheet (XLSX), sent as the file part. With it, only "
-        + ", ".join(spec.flag for spec in sheet_specs) + " apply; the sheet holds the "
-        "selection and the results.",
-    )
-    flags.add_flags(group, [spec for spec in sheet_specs if spec.path not in known])
-    parser.set_defaults(sheet_specs=sheet_specs)
+    if reads_population:
+        group.add_argument(
+            "--file", metavar="PATH", dest="upload",
+            help="the population file (CSV, XLSX or Parquet), sent as the file part of a "
+            "multipart/form-data request and read from disk as it is sent; describe it with "
+            "the population.file flags (--id-column, --amount-column, ...)",
+        )
+        flags.add_flags(parser, extra, flags.group_descriptions(form.request_schema))
+    else:
+        group.add_argument(
+            "--test-sheet", metavar="PATH", dest="upload",
+            help="the completed test sheet (XLSX), sent as the file part. With it, only "
+            + ", ".join(spec.flag for spec in sheet_specs) + " apply; the sheet holds the "
+            "selection and the results.",
+        )
+        flags.add_flags(group, extra)
+    parser.set_defaults(sheet_specs=sheet_specs,
+                        upload_flag="--file" if reads_population else "--test-sheet")
 
 
 #: Commands that need no request schema: their parser is built without the operations.
@@ -361,11 +376,15 @@ def _request_specs(args: argparse.Namespace) -> list[flags.FieldSpec]:
     other = args.specs if with_sheet else sheet_specs
     paths = {spec.path for spec in used}
     given = [spec.flag for spec, _ in flags.iter_values(args, other) if spec.path not in paths]
-    if given and with_sheet:
+    upload_flag = _upload_flag(args)
+    if given and with_sheet and upload_flag == "--test-sheet":
         raise UsageProblem(f"{', '.join(given)} cannot be given with --test-sheet: the sheet "
                            "holds the sample and its results")
+    if given and with_sheet:
+        raise UsageProblem(f"{', '.join(given)} cannot be given with {upload_flag}: the file "
+                           "holds the population")
     if given:
-        raise UsageProblem(f"{', '.join(given)} needs --test-sheet")
+        raise UsageProblem(f"{', '.join(given)} needs {upload_flag}")
     return list(used)
 
 
@@ -440,7 +459,7 @@ def _run_operation(args: argparse.Namespace) -> int:
 
 
 def _upload_flag(args: argparse.Namespace) -> str:
-    return "--test-sheet" if args.operation.file_form is not None else "--file"
+    return str(getattr(args, "upload_flag", None) or "--file")
 
 
 def _run_upload(args: argparse.Namespace, body: dict[str, Any]) -> int:
@@ -453,8 +472,8 @@ def _run_upload(args: argparse.Namespace, body: dict[str, Any]) -> int:
     form = operation.file_form or operation
     if args.output == "csv" and "text/csv" not in form.media_types:
         raise UsageProblem(f"--csv is not offered for {operation.name} with a file")
-    if operation.name == "selection" and "seed" not in body and args.output is not None \
-            and args.output != "json":
+    if operation.name in ("selection", "monetary-selection") and "seed" not in body \
+            and args.output not in (None, "json"):
         _say(args, "warning: no --seed given: the service generates one on every call, so "
              "each run selects other items; record the seed written in the answer, or give "
              "--seed.")
