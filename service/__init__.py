@@ -4,7 +4,8 @@
 strict JSON, request ids, security headers and JSON log lines
 (:mod:`service.context`), Prometheus metrics (:mod:`service.metrics`), optional API
 keys (:mod:`service.access`), CORS when configured (:mod:`service.cors`), the
-problem-details error handler, and one blueprint per resource. The sampling
+problem-details error handler, one blueprint per resource, and the web page and API
+reference (:mod:`service.webpage`). The sampling
 mathematics lives in :mod:`service.sampling` and knows nothing of HTTP.
 """
 
@@ -24,9 +25,10 @@ def create_app(settings: Settings | None = None) -> Flask:
     # effects, because gunicorn loads ``service.gunicorn_config`` before the app, and that
     # module must export PROMETHEUS_MULTIPROC_DIR before the Prometheus client is first
     # imported (the client picks single- or multiprocess values at import).
+    import yaml
     from flask import Flask
 
-    from service import access, context, cors, metrics, problems
+    from service import access, context, cors, jsonio, metrics, problems, webpage
     from service.http import RESOURCES, meta
     from service.openapi import build_yaml
     from service.settings import Settings
@@ -38,6 +40,7 @@ def create_app(settings: Settings | None = None) -> Flask:
         MAX_CONTENT_LENGTH=settings.max_body_bytes,
         OPENAPI_YAML=build_yaml(),
     )
+    app.config["OPENAPI_JSON"] = jsonio.dumps(yaml.safe_load(app.config["OPENAPI_YAML"]))
     context.configure_logging()
     # Order matters: the request id is chosen first, then the request counted, so that a
     # request refused for want of a key is logged and counted too.
@@ -47,6 +50,7 @@ def create_app(settings: Settings | None = None) -> Flask:
     cors.register(app, settings.cors_origins)
     problems.register(app)
     app.register_blueprint(meta.bp)
+    app.register_blueprint(webpage.bp)
     for module in RESOURCES:
         app.register_blueprint(module.bp)
     app.config["READY"] = True

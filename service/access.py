@@ -21,9 +21,11 @@ import hmac
 from flask import Flask, request
 
 from service.problems import Problem
+from service.webpage import is_page_path
 
-#: Health, readiness and the contract stay open, for load balancers and client generators.
-OPEN_PATHS = frozenset({"/v1/health", "/v1/ready", "/openapi.yaml"})
+#: Health, readiness and the contract stay open, for load balancers and client generators;
+#: so do the web page and the reference (they hold no data, and ask for the key themselves).
+OPEN_PATHS = frozenset({"/v1/health", "/v1/ready", "/openapi.yaml", "/openapi.json"})
 UNAUTHORIZED = "/problems/unauthorized"
 REALM = "attribute-sampling"
 
@@ -65,7 +67,11 @@ def register(app: Flask, digests: frozenset[bytes]) -> None:
 
     @app.before_request
     def _require_key() -> None:
-        if request.path in OPEN_PATHS or request.method == "OPTIONS":
+        if (
+            request.path in OPEN_PATHS
+            or is_page_path(request.path)
+            or request.method == "OPTIONS"
+        ):
             return
         key = _presented_key()
         if key is None:

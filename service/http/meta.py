@@ -1,4 +1,4 @@
-"""Service endpoints: ``GET /v1/health``, ``GET /v1/ready`` and ``GET /openapi.yaml``."""
+"""Service endpoints: ``GET /v1/health``, ``GET /v1/ready``, ``GET /openapi.yaml`` and ``.json``."""
 
 from __future__ import annotations
 
@@ -35,4 +35,12 @@ def openapi_document() -> Response:
     """The OpenAPI 3.1 contract, generated from the schemas at start-up."""
     return current_app.response_class(
         current_app.config["OPENAPI_YAML"], mimetype="application/yaml"
+    )
+
+
+@bp.get("/openapi.json")
+def openapi_json() -> Response:
+    """The same OpenAPI 3.1 contract as JSON, for browsers and tools that do not read YAML."""
+    return current_app.response_class(
+        current_app.config["OPENAPI_JSON"], mimetype="application/json"
     )
