@@ -25,10 +25,9 @@ def create_app(settings: Settings | None = None) -> Flask:
     # effects, because gunicorn loads ``service.gunicorn_config`` before the app, and that
     # module must export PROMETHEUS_MULTIPROC_DIR before the Prometheus client is first
     # imported (the client picks single- or multiprocess values at import).
-    import yaml
     from flask import Flask
 
-    from service import access, context, cors, jsonio, metrics, problems, webpage
+    from service import access, context, cors, metrics, problems, webpage
     from service.http import RESOURCES, meta
     from service.openapi import build_yaml
     from service.settings import Settings
@@ -40,7 +39,6 @@ def create_app(settings: Settings | None = None) -> Flask:
         MAX_CONTENT_LENGTH=settings.max_body_bytes,
         OPENAPI_YAML=build_yaml(),
     )
-    app.config["OPENAPI_JSON"] = jsonio.dumps(yaml.safe_load(app.config["OPENAPI_YAML"]))
     context.configure_logging()
     # Order matters: the request id is chosen first, then the request counted, so that a
     # request refused for want of a key is logged and counted too.

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import yaml
 from flask import Blueprint, Response, current_app
 
 from service import jsonio
@@ -40,7 +41,12 @@ def openapi_document() -> Response:
 
 @bp.get("/openapi.json")
 def openapi_json() -> Response:
-    """The same OpenAPI 3.1 contract as JSON, for browsers and tools that do not read YAML."""
-    return current_app.response_class(
-        current_app.config["OPENAPI_JSON"], mimetype="application/json"
-    )
+    """The same OpenAPI 3.1 contract as JSON, for browsers and tools that do not read YAML.
+
+    Made from the YAML on the first request and kept: parsing it costs more than building
+    the application, and most processes (and tests) never ask for it.
+    """
+    config = current_app.config
+    if "OPENAPI_JSON" not in config:
+        config["OPENAPI_JSON"] = jsonio.dumps(yaml.safe_load(config["OPENAPI_YAML"]))
+    return current_app.response_class(config["OPENAPI_JSON"], mimetype="application/json")

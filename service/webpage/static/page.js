@@ -301,9 +301,13 @@
     return values.length > LIST_SHOWN ? `${shown}, … (${values.length} in all)` : shown;
   }
 
-  function valuesTable(document, name) {
+  // Used by the page itself (the curve's request), or shown above the answer's table.
+  const NOT_IN_TABLE = new Set(["curve_request", "links"]);
+  const SHOWN_APART = new Set(["summary", "warnings"]);
+
+  function valuesTable(document, name, top) {
     const rows = Object.entries(document)
-      .filter(([key]) => key !== "summary" && key !== "warnings")
+      .filter(([key]) => !NOT_IN_TABLE.has(key) && !(top && SHOWN_APART.has(key)))
       .map(([key, value]) => element("tr", {},
         element("th", { scope: "row" }, label(key)),
         element("td", {}, cellContent(value, key))));
@@ -327,7 +331,7 @@
   function showDocument(result, document) {
     const parts = [element("h3", { tabindex: "-1", class: "result-heading" }, "Result")];
     parts.push(...summaryAndWarnings(document));
-    parts.push(valuesTable(document, "answer"));
+    parts.push(valuesTable(document, "answer", true));
     const raw = element("details", {}, element("summary", {}, "The answer as JSON"),
       element("pre", { class: "code" }, JSON.stringify(document, null, 2)));
     parts.push(raw);
