@@ -69,11 +69,12 @@
       const all = lines(el.value);
       if (!all.length) return undefined;
       return all.map((line, index) => {
-        const parts = cells(line);
-        if (parts.length !== 2 || !parts[0] || !parts[1]) {
+        // The amount is all after the first separator, as written ("1,432.02" included).
+        const match = /^([^,;\t]+)[,;\t](.+)$/.exec(line);
+        if (!match || !match[1].trim() || !match[2].trim()) {
           throw new FieldError(el.name, `line ${index + 1} ("${line}"): write identifier, amount`);
         }
-        return { id: parts[0], amount: parts[1] };
+        return { id: match[1].trim(), amount: match[2].trim() };
       });
     },
     misstatements: (el) => {
@@ -271,11 +272,21 @@
     return element("div", { class: "scroll", role: "region", tabindex: "0", "aria-label": name }, table);
   }
 
+  // Records of a few fields read best as one table; records of many (an evaluation per
+  // attribute) as one table each, named by the record's own name when it has one.
+  const WIDE_RECORD = 8;
+
   function recordsTable(records, name) {
     const columns = [];
     records.forEach((record) => Object.keys(record).forEach((key) => {
       if (!columns.includes(key)) columns.push(key);
     }));
+    if (columns.length > WIDE_RECORD) {
+      return element("div", { class: "records" }, ...records.slice(0, LIST_SHOWN).map((record, index) => {
+        const own = record.attribute || record.label || record.id || record.method;
+        return valuesTable(record, `${label(name)}: ${own || index + 1}`);
+      }));
+    }
     const shown = records.slice(0, LIST_SHOWN);
     const table = element("table", {},
       element("caption", {}, records.length > LIST_SHOWN
@@ -503,12 +514,43 @@
     });
   }
 
+  // One CSV line (RFC 4180 quoting) as its fields.
+  function csvFields(line) {
+    const fields = [];
+    let current = "";
+    let quoted = false;
+    for (let i = 0; i < line.length; i += 1) {
+      const c = line[i];
+      if (quoted) {
+        if (c === '"' && line[i + 1] === '"') {
+          current += '"';
+          i += 1;
+        } else if (c === '"') {
+          quoted = false;
+        } else {
+          current += c;
+        }
+      } else if (c === '"') {
+        quoted = true;
+      } else if (c === ",") {
+        fields.push(current.trim());
+        current = "";
+      } else {
+        current += c;
+      }
+    }
+    fields.push(current.trim());
+    return fields;
+  }
+
+  // The first two columns of a CSV file (after its header line) as "identifier, amount"
+  // lines, amounts as written: one the service cannot read is named in its answer.
   function fillFromCsv(input) {
     const target = document.getElementById(input.dataset.fills);
     const file = input.files && input.files[0];
     if (!file) return;
     file.text().then((text) => {
-      const rows = lines(text).slice(1).map((line) => cells(line.replace(/"/g, "")).slice(0, 2).join(", "));
+      const rows = lines(text).slice(1).map((line) => csvFields(line).slice(0, 2).join(", "));
       target.value = rows.join("\n");
     });
   }
