@@ -10,7 +10,8 @@ The presented key's digest is compared with every configured digest by
 which digest, or how much of one, matched. A missing, malformed or unknown key gets the
 same 401 problem details and ``WWW-Authenticate`` challenge whichever it was, and an
 unknown path answers 401 before 404, so nothing tells a caller without a key which keys
-or paths exist.
+or paths exist. The web page, the API reference and their files (``/``, ``/docs``,
+``/ui/…``) are open: they hold no data, and the page asks for the key itself.
 """
 
 from __future__ import annotations
