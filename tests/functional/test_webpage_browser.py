@@ -168,6 +168,45 @@ def shot(browser: Any, folder: Path, name: str, width: int = WIDE) -> None:
     browser.set_window_size(WIDE, 900)
 
 
+# Every element with text of its own, its colour against the first opaque background behind
+# it: the contrast ratio of WCAG 2.2 (success criterion 1.4.3, AA), with its definition of
+# relative luminance; large text (24 px, or 18.66 px bold) needs 3:1, other text 4.5:1.
+LOW_CONTRAST = """
+const rgb = (text) => text.match(/[\\d.]+/g).map(Number);
+const channel = (c) => {
+  c /= 255;
+  return c <= 0.04045 ? c / 12.92 : ((c + 0.055) / 1.055) ** 2.4;
+};
+const luminance = ([r, g, b]) => 0.2126 * channel(r) + 0.7152 * channel(g) + 0.0722 * channel(b);
+const background = (el) => {
+  for (let node = el; node; node = node.parentElement) {
+    const colour = rgb(getComputedStyle(node).backgroundColor);
+    if (colour.length < 4 || colour[3] === 1) return colour.slice(0, 3);
+  }
+  return [255, 255, 255];
+};
+const low = [];
+for (const el of document.querySelectorAll("body *")) {
+  const own = Array.from(el.childNodes).some((n) => n.nodeType === 3 && n.textContent.trim());
+  if (!own || !el.getClientRects().length || el.closest("[hidden]")) continue;
+  const style = getComputedStyle(el);
+  const [a, b] = [luminance(rgb(style.color).slice(0, 3)), luminance(background(el))];
+  const ratio = (Math.max(a, b) + 0.05) / (Math.min(a, b) + 0.05);
+  const size = parseFloat(style.fontSize);
+  const large = size >= 24 || (size >= 18.66 && Number(style.fontWeight) >= 700);
+  if (ratio < (large ? 3 : 4.5)) {
+    low.push(`${el.tagName} "${el.textContent.trim().slice(0, 40)}" ${ratio.toFixed(2)}`);
+  }
+}
+return low;
+"""
+
+
+def low_contrast(browser: Any) -> list[str]:
+    found: list[str] = browser.execute_script(LOW_CONTRAST)
+    return found
+
+
 def plain(number: float) -> str:
     """A number as the page writes it (JavaScript's String(), like Python's repr)."""
     return repr(number) if isinstance(number, float) else str(number)
@@ -196,6 +235,7 @@ def test_size_view_shows_the_plan_and_its_curve(
         "return img && img.complete && img.naturalWidth > 0 ? img : null;", result),
         "the plan's curve")
     assert chart.get_attribute("src").startswith("blob:")
+    assert low_contrast(browser) == []
     shot(browser, screenshots, "size")
 
 
@@ -231,6 +271,7 @@ def test_an_invalid_field_shows_the_services_message_beside_it(
     assert note.find_element("xpath", "..").find_element("tag name", "input").get_attribute(
         "id") == "size-tolerable"
     assert browser.switch_to.active_element.get_attribute("id") == "size-tolerable"
+    assert low_contrast(browser) == []
     shot(browser, screenshots, "error")
 
 
@@ -418,6 +459,8 @@ def test_any_operation_from_the_contract(browser: Any, server: Server, screensho
                    {"frequency": "monthly", "tolerable_rate": 0.1, "confidence": 0.95})
     assert value_shown(result, "Occurrences") == str(expected["occurrences"])
     assert result.find_element("css selector", ".summary").text == expected["summary"]
+    assert result.find_elements("css selector", ".warnings li")
+    assert low_contrast(browser) == []
     shot(browser, screenshots, "any")
 
 
