@@ -336,6 +336,12 @@ def test_evaluate_the_completed_test_sheet(
     assert [cell.text for cell in deviations] == ["0", "1"]
     shot(browser, screenshots, "evaluate-sheet")
 
+    started = time.time()
+    press(browser, "form[data-multipart]", "Download the sheet with its evaluation")
+    evaluated = load_workbook(downloaded(downloads, "evaluated-test-sheet.xlsx", started))
+    assert "Evaluation" in evaluated.sheetnames
+    assert "Tests" in evaluated.sheetnames
+
 
 def test_evaluate_from_counts(browser: Any, server: Server, screenshots: Path) -> None:
     open_view(browser, server, "evaluate")
