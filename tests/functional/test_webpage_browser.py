@@ -13,6 +13,7 @@ install them, except under ``CI=true``, where a missing browser fails.
 from __future__ import annotations
 
 import hashlib
+import json
 import os
 import time
 from collections.abc import Callable, Iterator
@@ -138,8 +139,6 @@ def api(server: Server, path: str, body: dict[str, Any], **kwargs: Any) -> Any:
 
 
 def api_upload(server: Server, path: str, file: Path, body: dict[str, Any]) -> Any:
-    import json
-
     with file.open("rb") as handle:
         response = requests.post(f"{server.url}{path}", timeout=30, files={
             "file": (file.name, handle),
@@ -469,6 +468,15 @@ def test_any_operation_from_the_contract(browser: Any, server: Server, screensho
     assert low_contrast(browser) == []
     shot(browser, screenshots, "any")
 
+    # An operation that takes a file: its written starting request, and the file uploaded.
+    fill(browser, {"any-operation": "/v1/populations/profile"})
+    wait_for(lambda: browser.find_element("id", "any-file-field").is_displayed(), "the file field")
+    request = json.loads(browser.find_element("id", "any-body").get_attribute("value"))
+    fill(browser, {"any-file": str(POPULATION_CSV)})
+    result = press(browser, "#any-form", "Send")
+    expected = api_upload(server, "/v1/populations/profile", POPULATION_CSV, request)
+    assert result.find_element("css selector", ".summary").text == expected["summary"]
+
 
 def test_keyboard_only_and_a_narrow_screen(browser: Any, server: Server, screenshots: Path) -> None:
     from selenium.webdriver.common.keys import Keys
@@ -501,6 +509,10 @@ def test_keyboard_only_and_a_narrow_screen(browser: Any, server: Server, screens
     browser.get(f"{server.url}/#select")
     wait_for(lambda: browser.execute_script("return !document.getElementById('select').hidden"),
              "the selection view")
+    fill(browser, {"select-seed": "northwind-po-2026-q3"})
+    browser.find_element("css selector", "#select button[type='submit']").click()
+    result = result_of(browser, "#select form")
+    wait_for(lambda: result.find_elements("css selector", ".result-heading"), "the selection")
     width = browser.execute_script("return document.documentElement.scrollWidth")
     assert width <= browser.execute_script("return window.innerWidth")
     shot(browser, screenshots, "narrow", width=NARROW)

@@ -4,6 +4,7 @@ which headers, and that every form field is a field of the request it is sent in
 from __future__ import annotations
 
 import hashlib
+import io
 import json
 import re
 from html.parser import HTMLParser
@@ -18,6 +19,8 @@ from service import create_app
 from service.context import CSP, PAGE_CSP
 from service.settings import Settings
 from service.webpage import PAGES
+
+ROOT = PAGES.parents[2]
 
 
 @pytest.fixture(scope="module")
@@ -206,3 +209,22 @@ def test_with_api_keys_the_page_stays_open_and_the_api_does_not() -> None:
         assert fetch(locked, path).status_code == 200, path
     assert locked.post("/v1/sample-size", json={"tolerable_rate": 0.05}).status_code == 401
     assert locked.get("/ui/no-such-file.js").status_code == 404
+
+
+def test_the_written_starting_requests_are_accepted(client: FlaskClient) -> None:
+    examples = json.loads((PAGES.parent / "static" / "examples.json").read_text("utf-8"))
+    spec = json.loads(fetch(client, "/openapi.json").data)
+    population = (ROOT / "examples" / "harbour-lane-purchase-orders.csv").read_bytes()
+    for path, body in examples.items():
+        assert "post" in spec["paths"][path], path
+        if "multipart/form-data" in spec["paths"][path]["post"]["requestBody"]["content"] and (
+            "file" in body.get("population", {})
+        ):
+            response = client.post(path, content_type="multipart/form-data", data={
+                "file": (io.BytesIO(population), "harbour-lane-purchase-orders.csv"),
+                "request": (io.BytesIO(json.dumps(body).encode()), "request.json",
+                            "application/json"),
+            })
+        else:
+            response = client.post(path, json=body)
+        assert response.status_code == 200, (path, response.get_json())
