@@ -316,8 +316,8 @@
   const NOT_IN_TABLE = new Set(["curve_request", "links"]);
   const SHOWN_APART = new Set(["summary", "warnings"]);
 
-  function valuesTable(document, name, top) {
-    const rows = Object.entries(document)
+  function valuesTable(record, name, top) {
+    const rows = Object.entries(record)
       .filter(([key]) => !NOT_IN_TABLE.has(key) && !(top && SHOWN_APART.has(key)))
       .map(([key, value]) => element("tr", {},
         element("th", { scope: "row" }, label(key)),
@@ -327,24 +327,24 @@
     return scrollable(table, label(name));
   }
 
-  function summaryAndWarnings(document) {
+  function summaryAndWarnings(answer) {
     const parts = [];
-    if (typeof document.summary === "string") {
-      parts.push(element("p", { class: "summary" }, document.summary));
+    if (typeof answer.summary === "string") {
+      parts.push(element("p", { class: "summary" }, answer.summary));
     }
-    if (Array.isArray(document.warnings) && document.warnings.length) {
+    if (Array.isArray(answer.warnings) && answer.warnings.length) {
       parts.push(element("div", { class: "warnings" },
-        element("h4", {}, "Warnings"), list(document.warnings)));
+        element("h4", {}, "Warnings"), list(answer.warnings)));
     }
     return parts;
   }
 
-  function showDocument(result, document) {
+  function showDocument(result, answer) {
     const parts = [element("h3", { tabindex: "-1", class: "result-heading" }, "Result")];
-    parts.push(...summaryAndWarnings(document));
-    parts.push(valuesTable(document, "answer", true));
+    parts.push(...summaryAndWarnings(answer));
+    parts.push(valuesTable(answer, "answer", true));
     const raw = element("details", {}, element("summary", {}, "The answer as JSON"),
-      element("pre", { class: "code" }, JSON.stringify(document, null, 2)));
+      element("pre", { class: "code" }, JSON.stringify(answer, null, 2)));
     parts.push(raw);
     result.replaceChildren(...parts);
   }
@@ -436,18 +436,18 @@
     } else if (accept !== JSON_TYPE) {
       await download(result, response, filename || "answer");
     } else {
-      const document = await response.json();
-      showDocument(result, document);
-      await addCharts(form, result, path, body, document);
+      const answer = await response.json();
+      showDocument(result, answer);
+      await addCharts(form, result, path, body, answer);
     }
     const heading = result.querySelector(".result-heading");
     if (heading) heading.focus();
   }
 
-  async function addCharts(form, result, path, body, document) {
+  async function addCharts(form, result, path, body, answer) {
     if (!form) return;
-    if (form.dataset.curve && document.curve_request && document.links && document.links.curve) {
-      const response = await call(document.links.curve, document.curve_request, SVG);
+    if (form.dataset.curve && answer.curve_request && answer.links && answer.links.curve) {
+      const response = await call(answer.links.curve, answer.curve_request, SVG);
       if (response.ok) {
         await showChart(result, response,
           "Operating characteristic of the plan: the probability of relying on the control at each true deviation rate.");

@@ -228,3 +228,15 @@ def test_the_written_starting_requests_are_accepted(client: FlaskClient) -> None
         else:
             response = client.post(path, json=body)
         assert response.status_code == 200, (path, response.get_json())
+
+
+def test_every_file_of_the_page_is_packaged() -> None:
+    """The image installs the service as a wheel: a file the package data misses is a 404."""
+    import tomllib
+
+    project = tomllib.loads((ROOT / "pyproject.toml").read_text(encoding="utf-8"))
+    patterns = project["tool"]["setuptools"]["package-data"]["service.webpage"]
+    files = [p for folder in ("pages", "static") for p in (PAGES.parent / folder).iterdir()]
+    for file in files:
+        relative = file.relative_to(PAGES.parent)
+        assert any(relative.match(pattern) for pattern in patterns), relative
