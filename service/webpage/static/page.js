@@ -274,7 +274,7 @@
 
   // Records of a few fields read best as one table; records of many (an evaluation per
   // attribute) as one table each, named by the record's own name when it has one.
-  const WIDE_RECORD = 9;
+  const WIDE_RECORD = 6;
 
   function recordsTable(records, name) {
     const columns = [];
