@@ -23,8 +23,7 @@ FLAGS = (
     "--disable-dev-shm-usage", "--hide-scrollbars", "--force-device-scale-factor=1",
 )
 HOW_TO_INSTALL = (
-    "browser tests skipped: install Chromium and its driver "
-    "(Debian: apt-get install -y chromium chromium-driver)"
+    "install Chromium and its driver (Debian: apt-get install -y chromium chromium-driver)"
 )
 
 

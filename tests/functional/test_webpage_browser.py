@@ -60,7 +60,7 @@ def browser(tmp_path_factory: pytest.TempPathFactory, downloads: Path) -> Iterat
     if browser_paths() is None:
         if os.environ.get("CI") == "true":
             pytest.fail("CI=true and Chromium or chromedriver is missing: " + HOW_TO_INSTALL)
-        pytest.skip(HOW_TO_INSTALL)
+        pytest.skip("browser tests skipped: " + HOW_TO_INSTALL)
     with chromium(tmp_path_factory.mktemp("profile"), downloads, width=WIDE) as session:
         session.set_script_timeout(WAIT_SECONDS)
         yield session
