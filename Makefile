@@ -41,8 +41,12 @@ browsers:
 	  echo "browser tests skipped: install chromium and chromium-driver (Debian: apt-get install -y chromium chromium-driver)"; \
 	fi
 
+# The suite runs in TEST_PROCESSES processes (pytest-xdist), one per core by default; each
+# test module stays in one process, so a module's server or browser is started once.
+TEST_PROCESSES ?= $(shell nproc 2>/dev/null || echo 2)
+
 test: lint browsers
-	$(BIN)/python -m pytest
+	$(BIN)/python -m pytest -n $(TEST_PROCESSES) --dist loadscope
 
 fuzz: $(VENV)/.installed
 	FUZZ_EXAMPLES=$(FUZZ_EXAMPLES) $(BIN)/python -m pytest -q tests/contract
