@@ -22,6 +22,7 @@ from schemas.plans import (
     prior_answer_fields,
     unique_names,
 )
+from schemas.strata import check_strata, strata_field
 from service.sampling.attributes import MAX_CONFIDENCE, MIN_CONFIDENCE, MIN_TOLERABLE_RATE
 from service.sampling.distributions import MODELS
 from service.sampling.plans.wording import any_evaluation_summary, any_plan_summary
@@ -32,6 +33,14 @@ from service.sampling.wording import (
 
 METHOD_NAMES = sorted(MODELS)
 _MISSING_UNLESS_ATTRIBUTES = "Missing data for required field (unless attributes is given)."
+_MISSING_UNLESS_STRATA = "Missing data for required field (unless strata is given)."
+_MISSING_UNLESS_EITHER = (
+    "Missing data for required field (unless attributes or strata is given)."
+)
+# The fields of a single population's evaluation, which strata replace.
+_SINGLE_POPULATION_FIELDS = (
+    "population", "sample_size", "deviations", "method", "attributes", "prior",
+)
 
 _METHOD: dict[str, Any] = {
     "validate": validate.OneOf(METHOD_NAMES, error="must be one of {choices}"),
@@ -282,15 +291,18 @@ class EvaluationRequest(StrictSchema):
 
     population = fields.Nested(PopulationSchema)
     sample_size = StrictInteger(
-        required=True,
         validate=validate.Range(min=1, error="must be at least {min}"),
-        metadata={"description": "Items tested.", "example": 60},
+        metadata={
+            "required_unless": ("strata",),
+            "description": "Items tested. Required unless strata is given.",
+            "example": 60,
+        },
     )
     deviations = StrictInteger(
         validate=validate.Range(min=0, error="must be at least {min}"),
         metadata={
-            "required_unless": "attributes",
-            "description": "Deviations found. Required unless attributes is given.",
+            "required_unless": ("attributes", "strata"),
+            "description": "Deviations found. Required unless attributes or strata is given.",
             "example": 1,
         },
     )
@@ -327,13 +339,29 @@ class EvaluationRequest(StrictSchema):
             "limit, beside the classical evaluation."
         },
     )
+    strata = strata_field(
+        "A population sampled in strata (instead of population, sample_size, deviations, "
+        "method, attributes and prior): each stratum's population, sample and deviations. "
+        "The answer is then a StrataEvaluation, as POST /v1/evaluation/strata gives it."
+    )
 
     @validates_schema
     def _consistent(self, data: dict[str, Any], **kwargs: Any) -> None:
         n, d = data.get("sample_size"), data.get("deviations")
         errors: dict[str, list[str]] = {}
         several = data.get("attributes")
-        if several is not None:
+        if "strata" in data:
+            for name in _SINGLE_POPULATION_FIELDS:
+                if name in data:
+                    errors[name] = [
+                        "strata carry their own populations, samples and findings; leave "
+                        "this field out when strata is given"
+                    ]
+            check_strata(data["strata"], errors)
+            n = d = None
+        elif n is None:
+            errors["sample_size"] = [_MISSING_UNLESS_STRATA]
+        if several is not None and "strata" not in data:
             for name in ("deviations", "tolerable_rate", "expected_rate"):
                 if name in data:
                     errors[name] = [
@@ -348,8 +376,8 @@ class EvaluationRequest(StrictSchema):
                     errors[f"attributes[{index}].deviations"] = [
                         f"deviations {item.deviations} must not exceed sample_size {n}"
                     ]
-        elif d is None:
-            errors["deviations"] = [_MISSING_UNLESS_ATTRIBUTES]
+        elif d is None and "strata" not in data:
+            errors["deviations"] = [_MISSING_UNLESS_EITHER]
         tolerable, expected = data.get("tolerable_rate"), data.get("expected_rate")
         if tolerable is not None and expected is not None and expected >= tolerable:
             errors["expected_rate"] = [

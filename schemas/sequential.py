@@ -9,13 +9,13 @@ from marshmallow import Schema, ValidationError, fields, post_load, validate, va
 from schemas.attributes import METHOD_NAMES, EvaluationSchema, _confidence, _flatten_population
 from schemas.common import PopulationSchema, ResultSchema, StrictSchema
 from schemas.fields import Rate, StrictInteger, StrictString
+from schemas.strata import check_strata, strata_field
 from service.sampling.attributes import MIN_TOLERABLE_RATE
 from service.sampling.sequential.anytime import MAX_RESULTS
 from service.sampling.sequential.curve import DEFAULT_POINTS as CURVE_DEFAULT_POINTS
 from service.sampling.sequential.curve import MAX_POINTS as CURVE_MAX_POINTS
 from service.sampling.sequential.curve import MIN_POINTS as CURVE_MIN_POINTS
 from service.sampling.sequential.staged import MAX_STAGES, MIN_STAGES, Stage
-from service.sampling.sequential.strata import MAX_STRATA, StratumInput
 from service.sampling.sequential.wording import (
     SEQUENCE_GUARANTEE,
     STRATA_GUARANTEE,
@@ -348,47 +348,10 @@ class StagedCurveSchema(ResultSchema):
     )
 
 
-class StratumCountsSchema(StrictSchema):
-    """One stratum: its population, the items tested and the deviations found."""
-
-    label = StrictString(
-        required=True,
-        validate=validate.Length(min=1, max=200, error="must be from {min} to {max} characters"),
-        metadata={"description": "Name of the stratum, unique in the request.",
-                  "example": "Plant A"},
-    )
-    population_size = StrictInteger(
-        required=True,
-        validate=validate.Range(min=1, error="must be at least {min}"),
-        metadata={"description": "Items in the stratum.", "example": 1200},
-    )
-    sample_size = StrictInteger(
-        required=True,
-        validate=validate.Range(min=1, error="must be at least {min}"),
-        metadata={"description": "Items tested in the stratum.", "example": 40},
-    )
-    deviations = StrictInteger(
-        required=True,
-        validate=validate.Range(min=0, error="must be at least {min}"),
-        metadata={"description": "Deviations found in the stratum.", "example": 0},
-    )
-
-    @post_load
-    def _to_core(self, data: dict[str, Any], **kwargs: Any) -> StratumInput:
-        return StratumInput(**data)
-
-
 class StrataEvaluationRequest(StrictSchema):
     """A population sampled in strata."""
 
-    strata = fields.List(
-        fields.Nested(StratumCountsSchema),
-        required=True,
-        validate=validate.Length(
-            min=1, max=MAX_STRATA, error="must hold from {min} to {max} strata"
-        ),
-        metadata={"description": "Each stratum's population, sample and deviations."},
-    )
+    strata = strata_field(required=True)
     confidence = _confidence()
     tolerable_rate = Rate(
         metadata={
@@ -410,23 +373,7 @@ class StrataEvaluationRequest(StrictSchema):
     @validates_schema
     def _consistent(self, data: dict[str, Any], **kwargs: Any) -> None:
         errors: dict[str, list[str]] = {}
-        labels: dict[str, int] = {}
-        for i, stratum in enumerate(data.get("strata") or []):
-            if stratum.label in labels:
-                errors[f"strata[{i}].label"] = [
-                    f"label {stratum.label!r} repeats that of strata[{labels[stratum.label]}]"
-                ]
-            labels.setdefault(stratum.label, i)
-            if stratum.sample_size > stratum.population_size:
-                errors[f"strata[{i}].sample_size"] = [
-                    f"sample_size {stratum.sample_size} must not exceed population_size "
-                    f"{stratum.population_size}"
-                ]
-            if stratum.deviations > stratum.sample_size:
-                errors[f"strata[{i}].deviations"] = [
-                    f"deviations {stratum.deviations} must not exceed sample_size "
-                    f"{stratum.sample_size}"
-                ]
+        check_strata(data.get("strata") or [], errors)
         tolerable, expected = data.get("tolerable_rate"), data.get("expected_rate")
         if tolerable is not None and expected is not None and expected >= tolerable:
             errors["expected_rate"] = [

@@ -18,7 +18,8 @@ from schemas.sequential import (
     StrataEvaluationRequest,
     StrataEvaluationSchema,
 )
-from service.http.attributes import model_method
+from schemas.strata import count_strata
+from service.http.attributes import model_method, strata_method
 from service.http.markdown import TicketLayout
 from service.http.operations import Operation, blueprint
 from service.sampling.errors import InvalidInput
@@ -35,7 +36,7 @@ from service.sampling.sequential.staged import (
     evaluate_staged,
     plan_staged,
 )
-from service.sampling.sequential.strata import MAX_STRATA, StratifiedEvaluation, evaluate_strata
+from service.sampling.sequential.strata import StratifiedEvaluation, evaluate_strata
 from service.settings import Settings
 
 
@@ -53,13 +54,6 @@ def _curve(inputs: dict[str, Any], settings: Settings) -> StagedCurve:
 
 def _strata(inputs: dict[str, Any], settings: Settings) -> StratifiedEvaluation:
     return evaluate_strata(**inputs)
-
-
-def _count_strata(payload: Any, settings: Settings) -> None:
-    """Refuse an over-long strata list before each stratum is validated."""
-    strata = payload.get("strata") if isinstance(payload, dict) else None
-    if isinstance(strata, list) and len(strata) > MAX_STRATA:
-        raise InvalidInput("strata", f"strata holds {len(strata):,} strata; at most {MAX_STRATA}")
 
 
 def _sequence(inputs: dict[str, Any], settings: Settings) -> ConfidenceSequence:
@@ -181,18 +175,18 @@ OPERATIONS.append(
             "Each stratum's own evaluation (hypergeometric) and one upper deviation limit for "
             "the whole population: the sum of exact per-stratum limits at risks that add up "
             "to 1 − confidence, the split fixed from the design before the results. Its "
-            "coverage is guaranteed (Boole's inequality) and conservative."
+            "coverage is guaranteed (Boole's inequality) and conservative. The same answer "
+            "as POST /v1/evaluation with strata; this path takes only strata."
         ),
         request=StrataEvaluationRequest,
         response=StrataEvaluationSchema,
         run=_strata,
         tag="tests of controls",
-        precheck=_count_strata,
+        precheck=count_strata,
         ticket=TicketLayout(
             answer=("estimated_deviation_rate", "upper_deviation_limit",
                     "upper_deviation_count", "conclusion", "guarantee"),
-            method=lambda document: "sum of exact hypergeometric limits per stratum with a "
-            "Bonferroni split of the risk (Wright 1991; Boole's inequality)",
+            method=strata_method,
         ),
     )
 )
