@@ -22,6 +22,7 @@ from schemas.strata import count_strata
 from service.http.attributes import model_method, strata_method
 from service.http.markdown import TicketLayout
 from service.http.operations import Operation, blueprint
+from service.render.staged_chart import StagedChartPoint, render_staged_curve_svg
 from service.sampling.errors import InvalidInput
 from service.sampling.sequential.anytime import (
     MAX_RESULTS,
@@ -37,7 +38,11 @@ from service.sampling.sequential.staged import (
     plan_staged,
 )
 from service.sampling.sequential.strata import StratifiedEvaluation, evaluate_strata
+from service.sampling.sequential.wording import staged_curve_summary
+from service.sampling.wording import CAUTION, percent
 from service.settings import Settings
+
+SVG = "image/svg+xml"
 
 
 def _plan(inputs: dict[str, Any], settings: Settings) -> StagedPlan:
@@ -50,6 +55,57 @@ def _evaluate(inputs: dict[str, Any], settings: Settings) -> StagedEvaluation:
 
 def _curve(inputs: dict[str, Any], settings: Settings) -> StagedCurve:
     return staged_curve(**inputs)
+
+
+def _staged_caption(curve: StagedCurve) -> str:
+    """The plan in one short sentence, then the caution sentence."""
+    parts = [f"{len(curve.stages)} stages", f"{curve.method} model"]
+    if curve.population_size is not None:
+        parts.append(f"population {curve.population_size:,}")
+    if curve.tolerable_rate is not None:
+        parts.append(f"tolerable {percent(curve.tolerable_rate)}")
+    if curve.expected_rate is not None:
+        parts.append(f"expected {percent(curve.expected_rate)}")
+        if curve.expected_sample_size_at_expected_rate is not None:
+            parts.append(
+                f"{curve.expected_sample_size_at_expected_rate:,.1f} items expected there"
+            )
+    return f"Staged plan: {', '.join(parts)}. {CAUTION}"
+
+
+def _staged_chart_points(curve: StagedCurve) -> list[StagedChartPoint]:
+    """The grid, plus the curve at the marked rates so that the lines meet the marks."""
+    points = {
+        point.rate: StagedChartPoint(
+            point.rate, point.acceptance_probability, point.expected_sample_size
+        )
+        for point in curve.points
+    }
+    marked = (
+        (curve.tolerable_rate, curve.risk_of_overreliance,
+         curve.expected_sample_size_at_tolerable_rate),
+        (curve.expected_rate,
+         None if curve.risk_of_underreliance is None else 1.0 - curve.risk_of_underreliance,
+         curve.expected_sample_size_at_expected_rate),
+    )
+    for rate, acceptance, size in marked:
+        if rate is not None and acceptance is not None and size is not None:
+            points.setdefault(rate, StagedChartPoint(rate, acceptance, size))
+    return [points[rate] for rate in sorted(points)]
+
+
+def _staged_svg(document: dict[str, Any], curve: StagedCurve) -> str:
+    return render_staged_curve_svg(
+        _staged_chart_points(curve),
+        stages=[(s.cumulative_sample_size, s.accept_if_at_most, s.fail_if_at_least)
+                for s in curve.stages],
+        tolerable_rate=curve.tolerable_rate,
+        expected_rate=curve.expected_rate,
+        risk_of_overreliance=curve.risk_of_overreliance,
+        risk_of_underreliance=curve.risk_of_underreliance,
+        caption=_staged_caption(curve),
+        description=staged_curve_summary(curve).removesuffix(CAUTION).strip(),
+    )
 
 
 def _strata(inputs: dict[str, Any], settings: Settings) -> StratifiedEvaluation:
@@ -151,13 +207,15 @@ OPERATIONS.append(
             "For a staged plan, at evenly spaced true deviation rates from 0: the exact "
             "probability that the plan accepts and the expected number of items it tests; "
             "with the risks and expected sizes at tolerable_rate and expected_rate when they "
-            "are given."
+            "are given. With Accept: image/svg+xml the answer is a chart of both against the "
+            "rate, in two panels, with the tolerable and expected rates marked."
         ),
         request=StagedCurveRequest,
         response=StagedCurveSchema,
         run=_curve,
         tag="tests of controls",
         precheck=_count_stages,
+        renderers={SVG: _staged_svg},
         ticket=TicketLayout(
             answer=("risk_of_overreliance", "risk_of_underreliance",
                     "expected_sample_size_at_expected_rate", "points"),
