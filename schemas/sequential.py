@@ -15,7 +15,7 @@ from service.sampling.sequential.anytime import MAX_RESULTS
 from service.sampling.sequential.curve import DEFAULT_POINTS as CURVE_DEFAULT_POINTS
 from service.sampling.sequential.curve import MAX_POINTS as CURVE_MAX_POINTS
 from service.sampling.sequential.curve import MIN_POINTS as CURVE_MIN_POINTS
-from service.sampling.sequential.staged import MAX_STAGES, MIN_STAGES, Stage
+from service.sampling.sequential.staged import MAX_STAGES, MIN_STAGES, Stage, StagedPlan
 from service.sampling.sequential.wording import (
     SEQUENCE_GUARANTEE,
     STRATA_GUARANTEE,
@@ -122,6 +122,32 @@ class StageOut(Schema):
     fail_if_at_least = fields.Integer(required=True)
 
 
+#: Where the curve of a staged plan is asked for; a staged plan links to it.
+STAGED_CURVE_PATH = "/v1/plans/staged/curve"
+
+
+def staged_curve_request_body(plan: StagedPlan) -> dict[str, Any]:
+    """The body to POST to :data:`STAGED_CURVE_PATH` for the curve of ``plan``: its stages,
+    model and population size, and the two rates it was planned for, so that the curve's
+    risks are the plan's."""
+    body: dict[str, Any] = {
+        "stages": [
+            {
+                "cumulative_sample_size": stage.cumulative_sample_size,
+                "accept_if_at_most": stage.accept_if_at_most,
+                "fail_if_at_least": stage.fail_if_at_least,
+            }
+            for stage in plan.stages
+        ],
+        "method": plan.method,
+    }
+    if plan.population_size is not None:
+        body["population"] = {"size": plan.population_size}
+    body["tolerable_rate"] = plan.tolerable_rate
+    body["expected_rate"] = plan.expected_rate
+    return body
+
+
 class StagedPlanSchema(ResultSchema):
     """A staged plan with its exact risks, beside the fixed-size plan for the same inputs."""
 
@@ -164,6 +190,32 @@ class StagedPlanSchema(ResultSchema):
         metadata={"type": "string", "description": "Plain-English paragraph."},
     )
     warnings = fields.List(fields.String(), required=True)
+    curve_request = fields.Function(
+        staged_curve_request_body,
+        required=True,
+        metadata={
+            "allOf": [{"$ref": "#/components/schemas/StagedCurveRequest"}],
+            "description": "Body to POST, unchanged, to links.curve for the acceptance "
+            "probability and expected sample size of this plan against the rate (with "
+            "Accept: image/svg+xml, as a chart).",
+        },
+    )
+    links = fields.Function(
+        lambda plan: {"curve": STAGED_CURVE_PATH},
+        required=True,
+        metadata={
+            "type": "object",
+            "properties": {
+                "curve": {
+                    "type": "string",
+                    "description": "Path of the staged plan's curve endpoint.",
+                    "example": STAGED_CURVE_PATH,
+                }
+            },
+            "required": ["curve"],
+            "additionalProperties": False,
+        },
+    )
 
 
 class StagedEvaluationRequest(StrictSchema):

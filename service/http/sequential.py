@@ -7,6 +7,7 @@ from collections.abc import Mapping
 from typing import Any
 
 from schemas.sequential import (
+    STAGED_CURVE_PATH,
     SequenceRequest,
     SequenceSchema,
     StagedCurveRequest,
@@ -201,7 +202,7 @@ OPERATIONS = [
 OPERATIONS.append(
     Operation(
         name="staged-curve",
-        path="/v1/plans/staged/curve",
+        path=STAGED_CURVE_PATH,
         summary="Operating characteristic of a staged plan",
         description=(
             "For a staged plan, at evenly spaced true deviation rates from 0: the exact "

@@ -223,3 +223,19 @@ def test_bad_staged_curve_with_svg_accepted_is_still_problem_json(client: Any) -
     assert response.status_code == 422
     assert response.mimetype == "application/problem+json"
     assert {"stages", "points"} <= set(response.get_json()["errors"])
+
+
+def test_staged_plans_curve_request_posted_back_gives_the_plans_risks(client: Any) -> None:
+    plan = client.post(PLAN, json={"tolerable_rate": 0.05, "expected_rate": 0.01,
+                                   "population": {"size": 4200}}).get_json()
+    assert plan["links"] == {"curve": "/v1/plans/staged/curve"}
+    assert plan["curve_request"]["stages"] == plan["stages"]
+    curve = client.post(plan["links"]["curve"], json=plan["curve_request"]).get_json()
+    assert curve["method"] == plan["method"] == "hypergeometric"
+    assert curve["population_size"] == 4200
+    assert curve["risk_of_overreliance"] == pytest.approx(plan["risk_of_overreliance"],
+                                                          rel=1e-12)
+    assert curve["risk_of_underreliance"] == pytest.approx(plan["risk_of_underreliance"],
+                                                           rel=1e-12)
+    assert curve["expected_sample_size_at_expected_rate"] == pytest.approx(
+        plan["expected_sample_size_at_expected_rate"], rel=1e-12)
