@@ -8,12 +8,18 @@ from marshmallow import (
     ValidationError,
     fields,
     post_load,
-    validate,
     validates_schema,
 )
 
 from schemas.common import IntervalSchema, PopulationSchema, ResultSchema, StrictSchema
-from schemas.fields import Rate, StrictFloat, StrictInteger, StrictString
+from schemas.fields import (
+    Rate,
+    choice_field,
+    confidence_field,
+    count_field,
+    expected_rate_field,
+    tolerable_rate_field,
+)
 from schemas.plans import (
     AttributeFindingsSchema,
     AttributeRatesSchema,
@@ -23,7 +29,6 @@ from schemas.plans import (
     unique_names,
 )
 from schemas.strata import check_strata, strata_field
-from service.sampling.attributes import MAX_CONFIDENCE, MIN_CONFIDENCE, MIN_TOLERABLE_RATE
 from service.sampling.distributions import MODELS
 from service.sampling.plans.wording import any_evaluation_summary, any_plan_summary
 from service.sampling.wording import (
@@ -42,26 +47,10 @@ _SINGLE_POPULATION_FIELDS = (
     "population", "sample_size", "deviations", "method", "attributes", "prior",
 )
 
-_METHOD: dict[str, Any] = {
-    "validate": validate.OneOf(METHOD_NAMES, error="must be one of {choices}"),
-    "metadata": {
-        "description": "Distribution used: hypergeometric (finite population, without "
-        "replacement), binomial, or poisson. Default: hypergeometric when population.size "
-        "is given, else binomial."
-    },
-}
-
-
-def _confidence() -> StrictFloat:
-    return Rate(
-        load_default=0.95,
-        metadata={
-            "minimum": MIN_CONFIDENCE,
-            "maximum": MAX_CONFIDENCE,
-            "description": "Confidence, one minus the risk of overreliance, as a fraction.",
-            "example": 0.95,
-        },
-    )
+METHOD_DESCRIPTION = (
+    "Distribution used: hypergeometric (finite population, without replacement), binomial, "
+    "or poisson. Default: hypergeometric when population.size is given, else binomial."
+)
 
 
 def _flatten_population(data: dict[str, Any]) -> dict[str, Any]:
@@ -78,26 +67,15 @@ class SampleSizeRequest(StrictSchema):
         PopulationSchema,
         metadata={"description": "Absent for a population large enough to ignore its size."},
     )
-    tolerable_rate = Rate(
-        metadata={
-            "minimum": MIN_TOLERABLE_RATE,
-            "required_unless": "attributes",
-            "description": "Tolerable deviation rate, as a fraction. Required unless "
-            "attributes is given.",
-            "example": 0.05,
-        },
+    tolerable_rate = tolerable_rate_field(
+        "Tolerable deviation rate, as a fraction. Required unless attributes is given.",
+        metadata={"required_unless": "attributes"},
     )
-    expected_rate = Rate(
-        allow_zero=True,
-        load_default=0.0,
-        metadata={
-            "description": "Expected population deviation rate, as a fraction, below "
-            "tolerable_rate.",
-            "example": 0.01,
-        },
+    expected_rate = expected_rate_field(
+        "Expected population deviation rate, as a fraction, below tolerable_rate."
     )
-    confidence = _confidence()
-    method = StrictString(**_METHOD)
+    confidence = confidence_field()
+    method = choice_field(METHOD_NAMES, METHOD_DESCRIPTION)
     attributes = attributes_field(
         AttributeRatesSchema,
         "Several attributes tested on one sample, each with its own rates (instead of "
@@ -290,41 +268,29 @@ class EvaluationRequest(StrictSchema):
     """Evaluation of a finished test of controls."""
 
     population = fields.Nested(PopulationSchema)
-    sample_size = StrictInteger(
-        validate=validate.Range(min=1, error="must be at least {min}"),
-        metadata={
-            "required_unless": ("strata",),
-            "description": "Items tested. Required unless strata is given.",
-            "example": 60,
-        },
+    sample_size = count_field(
+        "Items tested. Required unless strata is given.",
+        minimum=1,
+        example=60,
+        metadata={"required_unless": ("strata",)},
     )
-    deviations = StrictInteger(
-        validate=validate.Range(min=0, error="must be at least {min}"),
-        metadata={
-            "required_unless": ("attributes", "strata"),
-            "description": "Deviations found. Required unless attributes or strata is given.",
-            "example": 1,
-        },
+    deviations = count_field(
+        "Deviations found. Required unless attributes or strata is given.",
+        example=1,
+        metadata={"required_unless": ("attributes", "strata")},
     )
-    confidence = _confidence()
-    tolerable_rate = Rate(
-        metadata={
-            "minimum": MIN_TOLERABLE_RATE,
-            "description": "When given, the response says whether the sample supports reliance.",
-            "example": 0.05,
-        },
+    confidence = confidence_field()
+    tolerable_rate = tolerable_rate_field(
+        "When given, the response says whether the sample supports reliance."
     )
-    expected_rate = Rate(
-        allow_zero=True,
-        metadata={
-            "description": "The plan's expected population deviation rate, as a fraction "
-            "(optional): the answer then compares the deviations found with the "
-            "ceil(expected_rate × sample_size) the plan allowed. The same body can so be sent "
-            "to /v1/sample-size and, with sample_size and deviations added, here.",
-            "example": 0.01,
-        },
+    expected_rate = expected_rate_field(
+        "The plan's expected population deviation rate, as a fraction (optional): the answer "
+        "then compares the deviations found with the ceil(expected_rate × sample_size) the "
+        "plan allowed. The same body can so be sent to /v1/sample-size and, with sample_size "
+        "and deviations added, here.",
+        default=False,
     )
-    method = StrictString(**_METHOD)
+    method = choice_field(METHOD_NAMES, METHOD_DESCRIPTION)
     attributes = attributes_field(
         AttributeFindingsSchema,
         "Several attributes tested on the same sample_size items, each with the deviations "

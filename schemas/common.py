@@ -4,7 +4,7 @@ from __future__ import annotations
 
 from typing import Any, ClassVar
 
-from marshmallow import RAISE, Schema, fields, post_dump, validate
+from marshmallow import RAISE, Schema, ValidationError, fields, post_dump, validate
 
 from schemas.fields import StrictInteger, StrictString
 
@@ -96,3 +96,20 @@ class ResultSchema(Schema):
     def _drop_absent(self, data: dict[str, Any], **kwargs: Any) -> dict[str, Any]:
         keys = self.absent_when_none
         return {k: v for k, v in data.items() if not (k in keys and v is None)}
+
+
+def check_rates_in_order(data: dict[str, Any], errors: dict[str, list[str]]) -> None:
+    """Add an error under ``expected_rate`` when it is not below ``tolerable_rate``."""
+    tolerable, expected = data.get("tolerable_rate"), data.get("expected_rate")
+    if tolerable is not None and expected is not None and expected >= tolerable:
+        errors["expected_rate"] = [
+            f"expected_rate {expected!r} must be below tolerable_rate {tolerable!r}"
+        ]
+
+
+def rates_in_order(data: dict[str, Any]) -> None:
+    """Refuse an ``expected_rate`` that is not below ``tolerable_rate`` (a schema rule)."""
+    errors: dict[str, list[str]] = {}
+    check_rates_in_order(data, errors)
+    if errors:
+        raise ValidationError(errors)

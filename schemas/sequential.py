@@ -6,11 +6,24 @@ from typing import Any
 
 from marshmallow import Schema, ValidationError, fields, post_load, validate, validates_schema
 
-from schemas.attributes import METHOD_NAMES, EvaluationSchema, _confidence, _flatten_population
-from schemas.common import PopulationSchema, ResultSchema, StrictSchema
-from schemas.fields import Rate, StrictInteger, StrictString
+from schemas.attributes import METHOD_NAMES, EvaluationSchema, _flatten_population
+from schemas.common import (
+    PopulationSchema,
+    ResultSchema,
+    StrictSchema,
+    check_rates_in_order,
+    rates_in_order,
+)
+from schemas.fields import (
+    StrictInteger,
+    StrictString,
+    choice_field,
+    confidence_field,
+    count_field,
+    expected_rate_field,
+    tolerable_rate_field,
+)
 from schemas.strata import check_strata, strata_field
-from service.sampling.attributes import MIN_TOLERABLE_RATE
 from service.sampling.sequential.anytime import MAX_RESULTS
 from service.sampling.sequential.curve import DEFAULT_POINTS as CURVE_DEFAULT_POINTS
 from service.sampling.sequential.curve import MAX_POINTS as CURVE_MAX_POINTS
@@ -26,20 +39,13 @@ from service.sampling.sequential.wording import (
     strata_summary,
 )
 
-_METHOD: dict[str, Any] = {
-    "validate": validate.OneOf(METHOD_NAMES, error="must be one of {choices}"),
-    "metadata": {
-        "description": "Distribution used: hypergeometric (finite population, without "
-        "replacement across stages), binomial, or poisson. Default: hypergeometric when "
-        "population.size is given, else binomial."
-    },
-}
 
-
-def _tolerable(description: str) -> Rate:
-    return Rate(
-        required=True,
-        metadata={"minimum": MIN_TOLERABLE_RATE, "description": description, "example": 0.05},
+def _method() -> StrictString:
+    return choice_field(
+        METHOD_NAMES,
+        "Distribution used: hypergeometric (finite population, without replacement across "
+        "stages), binomial, or poisson. Default: hypergeometric when population.size is "
+        "given, else binomial.",
     )
 
 
@@ -50,18 +56,15 @@ class StagedPlanRequest(StrictSchema):
         PopulationSchema,
         metadata={"description": "Absent for a population large enough to ignore its size."},
     )
-    tolerable_rate = _tolerable("Tolerable deviation rate, as a fraction.")
-    expected_rate = Rate(
-        allow_zero=True,
-        load_default=0.0,
-        metadata={
-            "description": "Expected population deviation rate, as a fraction, below "
-            "tolerable_rate: the expected sample size is minimised at this rate.",
-            "example": 0.01,
-        },
+    tolerable_rate = tolerable_rate_field(
+        "Tolerable deviation rate, as a fraction.", required=True
     )
-    confidence = _confidence()
-    method = StrictString(**_METHOD)
+    expected_rate = expected_rate_field(
+        "Expected population deviation rate, as a fraction, below tolerable_rate: the "
+        "expected sample size is minimised at this rate."
+    )
+    confidence = confidence_field()
+    method = _method()
     max_stages = StrictInteger(
         load_default=2,
         validate=validate.Range(
@@ -72,12 +75,7 @@ class StagedPlanRequest(StrictSchema):
 
     @validates_schema
     def _expected_below_tolerable(self, data: dict[str, Any], **kwargs: Any) -> None:
-        tolerable, expected = data.get("tolerable_rate"), data.get("expected_rate")
-        if tolerable is not None and expected is not None and expected >= tolerable:
-            raise ValidationError(
-                f"expected_rate {expected!r} must be below tolerable_rate {tolerable!r}",
-                "expected_rate",
-            )
+        rates_in_order(data)
 
     @post_load
     def _to_core(self, data: dict[str, Any], **kwargs: Any) -> dict[str, Any]:
@@ -87,28 +85,21 @@ class StagedPlanRequest(StrictSchema):
 class StageSchema(StrictSchema):
     """One stage of a staged plan; counts are cumulative over the stages."""
 
-    cumulative_sample_size = StrictInteger(
-        required=True,
-        validate=validate.Range(min=1, error="must be at least {min}"),
-        metadata={"description": "Items tested by the end of this stage, in all.", "example": 66},
+    cumulative_sample_size = count_field(
+        "Items tested by the end of this stage, in all.", minimum=1, example=66, required=True
     )
-    accept_if_at_most = StrictInteger(
+    accept_if_at_most = count_field(
+        "Accept when the deviations found so far are at most this (-1: never accept at this "
+        "stage).",
+        minimum=-1,
+        example=0,
         required=True,
-        validate=validate.Range(min=-1, error="must be at least {min}"),
-        metadata={
-            "description": "Accept when the deviations found so far are at most this "
-            "(-1: never accept at this stage).",
-            "example": 0,
-        },
     )
-    fail_if_at_least = StrictInteger(
+    fail_if_at_least = count_field(
+        "Fail when the deviations found so far are at least this; in between, extend to the "
+        "next stage. At the last stage, accept_if_at_most + 1.",
+        example=2,
         required=True,
-        validate=validate.Range(min=0, error="must be at least {min}"),
-        metadata={
-            "description": "Fail when the deviations found so far are at least this; in "
-            "between, extend to the next stage. At the last stage, accept_if_at_most + 1.",
-            "example": 2,
-        },
     )
 
     @post_load
@@ -230,19 +221,17 @@ class StagedEvaluationRequest(StrictSchema):
         ),
         metadata={"description": "The plan as run (the stages of /v1/plans/staged)."},
     )
-    stage_reached = StrictInteger(
-        required=True,
-        validate=validate.Range(min=1, error="must be at least {min}"),
-        metadata={"description": "Stage (from 1) at which the test stopped.", "example": 2},
+    stage_reached = count_field(
+        "Stage (from 1) at which the test stopped.", minimum=1, example=2, required=True
     )
-    deviations = StrictInteger(
-        required=True,
-        validate=validate.Range(min=0, error="must be at least {min}"),
-        metadata={"description": "Deviations found up to that stage, in all.", "example": 2},
+    deviations = count_field(
+        "Deviations found up to that stage, in all.", example=2, required=True
     )
-    tolerable_rate = _tolerable("Tolerable deviation rate, as a fraction.")
-    confidence = _confidence()
-    method = StrictString(**_METHOD)
+    tolerable_rate = tolerable_rate_field(
+        "Tolerable deviation rate, as a fraction.", required=True
+    )
+    confidence = confidence_field()
+    method = _method()
 
     @post_load
     def _to_core(self, data: dict[str, Any], **kwargs: Any) -> dict[str, Any]:
@@ -331,20 +320,12 @@ class StagedCurveRequest(StrictSchema):
         ),
         metadata={"description": "The plan's stages, as /v1/plans/staged returns them."},
     )
-    method = StrictString(**_METHOD)
-    tolerable_rate = Rate(
-        metadata={
-            "minimum": MIN_TOLERABLE_RATE,
-            "description": "When given, the risk of overreliance at this rate is reported.",
-            "example": 0.05,
-        }
+    method = _method()
+    tolerable_rate = tolerable_rate_field(
+        "When given, the risk of overreliance at this rate is reported."
     )
-    expected_rate = Rate(
-        allow_zero=True,
-        metadata={
-            "description": "When given, the risk of underreliance at this rate is reported.",
-            "example": 0.01,
-        },
+    expected_rate = expected_rate_field(
+        "When given, the risk of underreliance at this rate is reported.", default=False
     )
     points = StrictInteger(
         load_default=CURVE_DEFAULT_POINTS,
@@ -404,33 +385,21 @@ class StrataEvaluationRequest(StrictSchema):
     """A population sampled in strata."""
 
     strata = strata_field(required=True)
-    confidence = _confidence()
-    tolerable_rate = Rate(
-        metadata={
-            "minimum": MIN_TOLERABLE_RATE,
-            "description": "When given, each stratum and the whole population are judged.",
-            "example": 0.05,
-        },
+    confidence = confidence_field()
+    tolerable_rate = tolerable_rate_field(
+        "When given, each stratum and the whole population are judged."
     )
-    expected_rate = Rate(
-        allow_zero=True,
-        load_default=0.0,
-        metadata={
-            "description": "The planned expected deviation rate: used only to split the risk "
-            "among the strata, as it was known before the results.",
-            "example": 0.0,
-        },
+    expected_rate = expected_rate_field(
+        "The planned expected deviation rate: used only to split the risk among the strata, "
+        "as it was known before the results.",
+        example=0.0,
     )
 
     @validates_schema
     def _consistent(self, data: dict[str, Any], **kwargs: Any) -> None:
         errors: dict[str, list[str]] = {}
         check_strata(data.get("strata") or [], errors)
-        tolerable, expected = data.get("tolerable_rate"), data.get("expected_rate")
-        if tolerable is not None and expected is not None and expected >= tolerable:
-            errors["expected_rate"] = [
-                f"expected_rate {expected!r} must be below tolerable_rate {tolerable!r}"
-            ]
+        check_rates_in_order(data, errors)
         if errors:
             raise ValidationError(errors)
 
@@ -528,17 +497,13 @@ class SequenceRequest(StrictSchema):
             "example": [False, False, True, False],
         },
     )
-    confidence = _confidence()
+    confidence = confidence_field()
     population = fields.Nested(
         PopulationSchema,
         metadata={"description": "When given, the without-replacement form is used."},
     )
-    tolerable_rate = Rate(
-        metadata={
-            "minimum": MIN_TOLERABLE_RATE,
-            "description": "When given: whether, and from which item on, the limit is below it.",
-            "example": 0.05,
-        },
+    tolerable_rate = tolerable_rate_field(
+        "When given: whether, and from which item on, the limit is below it."
     )
 
     @validates_schema
