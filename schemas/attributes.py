@@ -11,7 +11,13 @@ from marshmallow import (
     validates_schema,
 )
 
-from schemas.common import IntervalSchema, PopulationSchema, ResultSchema, StrictSchema
+from schemas.common import (
+    IntervalSchema,
+    PopulationSchema,
+    ResultSchema,
+    StrictSchema,
+    check_rates_in_order,
+)
 from schemas.fields import (
     Rate,
     choice_field,
@@ -120,11 +126,7 @@ class SampleSizeRequest(StrictSchema):
             errors["prior"] = [
                 "a prior applies to a single attribute without underreliance_risk"
             ]
-        tolerable, expected = data.get("tolerable_rate"), data.get("expected_rate")
-        if tolerable is not None and expected is not None and expected >= tolerable:
-            errors["expected_rate"] = [
-                f"expected_rate {expected!r} must be below tolerable_rate {tolerable!r}"
-            ]
+        check_rates_in_order(data, errors)
         if errors:
             raise ValidationError(errors)
 
@@ -344,11 +346,7 @@ class EvaluationRequest(StrictSchema):
                     ]
         elif d is None and "strata" not in data:
             errors["deviations"] = [_MISSING_UNLESS_EITHER]
-        tolerable, expected = data.get("tolerable_rate"), data.get("expected_rate")
-        if tolerable is not None and expected is not None and expected >= tolerable:
-            errors["expected_rate"] = [
-                f"expected_rate {expected!r} must be below tolerable_rate {tolerable!r}"
-            ]
+        check_rates_in_order(data, errors)
         if n is not None and d is not None and d > n:
             errors["deviations"] = [f"deviations {d} must not exceed sample_size {n}"]
         size = (data.get("population") or {}).get("size")

@@ -6,7 +6,7 @@ from typing import Any, ClassVar
 
 from marshmallow import RAISE, Schema, ValidationError, fields, post_dump, validate
 
-from schemas.fields import StrictInteger, StrictString
+from schemas.fields import StrictString, count_field
 
 
 class StrictSchema(Schema):
@@ -24,10 +24,8 @@ class StrictSchema(Schema):
 class PopulationSchema(StrictSchema):
     """The population the sample is drawn from."""
 
-    size = StrictInteger(
-        required=True,
-        validate=validate.Range(min=1, error="must be at least {min}"),
-        metadata={"description": "Number of items in the population.", "example": 4200},
+    size = count_field(
+        "Number of items in the population.", minimum=1, example=4200, required=True
     )
     label = StrictString(
         validate=validate.Length(max=200, error="must be at most {max} characters"),

@@ -263,12 +263,16 @@ def _metadata(description: str, example: Any, **bounds: Any) -> dict[str, Any]:
 
 
 def confidence_field(
-    description: str = CONFIDENCE_DESCRIPTION, *, bounded: bool = True, **kwargs: Any
+    description: str = CONFIDENCE_DESCRIPTION,
+    *,
+    bounds: tuple[float, float] | None = (MIN_CONFIDENCE, MAX_CONFIDENCE),
+    **kwargs: Any,
 ) -> Rate:
-    """``confidence``: a fraction, 0.95 by default; ``bounded`` publishes the range the
-    attribute-sampling core accepts (:data:`~service.sampling.attributes.MIN_CONFIDENCE` to
+    """``confidence``: a fraction, 0.95 by default; ``bounds`` publishes the range the core
+    accepts (by default the attribute-sampling core's,
+    :data:`~service.sampling.attributes.MIN_CONFIDENCE` to
     :data:`~service.sampling.attributes.MAX_CONFIDENCE`)."""
-    low, high = (MIN_CONFIDENCE, MAX_CONFIDENCE) if bounded else (None, None)
+    low, high = bounds if bounds is not None else (None, None)
     return Rate(
         load_default=0.95,
         metadata=_metadata(description, 0.95, minimum=low, maximum=high),

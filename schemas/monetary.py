@@ -22,7 +22,11 @@ from schemas.fields import (
     Rate,
     StrictInteger,
     StrictString,
+    choice_field,
+    confidence_field,
+    count_field,
     json_kind,
+    seed_field,
 )
 from service.sampling.monetary.amounts import DEFAULT_SCALE, MAX_SCALE, fraction_text
 from service.sampling.monetary.evaluation import (
@@ -41,7 +45,6 @@ from service.sampling.monetary.wording import (
     plan_summary,
     selection_summary,
 )
-from service.sampling.selection import MAX_SEED_LENGTH
 
 
 def _amount(description: str, example: str, **kwargs: Any) -> Amount:
@@ -64,21 +67,13 @@ def _decimals() -> StrictInteger:
 
 
 def _confidence() -> Rate:
-    return Rate(
-        load_default=0.95,
-        metadata={
-            "description": "Confidence, one minus the risk of incorrect acceptance.",
-            "example": 0.95,
-        },
+    return confidence_field(
+        "Confidence, one minus the risk of incorrect acceptance.", bounds=None
     )
 
 
 def _choice(names: tuple[str, ...], default: str, description: str) -> StrictString:
-    return StrictString(
-        load_default=default,
-        validate=validate.OneOf(names, error="must be one of {choices}"),
-        metadata={"description": f"{description} Default: {default}."},
-    )
+    return choice_field(names, f"{description} Default: {default}.", default=default)
 
 
 def _money(description: str = "", **kwargs: Any) -> fields.String:
@@ -302,22 +297,14 @@ class MonetarySelectionRequest(StrictSchema):
         validate=validate.Length(min=1, error="must list at least one item"),
         metadata={"description": 'The items, each {"id", "amount"}, in any order.'},
     )
-    sample_size = StrictInteger(
+    sample_size = count_field(
+        "Sampling units, individually significant items included.",
+        minimum=1,
+        example=60,
         required=True,
-        validate=validate.Range(min=1, error="must be at least {min}"),
-        metadata={
-            "description": "Sampling units, individually significant items included.",
-            "example": 60,
-        },
     )
-    seed = StrictString(
-        validate=validate.Length(
-            min=1, max=MAX_SEED_LENGTH, error="must have {min} to {max} characters"
-        ),
-        metadata={
-            "description": "Seed of the random stream; generated when absent.",
-            "example": "kestrel-2026-ar",
-        },
+    seed = seed_field(
+        "Seed of the random stream; generated when absent.", example="kestrel-2026-ar"
     )
     method = _choice(
         SELECTION_METHODS,
@@ -436,11 +423,7 @@ class MisstatementSchema(StrictSchema):
     id = StrictString(required=True, validate=validate.Length(min=1, error="must not be empty"))
     book_amount = _amount("Recorded amount of the item, above 0.", "4000.00", required=True)
     audited_amount = _amount("Amount found by the auditor.", "2000.00", required=True)
-    hits = StrictInteger(
-        load_default=1,
-        validate=validate.Range(min=1, error="must be at least {min}"),
-        metadata={"description": "Sampling units that hit the item. Default 1."},
-    )
+    hits = count_field("Sampling units that hit the item. Default 1.", minimum=1, load_default=1)
     individually_significant = fields.Boolean(
         load_default=False,
         metadata={
@@ -459,12 +442,8 @@ class MonetaryEvaluationRequest(StrictSchema):
         "2500000.00",
         required=True,
     )
-    sample_size = StrictInteger(
-        validate=validate.Range(min=1, error="must be at least {min}"),
-        metadata={
-            "description": "Sampling units drawn (give this or sampling_interval).",
-            "example": 60,
-        },
+    sample_size = count_field(
+        "Sampling units drawn (give this or sampling_interval).", minimum=1, example=60
     )
     sampling_interval = _amount(
         "Sampling interval (give this or sample_size); with both, it must equal "

@@ -11,53 +11,35 @@ from typing import Any
 
 from marshmallow import ValidationError, fields, post_load, validate, validates_schema
 
-from schemas.common import ResultSchema, StrictSchema
-from schemas.fields import Rate, StrictFloat, StrictInteger, StrictString
-from service.sampling.attributes import MIN_TOLERABLE_RATE
+from schemas.common import ResultSchema, StrictSchema, rates_in_order
+from schemas.fields import (
+    StrictFloat,
+    StrictInteger,
+    choice_field,
+    count_field,
+    expected_rate_field,
+    label_field,
+    tolerable_rate_field,
+)
 from service.sampling.errors import InvalidInput
 from service.sampling.plans.bayesian import PRIOR_TYPES, BetaPrior, beta_prior
 from service.sampling.plans.multiple import AttributeFindings, AttributeRates
 from service.sampling.plans.wording import several_evaluation_summary, several_plan_summary
 from service.sampling.wording import NEXT_STEPS
 
-_NAME: dict[str, Any] = {
-    "validate": validate.Length(min=1, max=200, error="must be 1 to {max} characters"),
-}
-
 
 class AttributeRatesSchema(StrictSchema):
     """One attribute tested on the shared sample, with its own rates."""
 
-    name = StrictString(
-        required=True,
-        **_NAME,
-        metadata={"description": "The attribute, in plain words.", "example": "approval"},
-    )
-    tolerable_rate = Rate(
-        required=True,
-        metadata={
-            "minimum": MIN_TOLERABLE_RATE,
-            "description": "Tolerable deviation rate.",
-            "example": 0.05,
-        },
-    )
-    expected_rate = Rate(
-        allow_zero=True,
-        load_default=0.0,
-        metadata={
-            "description": "Expected population deviation rate, below tolerable_rate.",
-            "example": 0.0,
-        },
+    name = label_field("The attribute, in plain words.", example="approval", required=True)
+    tolerable_rate = tolerable_rate_field("Tolerable deviation rate.", required=True)
+    expected_rate = expected_rate_field(
+        "Expected population deviation rate, below tolerable_rate.", example=0.0
     )
 
     @validates_schema
     def _expected_below_tolerable(self, data: dict[str, Any], **kwargs: Any) -> None:
-        tolerable, expected = data.get("tolerable_rate"), data.get("expected_rate")
-        if tolerable is not None and expected is not None and expected >= tolerable:
-            raise ValidationError(
-                f"expected_rate {expected!r} must be below tolerable_rate {tolerable!r}",
-                "expected_rate",
-            )
+        rates_in_order(data)
 
     @post_load
     def _to_core(self, data: dict[str, Any], **kwargs: Any) -> AttributeRates:
@@ -67,24 +49,9 @@ class AttributeRatesSchema(StrictSchema):
 class AttributeFindingsSchema(StrictSchema):
     """One attribute of a finished test: the deviations found for it."""
 
-    name = StrictString(
-        required=True,
-        **_NAME,
-        metadata={"description": "The attribute, in plain words.", "example": "approval"},
-    )
-    deviations = StrictInteger(
-        required=True,
-        validate=validate.Range(min=0, error="must be at least {min}"),
-        metadata={"description": "Deviations found for this attribute.", "example": 0},
-    )
-    tolerable_rate = Rate(
-        required=True,
-        metadata={
-            "minimum": MIN_TOLERABLE_RATE,
-            "description": "Tolerable deviation rate.",
-            "example": 0.05,
-        },
-    )
+    name = label_field("The attribute, in plain words.", example="approval", required=True)
+    deviations = count_field("Deviations found for this attribute.", example=0, required=True)
+    tolerable_rate = tolerable_rate_field("Tolerable deviation rate.", required=True)
 
     @post_load
     def _to_core(self, data: dict[str, Any], **kwargs: Any) -> AttributeFindings:
@@ -94,20 +61,16 @@ class AttributeFindingsSchema(StrictSchema):
 class PriorSchema(StrictSchema):
     """Prior evidence on the deviation rate, as a beta prior."""
 
-    type = StrictString(
+    type = choice_field(
+        PRIOR_TYPES,
+        "uniform: Beta(1, 1). expected_rate: the uniform prior plus strength items seen at "
+        "expected_rate, Beta(1 + e·s, 1 + (1 − e)·s). previous_sample: an earlier sample of "
+        "sample_size items with deviations, discounted by weight, Beta(1 + w·d, 1 + w·(n − d)).",
         required=True,
-        validate=validate.OneOf(PRIOR_TYPES, error="must be one of {choices}"),
-        metadata={
-            "description": "uniform: Beta(1, 1). expected_rate: the uniform prior plus "
-            "strength items seen at expected_rate, Beta(1 + e·s, 1 + (1 − e)·s). "
-            "previous_sample: an earlier sample of sample_size items with deviations, "
-            "discounted by weight, Beta(1 + w·d, 1 + w·(n − d)).",
-            "example": "previous_sample",
-        },
+        metadata={"example": "previous_sample"},
     )
-    expected_rate = Rate(
-        allow_zero=True,
-        metadata={"description": "expected_rate prior: the rate the evidence points to."},
+    expected_rate = expected_rate_field(
+        "expected_rate prior: the rate the evidence points to.", example=None, default=False
     )
     strength = StrictFloat(
         metadata={

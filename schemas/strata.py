@@ -10,7 +10,7 @@ from typing import Any
 from marshmallow import fields, post_load, validate
 
 from schemas.common import StrictSchema
-from schemas.fields import StrictInteger, StrictString
+from schemas.fields import count_field, label_field
 from service.sampling.errors import InvalidInput
 from service.sampling.sequential.strata import MAX_STRATA, StratumInput
 
@@ -18,27 +18,16 @@ from service.sampling.sequential.strata import MAX_STRATA, StratumInput
 class StratumCountsSchema(StrictSchema):
     """One stratum: its population, the items tested and the deviations found."""
 
-    label = StrictString(
-        required=True,
-        validate=validate.Length(min=1, max=200, error="must be from {min} to {max} characters"),
-        metadata={"description": "Name of the stratum, unique in the request.",
-                  "example": "Plant A"},
+    label = label_field(
+        "Name of the stratum, unique in the request.", example="Plant A", required=True
     )
-    population_size = StrictInteger(
-        required=True,
-        validate=validate.Range(min=1, error="must be at least {min}"),
-        metadata={"description": "Items in the stratum.", "example": 1200},
+    population_size = count_field(
+        "Items in the stratum.", minimum=1, example=1200, required=True
     )
-    sample_size = StrictInteger(
-        required=True,
-        validate=validate.Range(min=1, error="must be at least {min}"),
-        metadata={"description": "Items tested in the stratum.", "example": 40},
+    sample_size = count_field(
+        "Items tested in the stratum.", minimum=1, example=40, required=True
     )
-    deviations = StrictInteger(
-        required=True,
-        validate=validate.Range(min=0, error="must be at least {min}"),
-        metadata={"description": "Deviations found in the stratum.", "example": 0},
-    )
+    deviations = count_field("Deviations found in the stratum.", example=0, required=True)
 
     @post_load
     def _to_core(self, data: dict[str, Any], **kwargs: Any) -> StratumInput:
