@@ -17,6 +17,8 @@ from schemas.common import (
     ResultSchema,
     StrictSchema,
     check_rates_in_order,
+    conclusion_field,
+    summary_field,
 )
 from schemas.fields import (
     Rate,
@@ -223,11 +225,7 @@ class SampleSizePlanSchema(ResultSchema):
             "the prior asks for more items)."
         }
     )
-    summary = fields.Function(
-        any_plan_summary,
-        required=True,
-        metadata={"type": "string", "description": "Plain-English paragraph."},
-    )
+    summary = summary_field(any_plan_summary)
     warnings = fields.List(fields.String(), required=True)
     curve_request = fields.Method(
         "_curve_request",
@@ -449,24 +447,9 @@ class EvaluationSchema(ResultSchema):
             "expect next (ISA 530 ¶12-13, AU-C 530), in plain words; empty otherwise.",
         },
     )
-    conclusion = fields.Function(
-        lambda result: (
-            None
-            if result.supports_reliance is None
-            else ("supports_reliance" if result.supports_reliance else "does_not_support_reliance")
-        ),
-        metadata={
-            "type": "string",
-            "enum": ["supports_reliance", "does_not_support_reliance"],
-            "description": "Present only when tolerable_rate is given.",
-        },
-    )
+    conclusion = conclusion_field()
     prior = prior_answer_fields()["prior"]
     posterior_probability = prior_answer_fields()["posterior_probability"]
     posterior_upper_limit = prior_answer_fields()["posterior_upper_limit"]
-    summary = fields.Function(
-        any_evaluation_summary,
-        required=True,
-        metadata={"type": "string", "description": "Plain-English paragraph."},
-    )
+    summary = summary_field(any_evaluation_summary)
     warnings = fields.List(fields.String(), required=True)

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from typing import Any, ClassVar
 
 from marshmallow import RAISE, Schema, ValidationError, fields, post_dump, validate
@@ -111,3 +112,39 @@ def rates_in_order(data: dict[str, Any]) -> None:
     check_rates_in_order(data, errors)
     if errors:
         raise ValidationError(errors)
+
+
+# --------------------------------------------------------------------------- answers
+
+CONCLUSIONS = ["supports_reliance", "does_not_support_reliance"]
+
+
+def conclusion_text(supports: bool | None) -> str | None:
+    """``supports_reliance``, ``does_not_support_reliance``, or None without a judgement."""
+    if supports is None:
+        return None
+    return CONCLUSIONS[0] if supports else CONCLUSIONS[1]
+
+
+def conclusion_field(
+    supports: Callable[[Any], bool | None] = lambda result: result.supports_reliance,
+    *,
+    description: str | None = "Present only when tolerable_rate is given.",
+    required: bool = False,
+) -> fields.Function:
+    """The answer's ``conclusion``, read from the result by ``supports``."""
+    metadata: dict[str, Any] = {"type": "string", "enum": list(CONCLUSIONS)}
+    if description is not None:
+        metadata["description"] = description
+    return fields.Function(
+        lambda result: conclusion_text(supports(result)), required=required, metadata=metadata
+    )
+
+
+def summary_field(summary: Callable[[Any], str]) -> fields.Function:
+    """The answer's ``summary``: one plain-English paragraph, ending with the caution."""
+    return fields.Function(
+        summary,
+        required=True,
+        metadata={"type": "string", "description": "Plain-English paragraph."},
+    )

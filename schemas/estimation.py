@@ -12,7 +12,12 @@ from marshmallow import (
     validate,
 )
 
-from schemas.common import PopulationSchema, ResultSchema, StrictSchema
+from schemas.common import (
+    PopulationSchema,
+    ResultSchema,
+    StrictSchema,
+    summary_field,
+)
 from schemas.fields import Rate, StrictFloat, StrictString, confidence_field
 from service.sampling.estimation import MAX_CONFIDENCE, METHODS, MIN_CONFIDENCE, MIN_MARGIN
 from service.sampling.wording import CAUTION, percent
@@ -196,11 +201,7 @@ class EstimationSchema(ResultSchema):
             "for, the smallest of those.",
         },
     )
-    summary = fields.Function(
-        lambda result: estimation_summary(result),
-        required=True,
-        metadata={"type": "string", "description": "Plain-English paragraph."},
-    )
+    summary = summary_field(lambda result: estimation_summary(result))
 
 
 # --- summary ----------------------------------------------------------------

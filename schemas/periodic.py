@@ -7,7 +7,12 @@ from typing import Any
 from marshmallow import ValidationError, fields, post_load, validate, validates_schema
 
 from schemas.attributes import SampleSizePlanSchema
-from schemas.common import ResultSchema, StrictSchema, rates_in_order
+from schemas.common import (
+    ResultSchema,
+    StrictSchema,
+    rates_in_order,
+    summary_field,
+)
 from schemas.fields import (
     StrictInteger,
     choice_field,
@@ -168,9 +173,5 @@ class PeriodicPlanSchema(ResultSchema):
         },
     )
     sizes = fields.List(fields.Nested(SizeMeaningSchema), required=True)
-    summary = fields.Function(
-        periodic_summary,
-        required=True,
-        metadata={"type": "string", "description": "Plain-English paragraph."},
-    )
+    summary = summary_field(periodic_summary)
     warnings = fields.List(fields.String(), required=True)

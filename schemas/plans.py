@@ -11,7 +11,13 @@ from typing import Any
 
 from marshmallow import ValidationError, fields, post_load, validate, validates_schema
 
-from schemas.common import ResultSchema, StrictSchema, rates_in_order
+from schemas.common import (
+    ResultSchema,
+    StrictSchema,
+    conclusion_field,
+    rates_in_order,
+    summary_field,
+)
 from schemas.fields import (
     StrictFloat,
     StrictInteger,
@@ -228,18 +234,8 @@ class SeveralAttributesPlanSchema(ResultSchema):
     population_label = fields.String()
     whole_population = fields.Boolean(required=True)
     attributes = fields.List(fields.Nested(AttributePlanSchema), required=True)
-    summary = fields.Function(
-        several_plan_summary,
-        required=True,
-        metadata={"type": "string", "description": "Plain-English paragraph."},
-    )
+    summary = summary_field(several_plan_summary)
     warnings = fields.List(fields.String(), required=True)
-
-
-def _conclusion(supports: bool | None) -> str | None:
-    if supports is None:
-        return None
-    return "supports_reliance" if supports else "does_not_support_reliance"
 
 
 class AttributeEvaluationSchema(ResultSchema):
@@ -263,10 +259,8 @@ class AttributeEvaluationSchema(ResultSchema):
     risk_at_tolerable_rate = fields.Float(
         required=True, attribute="evaluation.risk_at_tolerable_rate"
     )
-    conclusion = fields.Function(
-        lambda item: _conclusion(item.evaluation.supports_reliance),
-        required=True,
-        metadata={"type": "string", "enum": ["supports_reliance", "does_not_support_reliance"]},
+    conclusion = conclusion_field(
+        lambda item: item.evaluation.supports_reliance, description=None, required=True
     )
 
 
@@ -281,14 +275,8 @@ class SeveralAttributesEvaluationSchema(ResultSchema):
     population_size = fields.Integer(required=True, allow_none=True)
     population_label = fields.String()
     attributes = fields.List(fields.Nested(AttributeEvaluationSchema), required=True)
-    conclusion = fields.Function(
-        lambda result: _conclusion(result.supports_reliance),
-        required=True,
-        metadata={
-            "type": "string",
-            "enum": ["supports_reliance", "does_not_support_reliance"],
-            "description": "supports_reliance when every attribute's result does.",
-        },
+    conclusion = conclusion_field(
+        description="supports_reliance when every attribute's result does.", required=True
     )
     attributes_not_supporting = fields.List(
         fields.String(),
@@ -306,11 +294,7 @@ class SeveralAttributesEvaluationSchema(ResultSchema):
             "otherwise.",
         },
     )
-    summary = fields.Function(
-        several_evaluation_summary,
-        required=True,
-        metadata={"type": "string", "description": "Plain-English paragraph."},
-    )
+    summary = summary_field(several_evaluation_summary)
     warnings = fields.List(fields.String(), required=True)
 
 

@@ -19,7 +19,11 @@ from typing import Any, ClassVar
 
 from marshmallow import ValidationError, fields, post_load, validate, validates_schema
 
-from schemas.common import ResultSchema, StrictSchema
+from schemas.common import (
+    ResultSchema,
+    StrictSchema,
+    summary_field,
+)
 from schemas.fields import (
     StrictInteger,
     StrictString,
@@ -488,9 +492,7 @@ class ProfileSchema(ResultSchema):
     amounts = fields.Nested(AmountSummarySchema, attribute="profile.amounts")
     reconciliation = fields.Nested(ReconciliationSchema, attribute="profile.reconciliation")
     strata = fields.Nested(StrataSuggestionSchema, attribute="profile.strata")
-    summary = fields.Function(
-        profile_summary, required=True, metadata={"type": "string"}
-    )
+    summary = summary_field(profile_summary)
     warnings = fields.Function(
         profile_warnings,
         required=True,
@@ -660,7 +662,7 @@ class StratifiedSchema(ResultSchema):
                   "population and selection fingerprints, and the selected items, where "
                   "each is in the file, and the records, in draw order."},
     )
-    summary = fields.Function(stratified_summary, required=True, metadata={"type": "string"})
+    summary = summary_field(stratified_summary)
     warnings = fields.Function(
         stratified_warnings, required=True,
         metadata={"type": "array", "items": {"type": "string"}},

@@ -12,7 +12,9 @@ from schemas.common import (
     ResultSchema,
     StrictSchema,
     check_rates_in_order,
+    conclusion_field,
     rates_in_order,
+    summary_field,
 )
 from schemas.fields import (
     StrictInteger,
@@ -175,11 +177,7 @@ class StagedPlanSchema(ResultSchema):
     plans_examined = fields.Integer(
         required=True, metadata={"description": "Candidate plans the bounded search examined."}
     )
-    summary = fields.Function(
-        staged_plan_summary,
-        required=True,
-        metadata={"type": "string", "description": "Plain-English paragraph."},
-    )
+    summary = summary_field(staged_plan_summary)
     warnings = fields.List(fields.String(), required=True)
     curve_request = fields.Function(
         staged_curve_request_body,
@@ -255,11 +253,7 @@ class StagedEvaluationSchema(ResultSchema):
     population_size = fields.Integer(required=True, allow_none=True)
     population_label = fields.String()
     decision = fields.String(required=True, metadata={"enum": ["accept", "fail"]})
-    conclusion = fields.Function(
-        lambda r: "supports_reliance" if r.supports_reliance else "does_not_support_reliance",
-        required=True,
-        metadata={"type": "string", "enum": ["supports_reliance", "does_not_support_reliance"]},
-    )
+    conclusion = conclusion_field(description=None, required=True)
     plan_risk_of_overreliance = fields.Float(
         required=True,
         metadata={"description": "Exact probability that the plan accepts at the tolerable rate."},
@@ -300,11 +294,7 @@ class StagedEvaluationSchema(ResultSchema):
             "additionalProperties": False,
         },
     )
-    summary = fields.Function(
-        staged_evaluation_summary,
-        required=True,
-        metadata={"type": "string", "description": "Plain-English paragraph."},
-    )
+    summary = summary_field(staged_evaluation_summary)
     warnings = fields.List(fields.String(), required=True)
 
 
@@ -374,11 +364,7 @@ class StagedCurveSchema(ResultSchema):
     expected_sample_size_at_tolerable_rate = fields.Float()
     expected_sample_size_at_expected_rate = fields.Float()
     points = fields.List(fields.Nested(StagedCurvePointSchema), required=True)
-    summary = fields.Function(
-        staged_curve_summary,
-        required=True,
-        metadata={"type": "string", "description": "Plain-English paragraph."},
-    )
+    summary = summary_field(staged_curve_summary)
 
 
 class StrataEvaluationRequest(StrictSchema):
@@ -447,22 +433,13 @@ class StrataEvaluationSchema(ResultSchema):
                   "coverage (see guarantee)."},
     )
     tolerable_deviant_items = fields.Integer()
-    conclusion = fields.Function(
-        lambda r: None if r.supports_reliance is None else (
-            "supports_reliance" if r.supports_reliance else "does_not_support_reliance"),
-        metadata={"type": "string", "enum": ["supports_reliance", "does_not_support_reliance"],
-                  "description": "Present only when tolerable_rate is given."},
-    )
+    conclusion = conclusion_field()
     guarantee = fields.Function(
         lambda r: STRATA_GUARANTEE,
         required=True,
         metadata={"type": "string", "description": "What the combined limit guarantees."},
     )
-    summary = fields.Function(
-        strata_summary,
-        required=True,
-        metadata={"type": "string", "description": "Plain-English paragraph."},
-    )
+    summary = summary_field(strata_summary)
     warnings = fields.List(fields.String(), required=True)
 
 
@@ -555,19 +532,11 @@ class SequenceSchema(ResultSchema):
     first_supporting_sample_size = fields.Integer(
         metadata={"description": "First item after which the limit was below tolerable_rate."}
     )
-    conclusion = fields.Function(
-        lambda r: None if r.supports_reliance is None else (
-            "supports_reliance" if r.supports_reliance else "does_not_support_reliance"),
-        metadata={"type": "string", "enum": ["supports_reliance", "does_not_support_reliance"]},
-    )
+    conclusion = conclusion_field()
     points = fields.List(fields.Nested(SequencePointSchema), required=True)
     guarantee = fields.Function(
         lambda r: SEQUENCE_GUARANTEE,
         required=True,
         metadata={"type": "string", "description": "What the limits guarantee."},
     )
-    summary = fields.Function(
-        sequence_summary,
-        required=True,
-        metadata={"type": "string", "description": "Plain-English paragraph."},
-    )
+    summary = summary_field(sequence_summary)
