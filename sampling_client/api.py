@@ -326,7 +326,11 @@ class SamplingClient:
         return self.call("sample-size", {**(request or {}), **fields})
 
     def evaluation(self, request: Body = None, /, **fields: Any) -> dict[str, Any]:
-        """``POST /v1/evaluation``: upper deviation limit and conclusion for a finished test."""
+        """``POST /v1/evaluation``: upper deviation limit and conclusion for a finished test.
+
+        With ``strata`` the answer is the evaluation in strata, as :meth:`strata_evaluation`
+        gives it.
+        """
         return self.call("evaluation", {**(request or {}), **fields})
 
     def selection(self, request: Body = None, /, **fields: Any) -> dict[str, Any]:
@@ -383,6 +387,10 @@ class SamplingClient:
     def staged_curve(self, request: Body = None, /, **fields: Any) -> dict[str, Any]:
         """``POST /v1/plans/staged/curve``: acceptance and expected size against the rate."""
         return self.call("staged-curve", {**(request or {}), **fields})
+
+    def staged_curve_svg(self, request: Body = None, /, **fields: Any) -> str:
+        """``POST /v1/plans/staged/curve`` as an SVG chart."""
+        return self.call_text("staged-curve", {**(request or {}), **fields}, SVG)
 
     def strata_evaluation(self, request: Body = None, /, **fields: Any) -> dict[str, Any]:
         """``POST /v1/evaluation/strata``: strata evaluated, one limit for the whole."""

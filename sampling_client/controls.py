@@ -147,7 +147,7 @@ def _header(path: str, header: list[str], specs: list[FieldSpec],
     for spec in known.values():
         # A controls file carries no list, so a field required unless a list is given is
         # required here.
-        needed = spec.required or spec.required_unless is not None
+        needed = spec.required or bool(spec.required_unless)
         if needed and len(spec.path) == 1 and spec.name not in names:
             raise ControlsFileError(path, f"the header has no {spec.name} column, which is "
                                     "required", line=1)
@@ -176,7 +176,7 @@ def _row(path: str, number: int, cells: list[str], columns: list[Column]) -> Con
             raise ControlsFileError(path, str(problem), line=number, column=spec.name) from None
         filled.add(spec.path[:-1])
     for spec in columns:
-        if isinstance(spec, str) or not (spec.required or spec.required_unless is not None):
+        if isinstance(spec, str) or not (spec.required or bool(spec.required_unless)):
             continue
         # A required field of a nested object is required only when the object is given.
         if (len(spec.path) == 1 or spec.path[:-1] in filled) and not _has(request, spec.path):

@@ -72,9 +72,9 @@ class FieldSpec:
     pair: tuple[str, str] = ("first", "last")
     # RECORDS: how each column of a record is read (a kind of this module, by field name).
     columns: tuple[tuple[str, str], ...] = ()
-    # A list field whose presence makes this one optional (``attributes`` for
+    # The list fields whose presence makes this one optional (``attributes`` for
     # ``tolerable_rate``): where no list can be given, as in a controls file, it is required.
-    required_unless: str | None = None
+    required_unless: tuple[str, ...] = ()
     # An exact amount, which a table cell (a controls file's) gives as the text written.
     amount: bool = False
 
@@ -170,9 +170,15 @@ def field_specs(schema: Schema, prefix: tuple[str, ...] = ()) -> list[FieldSpec]
         default = None if default is None or callable(default) or _is_missing(default) else default
         specs.append(FieldSpec(path, kind, field.required, _description(field),
                                _choices(field), default,
-                               required_unless=field.metadata.get("required_unless"),
+                               required_unless=_required_unless(field),
                                amount=_accepts_text(field)))
     return specs
+
+
+def _required_unless(field: fields.Field[Any]) -> tuple[str, ...]:
+    """The ``required_unless`` metadata (one field name or several) as a tuple."""
+    names = field.metadata.get("required_unless") or ()
+    return (names,) if isinstance(names, str) else tuple(names)
 
 
 def _is_missing(value: Any) -> bool:
@@ -364,7 +370,8 @@ def _help(spec: FieldSpec) -> str:
     elif spec.required:
         parts.append(f"Required when {'.'.join(spec.path[:-1])} is given.")
     elif spec.required_unless:
-        parts.append(f"Required unless --{spec.required_unless.replace('_', '-')} is given.")
+        flags = " or ".join(f"--{name.replace('_', '-')}" for name in spec.required_unless)
+        parts.append(f"Required unless {flags} is given.")
     if spec.kind == NUMBERS:
         parts.append("Numbers, comma-separated or repeated.")
     elif spec.kind == CHOICES:

@@ -98,11 +98,25 @@ def label(path: str) -> str:
 
 
 def is_rate(path: str) -> bool:
+    """Whether a field holds a rate or a probability (shown as a percentage).
+
+    An expected sample size at a rate is a number of items, whatever its name ends with.
+
+    >>> is_rate("plan_risk_of_overreliance"), is_rate("expected_sample_size_at_expected_rate")
+    (True, False)
+    >>> is_rate("sizes.confidence_against_2_deviant"), is_rate("posterior_upper_limit")
+    (True, True)
+    """
     leaf = path.rsplit(".", 1)[-1]
+    if "sample_size" in leaf:
+        return False
     return (
         leaf in _RATE_NAMES
-        or leaf.endswith(("_rate", "_confidence", "_probability"))
+        or leaf.endswith(("_rate", "_probability", "_risk", "_limit"))
         or leaf.startswith("risk_")
+        or "_risk_of_" in leaf
+        or "confidence" in leaf
+        or "upper_deviation_limit" in leaf
     )
 
 

@@ -22,7 +22,11 @@ from schemas.fields import (
     Rate,
     StrictInteger,
     StrictString,
+    choice_field,
+    confidence_field,
+    count_field,
     json_kind,
+    seed_field,
 )
 from schemas.populations import FilePopulationSchema
 from service.sampling.monetary.amounts import DEFAULT_SCALE, MAX_SCALE, fraction_text
@@ -43,7 +47,6 @@ from service.sampling.monetary.wording import (
     plan_summary,
     selection_summary,
 )
-from service.sampling.selection import MAX_SEED_LENGTH
 
 
 def _amount(description: str, example: str, **kwargs: Any) -> Amount:
@@ -66,21 +69,13 @@ def _decimals() -> StrictInteger:
 
 
 def _confidence() -> Rate:
-    return Rate(
-        load_default=0.95,
-        metadata={
-            "description": "Confidence, one minus the risk of incorrect acceptance.",
-            "example": 0.95,
-        },
+    return confidence_field(
+        "Confidence, one minus the risk of incorrect acceptance.", bounds=None
     )
 
 
 def _choice(names: tuple[str, ...], default: str, description: str) -> StrictString:
-    return StrictString(
-        load_default=default,
-        validate=validate.OneOf(names, error="must be one of {choices}"),
-        metadata={"description": f"{description} Default: {default}."},
-    )
+    return choice_field(names, f"{description} Default: {default}.", default=default)
 
 
 def _money(description: str = "", **kwargs: Any) -> fields.String:
@@ -295,25 +290,17 @@ def _plain_item(entry: Any) -> dict[str, Any] | None:
 
 
 def _sample_size() -> StrictInteger:
-    return StrictInteger(
+    return count_field(
+        "Sampling units, individually significant items included.",
+        minimum=1,
+        example=60,
         required=True,
-        validate=validate.Range(min=1, error="must be at least {min}"),
-        metadata={
-            "description": "Sampling units, individually significant items included.",
-            "example": 60,
-        },
     )
 
 
 def _seed() -> StrictString:
-    return StrictString(
-        validate=validate.Length(
-            min=1, max=MAX_SEED_LENGTH, error="must have {min} to {max} characters"
-        ),
-        metadata={
-            "description": "Seed of the random stream; generated when absent.",
-            "example": "kestrel-2026-ar",
-        },
+    return seed_field(
+        "Seed of the random stream; generated when absent.", example="kestrel-2026-ar"
     )
 
 
@@ -528,11 +515,7 @@ class MisstatementSchema(StrictSchema):
     id = StrictString(required=True, validate=validate.Length(min=1, error="must not be empty"))
     book_amount = _amount("Recorded amount of the item, above 0.", "4000.00", required=True)
     audited_amount = _amount("Amount found by the auditor.", "2000.00", required=True)
-    hits = StrictInteger(
-        load_default=1,
-        validate=validate.Range(min=1, error="must be at least {min}"),
-        metadata={"description": "Sampling units that hit the item. Default 1."},
-    )
+    hits = count_field("Sampling units that hit the item. Default 1.", minimum=1, load_default=1)
     individually_significant = fields.Boolean(
         load_default=False,
         metadata={
@@ -551,12 +534,8 @@ class MonetaryEvaluationRequest(StrictSchema):
         "2500000.00",
         required=True,
     )
-    sample_size = StrictInteger(
-        validate=validate.Range(min=1, error="must be at least {min}"),
-        metadata={
-            "description": "Sampling units drawn (give this or sampling_interval).",
-            "example": 60,
-        },
+    sample_size = count_field(
+        "Sampling units drawn (give this or sampling_interval).", minimum=1, example=60
     )
     sampling_interval = _amount(
         "Sampling interval (give this or sample_size); with both, it must equal "
