@@ -13,6 +13,7 @@ from marshmallow import (
     validates_schema,
 )
 
+from schemas.attributes import _flatten_population
 from schemas.common import PopulationSchema, ResultSchema, StrictSchema
 from schemas.fields import Rate, StrictInteger, StrictString
 from service.sampling.attributes import SampleSizePlan
@@ -111,10 +112,7 @@ class CurveRequest(StrictSchema):
 
     @post_load
     def _to_core(self, data: dict[str, Any], **kwargs: Any) -> dict[str, Any]:
-        population = data.pop("population", None) or {}
-        data["population_size"] = population.get("size")
-        data["population_label"] = population.get("label")
-        return data
+        return _flatten_population(data)
 
 
 class CurvePointSchema(Schema):

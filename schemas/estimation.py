@@ -12,6 +12,7 @@ from marshmallow import (
     validate,
 )
 
+from schemas.attributes import _flatten_population
 from schemas.common import PopulationSchema, ResultSchema, StrictSchema
 from schemas.fields import Rate, StrictFloat, StrictString
 from service.sampling.estimation import MAX_CONFIDENCE, METHODS, MIN_CONFIDENCE, MIN_MARGIN
@@ -129,10 +130,7 @@ class EstimationRequest(StrictSchema):
 
     @post_load
     def _to_core(self, data: dict[str, Any], **kwargs: Any) -> dict[str, Any]:
-        population = data.pop("population", None) or {}
-        data["population_size"] = population.get("size")
-        data["population_label"] = population.get("label")
-        return data
+        return _flatten_population(data)
 
 
 class EstimationRowSchema(Schema):

@@ -13,8 +13,8 @@ from typing import Any
 from marshmallow import fields, pre_dump
 
 from schemas.common import StrictSchema
-from schemas.fields import Amount, Rate
-from schemas.monetary import MonetaryEvaluationSchema, money_text
+from schemas.fields import Amount
+from schemas.monetary import MonetaryEvaluationSchema, _confidence, money_text
 from schemas.test_sheet_fields import not_tested_treatment
 from service.sampling.test_sheets.monetary_results import (
     NOT_TESTED_TREATMENTS,
@@ -25,13 +25,7 @@ from service.sampling.test_sheets.monetary_results import (
 class MonetarySheetEvaluationRequest(StrictSchema):
     """How to evaluate a completed monetary-unit test sheet."""
 
-    confidence = Rate(
-        load_default=0.95,
-        metadata={
-            "description": "Confidence, one minus the risk of incorrect acceptance.",
-            "example": 0.95,
-        },
-    )
+    confidence = _confidence()
     tolerable_misstatement = Amount(
         metadata={
             "type": ["number", "string"],

@@ -11,13 +11,11 @@ from typing import Any
 
 from marshmallow import ValidationError, fields, validate
 
-from schemas.attributes import METHOD_NAMES, EvaluationSchema
+from schemas.attributes import METHOD_NAMES, EvaluationSchema, _confidence
 from schemas.common import PopulationSchema, ResultSchema, StrictSchema
 from schemas.fields import Rate, StrictString
 from schemas.test_sheet_fields import not_tested_treatment
 from service.sampling.attributes import (
-    MAX_CONFIDENCE,
-    MIN_CONFIDENCE,
     MIN_TOLERABLE_RATE,
     Evaluation,
 )
@@ -44,15 +42,7 @@ class TestSheetEvaluationRequest(StrictSchema):
 
     __test__ = False  # not a pytest test class
 
-    confidence = Rate(
-        load_default=0.95,
-        metadata={
-            "minimum": MIN_CONFIDENCE,
-            "maximum": MAX_CONFIDENCE,
-            "description": "Confidence, one minus the risk of overreliance, as a fraction.",
-            "example": 0.95,
-        },
-    )
+    confidence = _confidence()
     tolerable_rates = _Rates(
         keys=StrictString(validate=validate.Length(min=1, max=MAX_ATTRIBUTE_LENGTH)),
         values=Rate(metadata={"minimum": MIN_TOLERABLE_RATE}),
