@@ -18,6 +18,7 @@ from schemas.common import (
     StrictSchema,
     check_rates_in_order,
     conclusion_field,
+    flatten_population,
     summary_field,
 )
 from schemas.fields import (
@@ -59,13 +60,6 @@ METHOD_DESCRIPTION = (
     "Distribution used: hypergeometric (finite population, without replacement), binomial, "
     "or poisson. Default: hypergeometric when population.size is given, else binomial."
 )
-
-
-def _flatten_population(data: dict[str, Any]) -> dict[str, Any]:
-    population = data.pop("population", None) or {}
-    data["population_size"] = population.get("size")
-    data["population_label"] = population.get("label")
-    return data
 
 
 class SampleSizeRequest(StrictSchema):
@@ -134,7 +128,7 @@ class SampleSizeRequest(StrictSchema):
 
     @post_load
     def _to_core(self, data: dict[str, Any], **kwargs: Any) -> dict[str, Any]:
-        return _flatten_population(data)
+        return flatten_population(data)
 
 
 class SampleSizePlanSchema(ResultSchema):
@@ -355,7 +349,7 @@ class EvaluationRequest(StrictSchema):
 
     @post_load
     def _to_core(self, data: dict[str, Any], **kwargs: Any) -> dict[str, Any]:
-        return _flatten_population(data)
+        return flatten_population(data)
 
 
 class EvaluationSchema(ResultSchema):

@@ -148,3 +148,12 @@ def summary_field(summary: Callable[[Any], str]) -> fields.Function:
         required=True,
         metadata={"type": "string", "description": "Plain-English paragraph."},
     )
+
+
+def flatten_population(data: dict[str, Any]) -> dict[str, Any]:
+    """A loaded request's ``population`` object as the core's ``population_size`` and
+    ``population_label`` arguments."""
+    population = data.pop("population", None) or {}
+    data["population_size"] = population.get("size")
+    data["population_label"] = population.get("label")
+    return data

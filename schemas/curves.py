@@ -17,6 +17,7 @@ from schemas.common import (
     PopulationSchema,
     ResultSchema,
     StrictSchema,
+    flatten_population,
     summary_field,
 )
 from schemas.fields import Rate, StrictInteger, StrictString
@@ -116,10 +117,7 @@ class CurveRequest(StrictSchema):
 
     @post_load
     def _to_core(self, data: dict[str, Any], **kwargs: Any) -> dict[str, Any]:
-        population = data.pop("population", None) or {}
-        data["population_size"] = population.get("size")
-        data["population_label"] = population.get("label")
-        return data
+        return flatten_population(data)
 
 
 class CurvePointSchema(Schema):

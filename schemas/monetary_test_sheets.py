@@ -10,11 +10,12 @@ from __future__ import annotations
 from fractions import Fraction
 from typing import Any
 
-from marshmallow import fields, pre_dump, validate
+from marshmallow import fields, pre_dump
 
 from schemas.common import StrictSchema
-from schemas.fields import Amount, Rate, StrictString
-from schemas.monetary import MonetaryEvaluationSchema, money_text
+from schemas.fields import Amount
+from schemas.monetary import MonetaryEvaluationSchema, _confidence, money_text
+from schemas.test_sheet_fields import not_tested_treatment
 from service.sampling.test_sheets.monetary_results import (
     NOT_TESTED_TREATMENTS,
     MonetarySheetEvaluation,
@@ -24,13 +25,7 @@ from service.sampling.test_sheets.monetary_results import (
 class MonetarySheetEvaluationRequest(StrictSchema):
     """How to evaluate a completed monetary-unit test sheet."""
 
-    confidence = Rate(
-        load_default=0.95,
-        metadata={
-            "description": "Confidence, one minus the risk of incorrect acceptance.",
-            "example": 0.95,
-        },
-    )
+    confidence = _confidence()
     tolerable_misstatement = Amount(
         metadata={
             "type": ["number", "string"],
@@ -39,13 +34,11 @@ class MonetarySheetEvaluationRequest(StrictSchema):
             "example": "30000.00",
         }
     )
-    not_tested = StrictString(
-        validate=validate.OneOf(NOT_TESTED_TREATMENTS, error="must be one of {choices}"),
-        metadata={
-            "description": "How items with a blank audited amount (not tested) are treated; "
-            "required when there are any. count_as_misstated (common practice): each is "
-            "taken as audited at 0, a 100% misstatement of its book amount.",
-        },
+    not_tested = not_tested_treatment(
+        NOT_TESTED_TREATMENTS,
+        "How items with a blank audited amount (not tested) are treated; required when "
+        "there are any. count_as_misstated (common practice): each is taken as audited at 0, "
+        "a 100% misstatement of its book amount.",
     )
 
 

@@ -6,13 +6,14 @@ from typing import Any
 
 from marshmallow import Schema, ValidationError, fields, post_load, validate, validates_schema
 
-from schemas.attributes import METHOD_NAMES, EvaluationSchema, _flatten_population
+from schemas.attributes import METHOD_NAMES, EvaluationSchema
 from schemas.common import (
     PopulationSchema,
     ResultSchema,
     StrictSchema,
     check_rates_in_order,
     conclusion_field,
+    flatten_population,
     rates_in_order,
     summary_field,
 )
@@ -81,7 +82,7 @@ class StagedPlanRequest(StrictSchema):
 
     @post_load
     def _to_core(self, data: dict[str, Any], **kwargs: Any) -> dict[str, Any]:
-        return _flatten_population(data)
+        return flatten_population(data)
 
 
 class StageSchema(StrictSchema):
@@ -233,7 +234,7 @@ class StagedEvaluationRequest(StrictSchema):
 
     @post_load
     def _to_core(self, data: dict[str, Any], **kwargs: Any) -> dict[str, Any]:
-        return _flatten_population(data)
+        return flatten_population(data)
 
 
 class StagedEvaluationSchema(ResultSchema):
@@ -327,7 +328,7 @@ class StagedCurveRequest(StrictSchema):
 
     @post_load
     def _to_core(self, data: dict[str, Any], **kwargs: Any) -> dict[str, Any]:
-        data = _flatten_population(data)
+        data = flatten_population(data)
         data.pop("population_label", None)
         return data
 
@@ -495,7 +496,7 @@ class SequenceRequest(StrictSchema):
 
     @post_load
     def _to_core(self, data: dict[str, Any], **kwargs: Any) -> dict[str, Any]:
-        data = _flatten_population(data)
+        data = flatten_population(data)
         data.pop("population_label", None)
         return data
 

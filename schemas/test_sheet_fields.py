@@ -1,11 +1,13 @@
-"""The field naming the attributes of a test sheet, shared by the selection's request."""
+"""Fields of the test sheets' contracts: the attributes a selection's request names for an
+attribute test sheet, and how an evaluation's request treats the items not tested."""
 
 from __future__ import annotations
 
 from collections import Counter
+from collections.abc import Sequence
 from typing import Any
 
-from marshmallow import ValidationError, fields
+from marshmallow import ValidationError, fields, validate
 
 from schemas.fields import StrictString, json_kind
 from service.sampling.test_sheets.layout import MAX_ATTRIBUTE_LENGTH, MAX_ATTRIBUTES
@@ -44,3 +46,11 @@ class AttributeNames(fields.List[Any]):
         if repeated:
             raise ValidationError(f"must be distinct; repeated: {', '.join(repeated)}")
         return list(value)
+
+
+def not_tested_treatment(treatments: Sequence[str], description: str) -> StrictString:
+    """The request's ``not_tested``: one of ``treatments``, optional."""
+    return StrictString(
+        validate=validate.OneOf(treatments, error="must be one of {choices}"),
+        metadata={"description": description},
+    )

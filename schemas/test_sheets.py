@@ -14,6 +14,7 @@ from marshmallow import ValidationError, fields, validate
 from schemas.attributes import METHOD_NAMES, EvaluationSchema
 from schemas.common import PopulationSchema, ResultSchema, StrictSchema
 from schemas.fields import Rate, StrictString, confidence_field
+from schemas.test_sheet_fields import not_tested_treatment
 from service.sampling.attributes import (
     MIN_TOLERABLE_RATE,
     Evaluation,
@@ -51,13 +52,11 @@ class TestSheetEvaluationRequest(StrictSchema):
             "example": {"approved before release": 0.05, "three-way match": 0.05},
         },
     )
-    not_tested = StrictString(
-        validate=validate.OneOf(NOT_TESTED_TREATMENTS, error="must be one of {choices}"),
-        metadata={
-            "description": "How items marked 'not tested' are treated; required when there "
-            "are any. count_as_deviation (common practice): each is a deviation. drop: the "
-            "items tested are evaluated as a smaller sample, with a warning.",
-        },
+    not_tested = not_tested_treatment(
+        NOT_TESTED_TREATMENTS,
+        "How items marked 'not tested' are treated; required when there are any. "
+        "count_as_deviation (common practice): each is a deviation. drop: the items tested "
+        "are evaluated as a smaller sample, with a warning.",
     )
     method = StrictString(
         validate=validate.OneOf(METHOD_NAMES, error="must be one of {choices}"),

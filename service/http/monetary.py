@@ -259,6 +259,15 @@ _SHEET_TEXT = (
     "a string cell, never a formula."
 )
 
+_EVALUATION_ANSWER = (
+    "overstatement",
+    "understatement",
+    "net_most_likely_misstatement",
+    "conclusion",
+    "limits",
+)
+"""What a ticket shows of a monetary-unit evaluation, of a list or of a test sheet."""
+
 _SELECTION_TICKET = TicketLayout(
     answer=(
         "sample_size",
@@ -403,25 +412,13 @@ OPERATIONS = [
                     "selection_fingerprint",
                     "items_tested",
                     "items_not_tested",
-                    "overstatement",
-                    "understatement",
-                    "net_most_likely_misstatement",
-                    "conclusion",
-                    "limits",
+                    *_EVALUATION_ANSWER,
                 ),
                 method=_evaluation_method,
             ),
         ),
         ticket=TicketLayout(
-            answer=(
-                "sample_size",
-                "sampling_interval",
-                "overstatement",
-                "understatement",
-                "net_most_likely_misstatement",
-                "conclusion",
-                "limits",
-            ),
+            answer=("sample_size", "sampling_interval", *_EVALUATION_ANSWER),
             method=_evaluation_method,
         ),
     ),

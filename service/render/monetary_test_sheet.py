@@ -16,9 +16,14 @@ from decimal import Decimal
 from typing import Any
 
 from service.render.selection_report import SelectionReport, Table
-from service.render.test_sheet import seal
-from service.render.xlsx import new_workbook, write_cell, write_facts, write_rows
-from service.sampling.test_sheets.layout import EVALUATION_SHEET
+from service.render.test_sheet_workbook import (
+    KeyedTable,
+    finish_test_sheet,
+    write_evaluated_workbook,
+    write_evaluation_sheet,
+)
+from service.render.xlsx import new_workbook, write_cell
+from service.sampling.test_sheets.layout import TESTS_SHEET
 from service.sampling.test_sheets.monetary_layout import (
     AUDITED,
     ITEMS_MARKER,
@@ -30,10 +35,8 @@ from service.sampling.test_sheets.monetary_layout import (
     TRAILING,
     WHERE,
 )
-from service.sampling.test_sheets.monetary_reading import RECORD_SHEET, TESTS_SHEET
 from service.sampling.wording import CAUTION
 
-SELECTION_SHEET = "Selection"
 _LIMIT = 10**15
 """Bound of the audited-amount validation: amounts a spreadsheet holds exactly."""
 
@@ -177,12 +180,14 @@ def render_monetary_test_sheet(document: dict[str, Any], result: Any) -> bytes:
         attributes=(),
         population=None,
     )
-    write_facts(workbook.add_worksheet(SELECTION_SHEET), report, bold, wrap)
-    record = workbook.add_worksheet(RECORD_SHEET)
-    write_rows(record, _record_rows(document, result))
-    seal(workbook, record, document["selection_fingerprint"], CAUTION)
-    workbook.close()
-    return buffer.getvalue()
+    return finish_test_sheet(
+        workbook,
+        buffer,
+        report,
+        (bold, wrap),
+        _record_rows(document, result),
+        document["selection_fingerprint"],
+    )
 
 
 _LIMIT_COLUMNS = (
@@ -197,11 +202,18 @@ _LIMIT_COLUMNS = (
 )
 
 
+_MISSTATEMENT_COLUMNS = tuple(
+    (name, name.replace(" ", "_"))
+    for name in ("line", "item", "selection", "book amount", "audited amount", "hits", "taint")
+)
+
+
+def _lowered(value: Any) -> Any:
+    """A yes/no as the JSON answer spells it."""
+    return str(value).lower() if isinstance(value, bool) else value
+
+
 def _evaluation_sheet(workbook: Any, document: Mapping[str, Any]) -> None:
-    sheet = workbook.add_worksheet(EVALUATION_SHEET)
-    bold = workbook.add_format({"bold": True})
-    wrap = workbook.add_format({"text_wrap": True, "valign": "top"})
-    sheet.write_string(0, 0, "Evaluation of the monetary-unit test sheet", bold)
     over, under = document["overstatement"], document["understatement"]
     facts = [
         ("selection fingerprint", document["selection_fingerprint"]),
@@ -223,55 +235,32 @@ def _evaluation_sheet(workbook: Any, document: Mapping[str, Any]) -> None:
         ("net most likely misstatement", document["net_most_likely_misstatement"]),
         ("conclusion", document["conclusion"]),
     ]
-    row = 2
-    for label, value in facts:
-        sheet.write_string(row, 0, label, bold)
-        write_cell(sheet, row, 1, "" if value is None else value)
-        row += 1
-    row += 1
-    for column, (heading, _) in enumerate(_LIMIT_COLUMNS):
-        sheet.write_string(row, column, heading, bold)
-    for limit in document["limits"]:
-        row += 1
-        for column, (_, key) in enumerate(_LIMIT_COLUMNS):
-            value = limit.get(key)
-            write_cell(sheet, row, column, str(value).lower() if isinstance(value, bool) else value)
-    row += 2
-    found_heading = ("line", "item", "selection", "book amount", "audited amount", "hits", "taint")
-    for column, name in enumerate(found_heading):
-        sheet.write_string(row, column, name, bold)
-    for found in document["misstatements"]:
-        row += 1
-        write_rows(sheet, [tuple(found[k.replace(" ", "_")] for k in found_heading)], row)
-    row += 2
     lines = [("summary", document["summary"].removesuffix(CAUTION).rstrip())]
     lines += [("warning", warning) for warning in document["warnings"]]
     lines.append(("caution", CAUTION))
-    for label, text in lines:
-        sheet.write_string(row, 0, label, bold)
-        sheet.write_string(row, 1, text, wrap)
-        row += 1
-    sheet.set_column(0, 0, 30)
-    sheet.set_column(1, 1, 60)
-    sheet.set_column(2, len(_LIMIT_COLUMNS) - 1, 18)
-    sheet.activate()
+    write_evaluation_sheet(
+        workbook,
+        "Evaluation of the monetary-unit test sheet",
+        [(label, "" if value is None else value) for label, value in facts],
+        [
+            KeyedTable(_LIMIT_COLUMNS, document["limits"], _lowered),
+            KeyedTable(_MISSTATEMENT_COLUMNS, document["misstatements"]),
+        ],
+        lines,
+        (30, 60, 18),
+    )
 
 
 def render_evaluated_monetary_sheet(document: dict[str, Any], result: Any) -> bytes:
     """The completed sheet of ``result`` with the evaluation ``document`` added, as XLSX."""
     completed = result.sheet
-    workbook, buffer = new_workbook()
-    _evaluation_sheet(workbook, document)
-    record = None
-    for name, rows in completed.sheets:
-        written = workbook.add_worksheet(name)
-        write_rows(written, rows)
-        if name == TESTS_SHEET and rows:
-            heading = [str(cell) if cell is not None else "" for cell in rows[0]]
-            audited_validation(written, heading.index(AUDITED), len(rows) - 1)
-        if name == RECORD_SHEET:
-            record = written
-    if record is not None:
-        seal(workbook, record, completed.recorded.selection_fingerprint, CAUTION)
-    workbook.close()
-    return buffer.getvalue()
+
+    def restrict(written: Any, heading: list[str], rows: int) -> None:
+        audited_validation(written, heading.index(AUDITED), rows)
+
+    return write_evaluated_workbook(
+        lambda workbook: _evaluation_sheet(workbook, document),
+        completed.sheets,
+        completed.recorded.selection_fingerprint,
+        restrict,
+    )

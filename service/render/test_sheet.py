@@ -12,15 +12,12 @@ import json
 from typing import Any
 
 from service.render.selection_report import Cell, SelectionReport
-from service.render.xlsx import new_workbook, write_facts, write_rows, write_table
+from service.render.test_sheet_workbook import finish_test_sheet
+from service.render.xlsx import new_workbook, write_table
 from service.sampling.test_sheets.layout import (
-    FINGERPRINT_NAME,
-    FINGERPRINT_PROPERTY,
     ITEMS_MARKER,
     LAYOUT,
-    RECORD_SHEET,
     RESULT_WORDS,
-    SELECTION_SHEET,
     TESTS_SHEET,
     notes_header,
     result_header,
@@ -72,17 +69,6 @@ def result_validation(sheet: Any, column: int, rows: int, attribute: str) -> Non
         )
 
 
-def seal(workbook: Any, record: Any, fingerprint: str, caution: str) -> None:
-    """Hide and protect the record sheet; name the fingerprint in the workbook's metadata."""
-    record.protect()
-    record.very_hidden()
-    workbook.define_name(FINGERPRINT_NAME, f'="{fingerprint}"')
-    workbook.set_custom_property(FINGERPRINT_PROPERTY, fingerprint)
-    workbook.set_properties(
-        {"title": f"Test sheet, selection {fingerprint[:16]}", "comments": caution}
-    )
-
-
 def _tests_sheet(workbook: Any, report: SelectionReport, bold: Any) -> None:
     sheet = workbook.add_worksheet(TESTS_SHEET)
     table = report.records
@@ -104,9 +90,7 @@ def render_test_sheet(report: SelectionReport) -> bytes:
     bold = workbook.add_format({"bold": True})
     wrap = workbook.add_format({"text_wrap": True, "valign": "top"})
     _tests_sheet(workbook, report, bold)
-    write_facts(workbook.add_worksheet(SELECTION_SHEET), report, bold, wrap)
-    record = workbook.add_worksheet(RECORD_SHEET)
-    write_rows(record, record_rows(report))
-    seal(workbook, record, str(_fact(report, "selection fingerprint")), report.caution)
-    workbook.close()
-    return buffer.getvalue()
+    fingerprint = str(_fact(report, "selection fingerprint"))
+    return finish_test_sheet(
+        workbook, buffer, report, (bold, wrap), record_rows(report), fingerprint
+    )

@@ -15,14 +15,13 @@ from __future__ import annotations
 from collections.abc import Mapping
 from typing import Any
 
-from service.render.test_sheet import result_validation, seal
-from service.render.xlsx import new_workbook, write_cell, write_rows
-from service.sampling.test_sheets.layout import (
-    EVALUATION_SHEET,
-    RECORD_SHEET,
-    TESTS_SHEET,
-    result_header,
+from service.render.test_sheet import result_validation
+from service.render.test_sheet_workbook import (
+    KeyedTable,
+    write_evaluated_workbook,
+    write_evaluation_sheet,
 )
+from service.sampling.test_sheets.layout import result_header
 from service.sampling.wording import CAUTION
 
 _COLUMNS = (
@@ -60,53 +59,30 @@ def _facts(document: Mapping[str, Any]) -> list[tuple[str, Any]]:
 
 
 def _evaluation_sheet(workbook: Any, document: Mapping[str, Any]) -> None:
-    sheet = workbook.add_worksheet(EVALUATION_SHEET)
-    bold = workbook.add_format({"bold": True})
-    wrap = workbook.add_format({"text_wrap": True, "valign": "top"})
-    sheet.write_string(0, 0, "Evaluation of the test sheet", bold)
-    row = 2
-    for label, value in _facts(document):
-        sheet.write_string(row, 0, label, bold)
-        write_cell(sheet, row, 1, value)
-        row += 1
-    row += 1
-    for column, (heading, _) in enumerate(_COLUMNS):
-        sheet.write_string(row, column, heading, bold)
-    for evaluation in document["evaluations"]:
-        row += 1
-        for column, (_, key) in enumerate(_COLUMNS):
-            write_cell(sheet, row, column, evaluation.get(key))
-    row += 2
     lines = [("summary", e["attribute"] + ": " + e["summary"]) for e in document["evaluations"]]
     lines += [("warning", warning) for warning in document["warnings"]]
     lines.append(("caution", CAUTION))
-    for label, text in lines:
-        sheet.write_string(row, 0, label, bold)
-        sheet.write_string(row, 1, text, wrap)
-        row += 1
-    sheet.set_column(0, 0, 26)
-    sheet.set_column(1, 1, 90)
-    sheet.set_column(2, len(_COLUMNS) - 1, 16)
-    sheet.activate()
+    write_evaluation_sheet(
+        workbook,
+        "Evaluation of the test sheet",
+        _facts(document),
+        [KeyedTable(_COLUMNS, document["evaluations"])],
+        lines,
+        (26, 90, 16),
+    )
 
 
 def render_evaluated_sheet(document: dict[str, Any], result: Any) -> bytes:
     """The completed sheet of ``result`` with the evaluation ``document`` added, as XLSX."""
     sheet = result.sheet
-    workbook, buffer = new_workbook()
-    _evaluation_sheet(workbook, document)
-    record = None
-    for name, rows in sheet.sheets:
-        written = workbook.add_worksheet(name)
-        write_rows(written, rows)
-        if name == TESTS_SHEET and rows:
-            heading = [str(cell) if cell is not None else "" for cell in rows[0]]
-            for attribute in sheet.recorded.attributes:
-                column = heading.index(result_header(attribute))
-                result_validation(written, column, len(rows) - 1, attribute)
-        if name == RECORD_SHEET:
-            record = written
-    if record is not None:
-        seal(workbook, record, sheet.recorded.selection_fingerprint, CAUTION)
-    workbook.close()
-    return buffer.getvalue()
+
+    def restrict(written: Any, heading: list[str], rows: int) -> None:
+        for attribute in sheet.recorded.attributes:
+            result_validation(written, heading.index(result_header(attribute)), rows, attribute)
+
+    return write_evaluated_workbook(
+        lambda workbook: _evaluation_sheet(workbook, document),
+        sheet.sheets,
+        sheet.recorded.selection_fingerprint,
+        restrict,
+    )

@@ -56,6 +56,7 @@ __all__ = [
     "items_fingerprint",
     "select",
     "select_canonical",
+    "selection_fingerprint",
     "uniform_below",
     "word_stream",
 ]
@@ -534,10 +535,21 @@ METHODS: Final = tuple(_METHODS)
 
 def _selection_fingerprint(population: bytes, key: bytes, method: str, n: int) -> str:
     """Hex SHA-256 binding everything the selection depends on (Notes, step 7)."""
+    return selection_fingerprint(b"selection", ALGORITHM_IDS[method], population, key, method, n)
+
+
+def selection_fingerprint(
+    domain: bytes, algorithm: str, population: bytes, key: bytes, method: str, n: int
+) -> str:
+    """Hex SHA-256 of ``domain || 0x00 || ASCII(algorithm) || 0x00 || population
+    fingerprint (32 raw bytes) || ASCII(method) || 0x00 || u64(n) || u64(len(key)) || key``,
+    integers big-endian: the selection fingerprint of :func:`select` (``b"selection"``) and
+    of the monetary-unit selection (``b"monetary-selection"``)."""
     payload = b"".join(
         (
-            b"selection\x00",
-            ALGORITHM_IDS[method].encode("ascii"),
+            domain,
+            b"\x00",
+            algorithm.encode("ascii"),
             b"\x00",
             population,
             method.encode("ascii"),

@@ -51,6 +51,7 @@ from service.sampling.selection import (
     MAX_IDENTIFIER_LENGTH,
     check_seed,
     generate_seed,
+    selection_fingerprint,
     uniform_below,
     word_stream,
 )
@@ -167,20 +168,8 @@ def population_fingerprint(ordered: list[tuple[str, int]], scale: int) -> bytes:
 
 
 def _selection_fingerprint(population: bytes, key: bytes, method: str, n: int) -> str:
-    payload = b"".join(
-        (
-            b"monetary-selection\x00",
-            ALGORITHM_ID.encode("ascii"),
-            b"\x00",
-            population,
-            method.encode("ascii"),
-            b"\x00",
-            n.to_bytes(8, "big"),
-            len(key).to_bytes(8, "big"),
-            key,
-        )
-    )
-    return hashlib.sha256(payload).hexdigest()
+    """Hex SHA-256 binding everything the selection depends on (module Notes, step 7)."""
+    return selection_fingerprint(b"monetary-selection", ALGORITHM_ID, population, key, method, n)
 
 
 def split_significant(

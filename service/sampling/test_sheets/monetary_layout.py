@@ -17,12 +17,19 @@ A monetary-unit test sheet is an XLSX workbook with three sheets:
 Amounts on the record sheet are whole numbers of the smallest currency unit written as
 text, so that they read back exactly. The selection fingerprint is also the workbook's
 defined name ``SelectionFingerprint`` and its custom document property
-``selection_fingerprint``, as on the attribute test sheet.
+``selection_fingerprint``, as on the attribute test sheet; the names of the sheets and the
+row ``items`` of the record sheet are those of :mod:`service.sampling.test_sheets.layout`.
 """
 
 from __future__ import annotations
 
 from typing import Final
+
+from service.sampling.test_sheets.layout import ITEMS_MARKER
+
+__all__ = ["AUDITED", "BOOK", "HITS", "ITEM", "ITEMS_MARKER", "KIND", "KINDS", "LAYOUT",
+           "LEADING", "LINE", "NOTES", "OWN", "RECORD_KEYS", "SAMPLED", "SIGNIFICANT",
+           "TRAILING", "UNITS", "WHERE"]
 
 LAYOUT: Final = "monetary-test-sheet/1"
 """Identifier of this layout, written on the record sheet; a reader refuses any other."""
@@ -66,5 +73,3 @@ RECORD_KEYS: Final = (
     "excluded_total",
 )
 """Keys of the record sheet, in order; amounts in smallest currency units, as text."""
-
-ITEMS_MARKER: Final = "items"

@@ -1,7 +1,7 @@
 """Reading a completed monetary-unit test sheet: the recorded selection and the rows.
 
-The archive is checked first (:func:`~service.sampling.test_sheets.reading.check_archive`:
-size and compression-ratio bounds), then the workbook is read with python-calamine.
+The workbook is read by :func:`~service.sampling.test_sheets.workbook.read_sheets` after a
+check of its archive (size and compression-ratio bounds).
 Columns of the ``Tests`` sheet are found by their headings, so a reviewer may add columns
 of their own or move them. Texts are kept exactly; numbers are read back as the shortest
 decimal that gives the same binary number, which is the decimal a person typed for any
@@ -15,23 +15,31 @@ from pathlib import Path
 from typing import Any
 
 from service.sampling.errors import InvalidInput
-from service.sampling.test_sheets.layout import EVALUATION_SHEET
+from service.sampling.test_sheets.layout import RECORD_SHEET, TESTS_SHEET
 from service.sampling.test_sheets.monetary_layout import (
     AUDITED,
     BOOK,
     HITS,
     ITEM,
-    ITEMS_MARKER,
     KINDS,
     LAYOUT,
     LINE,
     NOTES,
     RECORD_KEYS,
 )
-from service.sampling.test_sheets.reading import FIELD, check_archive
+from service.sampling.test_sheets.workbook import (
+    FIELD,
+    column,
+    copied_sheets,
+    filled_rows,
+    optional_column,
+    read_record,
+    read_sheets,
+)
 
-TESTS_SHEET = "Tests"
-RECORD_SHEET = "record"
+__all__ = ["RECORD_SHEET", "TESTS_SHEET", "CompletedMonetarySheet", "MonetarySheetRow",
+           "RecordedItem", "RecordedMonetarySelection", "cell_value",
+           "read_monetary_test_sheet"]
 
 Cell = int | float | str | None
 
@@ -132,30 +140,23 @@ def _item(cells: list[Any]) -> RecordedItem:
     return item
 
 
+def _listed(cells: list[Any]) -> list[Any] | None:
+    """An item row of the record sheet to read once the record is known good, or None
+    when blank."""
+    return cells if any(cell_value(c) is not None for c in cells) else None
+
+
 def _recorded(rows: list[list[Any]]) -> RecordedMonetarySelection:
-    facts: dict[str, Cell] = {}
-    listed: list[list[Any]] = []
-    in_items = False
-    for raw in rows:
-        cells = [*raw, "", "", "", "", ""][:5]
-        if in_items:
-            if any(cell_value(c) is not None for c in cells):
-                listed.append(cells)
-        elif _text(cells[0]) == ITEMS_MARKER:
-            in_items = True
-        elif _text(cells[0]):
-            facts[_text(cells[0])] = cell_value(cells[1])
-    if facts.get("layout") != LAYOUT:
-        raise InvalidInput(
-            FIELD,
-            f"the record sheet is of layout {facts.get('layout')!r}; this endpoint reads "
-            f"{LAYOUT!r} (a monetary-unit test sheet made by /v1/monetary/selection)",
-        )
-    missing = [key for key in RECORD_KEYS if key not in facts]
-    if missing or not in_items:
-        raise InvalidInput(
-            FIELD, f"the record sheet lacks {', '.join(missing) or 'its items'}; it is damaged"
-        )
+    facts, listed = read_record(
+        rows,
+        5,
+        cell_value,
+        _listed,
+        LAYOUT,
+        f"this endpoint reads {LAYOUT!r} (a monetary-unit test sheet made by "
+        "/v1/monetary/selection)",
+        RECORD_KEYS,
+    )
     return RecordedMonetarySelection(
         selection_fingerprint=_text(facts["selection_fingerprint"]),
         population_fingerprint=_text(facts["population_fingerprint"]),
@@ -174,20 +175,6 @@ def _recorded(rows: list[list[Any]]) -> RecordedMonetarySelection:
     )
 
 
-def _column(heading: list[str], name: str, required: bool = True) -> int | None:
-    if heading.count(name) > 1:
-        raise InvalidInput(FIELD, f"the {TESTS_SHEET} sheet has two columns {name!r}")
-    if name in heading:
-        return heading.index(name)
-    if not required:
-        return None
-    raise InvalidInput(
-        FIELD,
-        f"the {TESTS_SHEET} sheet has no column {name!r} in its first row "
-        f"(columns: {', '.join(repr(h) for h in heading if h)})",
-    )
-
-
 def read_monetary_test_sheet(path: Path) -> CompletedMonetarySheet:
     """Read a completed monetary-unit test sheet from ``path``.
 
@@ -197,43 +184,15 @@ def read_monetary_test_sheet(path: Path) -> CompletedMonetarySheet:
         On ``file``: not an XLSX workbook, out of the archive bounds, not a monetary-unit
         test sheet of this layout, or a ``Tests`` sheet without its columns.
     """
-    check_archive(path)
-    from python_calamine import CalamineError, CalamineWorkbook
-
-    try:
-        workbook = CalamineWorkbook.from_path(str(path))
-    except (CalamineError, OSError, ValueError) as exc:
-        raise InvalidInput(FIELD, f"is not a readable XLSX workbook ({exc})") from None
-    try:
-        names = list(workbook.sheet_names)
-        for needed in (RECORD_SHEET, TESTS_SHEET):
-            if needed not in names:
-                raise InvalidInput(
-                    FIELD,
-                    f"has no sheet named {needed!r}; it is not a monetary-unit test sheet "
-                    f"made by this service (sheets: {', '.join(names)})",
-                )
-        try:
-            raw: dict[str, list[list[Any]]] = {
-                name: workbook.get_sheet_by_name(name).to_python(skip_empty_area=False)
-                for name in names
-                if name != EVALUATION_SHEET
-            }
-        except CalamineError as exc:
-            raise InvalidInput(FIELD, f"is not a readable XLSX workbook ({exc})") from None
-    finally:
-        workbook.close()
+    raw = read_sheets(path, (RECORD_SHEET, TESTS_SHEET), "monetary-unit test sheet")
     recorded = _recorded(raw[RECORD_SHEET])
     table = raw[TESTS_SHEET]
     heading = [_text(cell) for cell in (table[0] if table else [])]
-    at = {name: _column(heading, name) for name in (LINE, ITEM, BOOK, HITS, AUDITED)}
-    notes_at = _column(heading, NOTES, required=False)
+    at = {name: column(heading, name) for name in (LINE, ITEM, BOOK, HITS, AUDITED)}
+    notes_at = optional_column(heading, NOTES)
     rows: list[MonetarySheetRow] = []
-    for number, cells in enumerate(table[1:], start=2):
-        if all(cell_value(cell) is None for cell in cells):
-            continue
-        padded = [*cells, *([""] * len(heading))]
-        value = {name: cell_value(padded[k]) for name, k in at.items() if k is not None}
+    for number, padded in filled_rows(table, len(heading), cell_value):
+        value = {name: cell_value(padded[k]) for name, k in at.items()}
         rows.append(
             MonetarySheetRow(
                 row=number,
@@ -245,8 +204,4 @@ def read_monetary_test_sheet(path: Path) -> CompletedMonetarySheet:
                 notes="" if notes_at is None else _text(padded[notes_at]),
             )
         )
-    sheets = tuple(
-        (name, tuple(tuple(cell_value(c) for c in row) for row in cells))
-        for name, cells in raw.items()
-    )
-    return CompletedMonetarySheet(recorded, tuple(rows), sheets)
+    return CompletedMonetarySheet(recorded, tuple(rows), copied_sheets(raw, cell_value))

@@ -22,7 +22,6 @@ JSON evaluation of the same misstatements.
 
 from __future__ import annotations
 
-from collections.abc import Sequence
 from dataclasses import dataclass
 from decimal import Decimal, InvalidOperation
 from typing import Final
@@ -36,21 +35,19 @@ from service.sampling.monetary.evaluation import (
 )
 from service.sampling.monetary.selection import ALGORITHM_ID, METHODS
 from service.sampling.populations.amounts import parse_amount
+from service.sampling.test_sheets.matching import SheetMismatch, listed, match_rows, shown
 from service.sampling.test_sheets.monetary_layout import SAMPLED, SIGNIFICANT
 from service.sampling.test_sheets.monetary_reading import (
     Cell,
     CompletedMonetarySheet,
+    MonetarySheetRow,
     RecordedItem,
     RecordedMonetarySelection,
 )
-from service.sampling.test_sheets.reading import FIELD
-from service.sampling.test_sheets.results import SheetMismatch
+from service.sampling.test_sheets.workbook import FIELD
 
 COUNT_AS_MISSTATED: Final = "count_as_misstated"
 NOT_TESTED_TREATMENTS: Final = (COUNT_AS_MISSTATED,)
-
-SHOWN: Final = 10
-"""How many rows a refusal names in each of its lists before counting the rest."""
 
 
 @dataclass(frozen=True)
@@ -83,16 +80,6 @@ class MonetarySheetEvaluation:
     @property
     def misstatements(self) -> tuple[TestedItem, ...]:
         return tuple(i for i in self.items if i.audited_amount != i.book_amount)
-
-
-def _listed(entries: Sequence[str]) -> str:
-    shown = "; ".join(entries[:SHOWN])
-    more = len(entries) - SHOWN
-    return shown + (f"; and {more:,} more" if more > 0 else "")
-
-
-def _show(value: Cell) -> str:
-    return repr(value) if isinstance(value, str) else str(value)
 
 
 def _check_recorded(recorded: RecordedMonetarySelection) -> None:
@@ -141,51 +128,36 @@ def _matched(
 ) -> list[tuple[RecordedItem, Cell, str, int]]:
     """Each recorded item with its row's audited amount cell, notes and sheet row."""
     recorded = sheet.recorded
-    expected = {item.line: item for item in recorded.items}
-    seen: dict[int, tuple[Cell, str, int]] = {}
-    added: list[str] = []
-    changed: list[str] = []
-    for row in sheet.rows:
-        line = row.line
-        if not isinstance(line, int) or line not in expected:
-            added.append(f"sheet row {row.row} (line {_show(line)}, item {_show(row.item)})")
-            continue
-        if line in seen:
-            added.append(f"sheet row {row.row} (line {line} again, item {_show(row.item)})")
-            continue
-        seen[line] = (row.audited_amount, row.notes, row.row)
-        item = expected[line]
-        differences = []
+
+    def differences(row: MonetarySheetRow, item: RecordedItem) -> list[str]:
+        found = []
         if str(row.item) != item.id:
-            differences.append(f"item {_show(row.item)} in the sheet, {item.id!r} recorded")
+            found.append(f"item {shown(row.item)} in the sheet, {item.id!r} recorded")
         try:
             book = _amount(row.book_amount, recorded.scale, "book amount")
         except InvalidInput:
             book = None
         if book != item.book_amount:
-            differences.append(
-                f"book amount {_show(row.book_amount)} in the sheet, "
+            found.append(
+                f"book amount {shown(row.book_amount)} in the sheet, "
                 f"{to_decimal(item.book_amount, recorded.scale)} recorded"
             )
         if item.kind == SAMPLED and row.hits != item.hits:
-            differences.append(f"hits {_show(row.hits)} in the sheet, {item.hits} recorded")
-        if differences:
-            changed.append(f"sheet row {row.row}, line {line}: " + ", ".join(differences))
-    missing = [
-        f"line {line} (item {item.id!r})" for line, item in expected.items() if line not in seen
+            found.append(f"hits {shown(row.hits)} in the sheet, {item.hits} recorded")
+        return found
+
+    rows = match_rows(
+        {item.line: item for item in recorded.items},
+        ((row.row, row.line, row.item, row) for row in sheet.rows),
+        "line",
+        lambda item: item.id,
+        differences,
+        recorded.selection_fingerprint,
+    )
+    return [
+        (item, rows[item.line].audited_amount, rows[item.line].notes, rows[item.line].row)
+        for item in recorded.items
     ]
-    parts = [
-        f"{label} {len(entries):,}: {_listed(entries)}"
-        for label, entries in (("missing", missing), ("added", added), ("changed", changed))
-        if entries
-    ]
-    if parts:
-        raise SheetMismatch(
-            FIELD,
-            "the sheet's rows are not exactly the selection's "
-            f"({recorded.selection_fingerprint}): " + "; ".join(parts),
-        )
-    return [(item, *seen[item.line]) for item in recorded.items]
 
 
 def _tested(sheet: CompletedMonetarySheet, not_tested: str | None) -> list[TestedItem]:
@@ -213,12 +185,12 @@ def _tested(sheet: CompletedMonetarySheet, not_tested: str | None) -> list[Teste
         raise InvalidInput(
             FIELD,
             f"{len(bad):,} audited amounts are not decimal amounts with at most {scale} "
-            f"decimal places: {_listed(bad)}",
+            f"decimal places: {listed(bad)}",
         )
     if blank and not_tested is None:
         raise InvalidInput(
             "not_tested",
-            f"{len(blank):,} items have no audited amount (not tested): {_listed(blank)}; "
+            f"{len(blank):,} items have no audited amount (not tested): {listed(blank)}; "
             f"say how to treat them: {COUNT_AS_MISSTATED} (each taken as audited at 0, a "
             "100% misstatement)",
         )

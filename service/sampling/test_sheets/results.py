@@ -19,9 +19,9 @@ planned and that leaving items out may bias it.
 from __future__ import annotations
 
 from collections import Counter
-from collections.abc import Mapping, Sequence
+from collections.abc import Mapping
 from dataclasses import dataclass
-from typing import Any, Final
+from typing import Final
 
 from service.sampling.attributes import Evaluation, evaluate_sample
 from service.sampling.errors import InvalidInput, SamplingError
@@ -32,18 +32,21 @@ from service.sampling.selection import (
     select,
 )
 from service.sampling.test_sheets.layout import DEVIATION, NOT_TESTED, PASSED, RESULT_WORDS
-from service.sampling.test_sheets.reading import FIELD, CompletedSheet, RecordedSelection
+from service.sampling.test_sheets.matching import SheetMismatch, listed, match_rows, shown
+from service.sampling.test_sheets.reading import (
+    FIELD,
+    CompletedSheet,
+    RecordedSelection,
+    SheetRow,
+    Value,
+)
 
 COUNT_AS_DEVIATION: Final = "count_as_deviation"
 DROP: Final = "drop"
 NOT_TESTED_TREATMENTS: Final = (COUNT_AS_DEVIATION, DROP)
 
-SHOWN: Final = 10
-"""How many rows a refusal names in each of its lists before counting the rest."""
-
-
-class SheetMismatch(InvalidInput):
-    """The sheet's rows are not exactly the selection's; the message lists the differences."""
+__all__ = ["COUNT_AS_DEVIATION", "DROP", "NOT_TESTED_TREATMENTS", "AttributeTally",
+           "SheetMismatch", "SheetTally", "evaluate_tally", "tally_test_sheet"]
 
 
 @dataclass(frozen=True)
@@ -68,16 +71,6 @@ class SheetTally:
     not_tested: str | None
     attributes: tuple[AttributeTally, ...]
     warnings: tuple[str, ...]
-
-
-def _listed(entries: Sequence[str]) -> str:
-    shown = "; ".join(entries[:SHOWN])
-    more = len(entries) - SHOWN
-    return shown + (f"; and {more:,} more" if more > 0 else "")
-
-
-def _show(value: Any) -> str:
-    return repr(value) if isinstance(value, str) else str(value)
 
 
 def _check_recorded(recorded: RecordedSelection) -> None:
@@ -118,38 +111,21 @@ def _check_recorded(recorded: RecordedSelection) -> None:
         )
 
 
+def _item_differs(row: SheetRow, item: Value) -> list[str]:
+    if row.item == item:
+        return []
+    return [f"item {shown(row.item)} in the sheet, {shown(item)} in the selection"]
+
+
 def _check_rows(sheet: CompletedSheet) -> None:
-    expected = {draw: item for draw, item, _ in sheet.recorded.items}
-    seen: set[int] = set()
-    added: list[str] = []
-    changed: list[str] = []
-    for row in sheet.rows:
-        draw = row.draw
-        if not isinstance(draw, int) or draw not in expected:
-            added.append(f"sheet row {row.line} (draw {_show(draw)}, item {_show(row.item)})")
-        elif draw in seen:
-            added.append(f"sheet row {row.line} (draw {draw} again, item {_show(row.item)})")
-        else:
-            seen.add(draw)
-            if row.item != expected[draw]:
-                changed.append(
-                    f"sheet row {row.line}, draw {draw}: item {_show(row.item)} in the sheet, "
-                    f"{_show(expected[draw])} in the selection"
-                )
-    missing = [
-        f"draw {draw} (item {_show(item)})" for draw, item in expected.items() if draw not in seen
-    ]
-    parts = [
-        f"{label} {len(entries):,}: {_listed(entries)}"
-        for label, entries in (("missing", missing), ("added", added), ("changed", changed))
-        if entries
-    ]
-    if parts:
-        raise SheetMismatch(
-            FIELD,
-            "the sheet's rows are not exactly the selection's "
-            f"({sheet.recorded.selection_fingerprint}): " + "; ".join(parts),
-        )
+    match_rows(
+        {draw: item for draw, item, _ in sheet.recorded.items},
+        ((row.line, row.draw, row.item, row) for row in sheet.rows),
+        "draw",
+        lambda item: item,
+        _item_differs,
+        sheet.recorded.selection_fingerprint,
+    )
 
 
 def _results(sheet: CompletedSheet) -> list[Counter[str]]:
@@ -169,11 +145,11 @@ def _results(sheet: CompletedSheet) -> list[Counter[str]]:
                 unknown.append(f"sheet row {row.line}, {attribute!r}: {text!r}")
     problems = []
     if blank:
-        problems.append(f"{len(blank):,} results are blank: {_listed(blank)}")
+        problems.append(f"{len(blank):,} results are blank: {listed(blank)}")
     if unknown:
         problems.append(
             f"{len(unknown):,} results are not one of {', '.join(RESULT_WORDS)}: "
-            f"{_listed(unknown)}"
+            f"{listed(unknown)}"
         )
     if problems:
         raise InvalidInput(FIELD, "; ".join(problems))

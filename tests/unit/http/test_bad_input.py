@@ -347,7 +347,7 @@ def test_tiny_expected_rate_is_answered_not_a_server_error(
 # --- routing ------------------------------------------------------------------
 
 
-@pytest.mark.parametrize("path", ["/", "/v1", "/v1/sample_size", "/v2/sample-size", "/v1/health/"])
+@pytest.mark.parametrize("path", ["/v1", "/v1/sample_size", "/v2/sample-size", "/v1/health/"])
 def test_unknown_path_is_404(client: Any, path: str) -> None:
     body = _problem(client.post(path, json={"tolerable_rate": 0.05}), 404, path)
     assert path in body["detail"]
@@ -362,6 +362,7 @@ def test_unknown_path_is_404(client: Any, path: str) -> None:
         ("PATCH", EVALUATION, "POST"),
         ("POST", "/v1/health", "GET"),
         ("DELETE", "/openapi.yaml", "GET"),
+        ("POST", "/", "GET"),
     ],
 )
 def test_wrong_verb_is_405_with_allow(client: Any, method: str, path: str, allowed: str) -> None:

@@ -20,7 +20,7 @@ from flask.testing import FlaskClient
 
 from service import create_app
 from service.sampling.errors import InvalidInput
-from service.sampling.test_sheets import reading
+from service.sampling.test_sheets import workbook as sheet_workbook
 from service.sampling.test_sheets.reading import read_test_sheet
 from service.sampling.test_sheets.results import SheetMismatch, tally_test_sheet
 from service.settings import Settings
@@ -269,7 +269,7 @@ def test_archives_that_inflate_too_far_are_refused(
     _, data = _sheet(api, HARBOUR)
     path = tmp_path / "sheet.xlsx"
     path.write_bytes(data)
-    monkeypatch.setattr(reading, "MAX_UNCOMPRESSED_BYTES", 1000)
+    monkeypatch.setattr(sheet_workbook, "MAX_UNCOMPRESSED_BYTES", 1000)
     with pytest.raises(InvalidInput, match="at most 1,000 bytes uncompressed"):
         read_test_sheet(path)
 
