@@ -155,7 +155,8 @@ def _is_object(node: Node) -> bool:
 
 
 def _choices(node: Node) -> tuple[str, ...]:
-    return tuple(str(choice) for choice in node.get("enum") or ())
+    """The ``enum`` values as text (``null``, which a nullable field lists, left out)."""
+    return tuple(str(choice) for choice in node.get("enum") or () if choice is not None)
 
 
 def _list_kind(schema: Schema, items: Node) -> str:
