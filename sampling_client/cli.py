@@ -3,9 +3,10 @@
 One subcommand per operation of the service (its operationId), with one flag per request
 field (:mod:`sampling_client.flags`), both read from the service's OpenAPI document that
 ships with this package (:mod:`sampling_client.contract`), so a new endpoint or field is on
-the command line without new code here, and without the service installed. An operation that reads a
-file takes it with ``--file`` (a population file) or ``--test-sheet`` (a completed test
-sheet, for ``evaluation``), and an answer that is a file (``--xlsx``) goes to ``--output``.
+the command line without new code here, and without the service installed. An operation
+that reads a file takes it with ``--file`` (a population file) or ``--test-sheet`` (a
+completed test sheet, for ``evaluation``), and an answer that is a file (``--xlsx``) goes
+to ``--output``.
 ``serve`` runs the service itself under gunicorn; ``health`` and ``ready`` ask a running
 one how it is.
 """

@@ -127,9 +127,8 @@ def _not_null(schema: Schema, node: Node) -> Node:
     node = schema.resolve(node)
     for keyword in ("oneOf", "anyOf"):
         branches = [schema.resolve(b) for b in node.get(keyword) or ()]
-        others = [b for b in branches if _types(b) != frozenset() or "properties" in b]
-        if branches and len(others) == 1 and len(branches) == 2 \
-                and any(b.get("type") == "null" for b in branches):
+        others = [b for b in branches if b.get("type") != "null"]
+        if len(branches) == 2 and len(others) == 1:
             return others[0]
     return node
 
