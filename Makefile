@@ -51,6 +51,7 @@ test: lint browsers
 fuzz: $(VENV)/.installed
 	FUZZ_EXAMPLES=$(FUZZ_EXAMPLES) $(BIN)/python -m pytest -q tests/contract
 
+# Also writes sampling_client/openapi.json, the copy the command reads its flags from.
 spec: $(VENV)/.installed
 	$(BIN)/python -m service.openapi > openapi.yaml
 

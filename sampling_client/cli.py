@@ -1,10 +1,12 @@
 """The ``attribute-sampling`` command: the service's operations from a shell, and ``serve``.
 
 One subcommand per operation of the service (its operationId), with one flag per request
-field derived from the operation's request schema (:mod:`sampling_client.flags`), so a new
-endpoint or field is on the command line without new code here. An operation that reads a
-file takes it with ``--file`` (a population file) or ``--test-sheet`` (a completed test
-sheet, for ``evaluation``), and an answer that is a file (``--xlsx``) goes to ``--output``.
+field (:mod:`sampling_client.flags`), both read from the service's OpenAPI document that
+ships with this package (:mod:`sampling_client.contract`), so a new endpoint or field is on
+the command line without new code here, and without the service installed. An operation
+that reads a file takes it with ``--file`` (a population file) or ``--test-sheet`` (a
+completed test sheet, for ``evaluation``), and an answer that is a file (``--xlsx``) goes
+to ``--output``.
 ``serve`` runs the service itself under gunicorn; ``health`` and ``ready`` ask a running
 one how it is.
 """
@@ -25,7 +27,7 @@ from typing import Any, NoReturn
 
 import requests
 
-from sampling_client import api, controls, flags, tables
+from sampling_client import api, contract, controls, flags, tables
 from sampling_client.api import (
     DEFAULT_URL,
     JSON,
@@ -88,11 +90,9 @@ class UsageProblem(Exception):
     """A usage error found after parsing (a file, a flag combination); exit status 2."""
 
 
-def _operations() -> list[Any]:
-    # The service's own declarations: names, paths, request schemas and media types.
-    from service.http import all_operations
-
-    return list(all_operations())
+def _operations() -> list[contract.Operation]:
+    """The service's operations, from its OpenAPI document (names, paths, requests, answers)."""
+    return contract.operations()
 
 
 def _positive_seconds(text: str) -> float:
@@ -138,7 +138,7 @@ def _connection_options() -> argparse.ArgumentParser:
     return common
 
 
-def _offered(operation: Any) -> list[str]:
+def _offered(operation: contract.Operation) -> list[str]:
     """The media types of ``operation`` that have a flag, its file form's too."""
     types = list(operation.media_types)
     if operation.file_form is not None:
@@ -146,7 +146,8 @@ def _offered(operation: Any) -> list[str]:
     return [t for t in types if t in _FORMAT_FLAGS]
 
 
-def _output_options(parser: argparse.ArgumentParser, operation: Any, single: bool) -> None:
+def _output_options(parser: argparse.ArgumentParser, operation: contract.Operation,
+                    single: bool) -> None:
     group = parser.add_argument_group("output (default: an aligned table)")
     choice = group.add_mutually_exclusive_group()
     choice.add_argument("--json", dest="output", action="store_const", const="json",
@@ -179,9 +180,10 @@ def _output_options(parser: argparse.ArgumentParser, operation: Any, single: boo
                        "is redirected to a file or a pipe.")
 
 
-def _add_operation(subparsers: Any, operation: Any, common: argparse.ArgumentParser) -> None:
+def _add_operation(subparsers: Any, operation: contract.Operation,
+                   common: argparse.ArgumentParser) -> None:
     schema = operation.request_schema
-    specs = flags.field_specs(schema)
+    specs = contract.field_specs(schema)
     single = operation.name != "batch"
     parser = subparsers.add_parser(
         operation.name, help=operation.summary, parents=[common], allow_abbrev=False,
@@ -193,7 +195,7 @@ def _add_operation(subparsers: Any, operation: Any, common: argparse.ArgumentPar
     )
     parser.set_defaults(command="operation", operation=operation, specs=specs, output=None,
                         sheet_specs=None)
-    flags.add_flags(parser, specs, flags.group_descriptions(schema))
+    flags.add_flags(parser, specs, contract.group_descriptions(schema))
     if operation.accepts_file:
         parser.add_argument(
             "--file", metavar="PATH", dest="upload",
@@ -235,13 +237,15 @@ def _add_operation(subparsers: Any, operation: Any, common: argparse.ArgumentPar
     _output_options(parser, operation, single)
 
 
-def _add_test_sheet(parser: argparse.ArgumentParser, operation: Any,
+def _add_test_sheet(parser: argparse.ArgumentParser, operation: contract.Operation,
                     specs: list[flags.FieldSpec]) -> None:
     """The flag of the file form's upload and the flags of its request that the JSON form
     lacks: ``--file`` when the form reads a population file (``population.file``), else
     ``--test-sheet`` (a completed test sheet)."""
     form = operation.file_form
-    sheet_specs = flags.field_specs(form.request_schema)
+    if form is None:
+        raise ValueError(f"{operation.name} has no file form")
+    sheet_specs = contract.field_specs(form.request_schema)
     known = {spec.path for spec in specs}
     extra = [spec for spec in sheet_specs if spec.path not in known]
     reads_population = any(spec.path[:2] == flags.SHORT_PREFIX for spec in sheet_specs)
@@ -258,7 +262,7 @@ def _add_test_sheet(parser: argparse.ArgumentParser, operation: Any,
             "multipart/form-data request and read from disk as it is sent; describe it with "
             "the population.file flags (--id-column, --amount-column, ...)",
         )
-        flags.add_flags(parser, extra, flags.group_descriptions(form.request_schema))
+        flags.add_flags(parser, extra, contract.group_descriptions(form.request_schema))
     else:
         group.add_argument(
             "--test-sheet", metavar="PATH", dest="upload",
@@ -279,8 +283,8 @@ def build_parser(with_operations: bool = True) -> argparse.ArgumentParser:
     """The whole command line: one subcommand per operation, then serve, health, ready.
 
     ``with_operations=False`` leaves the operations out, for the commands that need none:
-    reading the schemas loads the whole service, seconds that ``serve`` and ``health``
-    (often a probe) are spared.
+    reading the OpenAPI document and making a parser per operation is time that ``serve``
+    and ``health`` (often a probe) are spared.
     """
     parser = argparse.ArgumentParser(
         prog=PROG, allow_abbrev=False, epilog=EPILOG,

@@ -1,10 +1,11 @@
-"""Command-line flags derived from a request schema, and the JSON body built from them.
+"""Command-line flags derived from a request's fields, and the JSON body built from them.
 
-Each field of a marshmallow request schema becomes one flag, so a field added to a schema
-is a flag of the command without new code:
+Each field of a request, as the service's OpenAPI document describes it
+(:func:`sampling_client.contract.field_specs`), becomes one flag, so a field added to a
+request schema of the service is a flag of the command without new code:
 
 - ``tolerable_rate`` → ``--tolerable-rate``; a nested field ``population.size`` →
-  ``--population-size``; the help text is the field's ``description`` metadata; the
+  ``--population-size``; the help text is the field's ``description``; the
   fields of a population file's description also go by their own names
   (``--id-column``, see :func:`short_names`);
 - numbers are read as JSON numbers and sent as numbers (``5`` stays the integer 5, so the
@@ -20,7 +21,7 @@ is a flag of the command without new code:
   text) as the text written, so no digit is lost; an empty cell leaves the field out;
 - anything else (an object of free shape) takes JSON text, or a file of JSON.
 
-The values go into the body at the field's path, in the schema's order.
+The values go into the body at the field's path, in the request's order.
 """
 
 from __future__ import annotations
@@ -35,9 +36,6 @@ from collections.abc import Iterator, Mapping
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
-
-import marshmallow
-from marshmallow import Schema, fields, validate
 
 NUMBER = "number"
 STRING = "string"
@@ -91,109 +89,6 @@ class FieldSpec:
     @property
     def flag(self) -> str:
         return "--" + self.name.replace("_", "-")
-
-
-def _choices(field: fields.Field[Any]) -> tuple[str, ...]:
-    for validator in field.validators:
-        if isinstance(validator, validate.OneOf):
-            return tuple(str(choice) for choice in validator.choices)
-    return ()
-
-
-def _description(field: fields.Field[Any]) -> str:
-    return str(field.metadata.get("description", ""))
-
-
-def _leaf_kind(field: fields.Field[Any]) -> str | None:
-    if isinstance(field, fields.Boolean):
-        return BOOLEAN
-    if isinstance(field, fields.Number):
-        return NUMBER
-    if isinstance(field, fields.String):
-        return STRING
-    return None
-
-
-def _list_kind(field: fields.List[Any]) -> str:
-    inner = field.inner
-    if isinstance(inner, fields.Number):
-        return NUMBERS
-    if isinstance(inner, fields.String):
-        return CHOICES if _choices(inner) else STRINGS
-    if isinstance(inner, fields.Nested) and isinstance(inner.schema, Schema):
-        members = list(inner.schema.fields.values())
-        if len(members) == 2 and all(isinstance(m, fields.Integer) for m in members):
-            return PAIRS
-        if members and all(_leaf_kind(m) or _accepts_text(m) for m in members):
-            return RECORDS
-    return RAW_JSON
-
-
-def _accepts_text(field: fields.Field[Any]) -> bool:
-    """A field that takes a number written as text (an exact amount)."""
-    return bool(getattr(field, "accepts_text", False))
-
-
-def _key(name: str, field: fields.Field[Any]) -> str:
-    return field.data_key or name
-
-
-def field_specs(schema: Schema, prefix: tuple[str, ...] = ()) -> list[FieldSpec]:
-    """Every leaf field of ``schema``, nested objects flattened, in declaration order."""
-    specs: list[FieldSpec] = []
-    for name, field in schema.fields.items():
-        if field.dump_only:
-            continue
-        path = (*prefix, _key(name, field))
-        if isinstance(field, fields.Nested) and isinstance(field.schema, Schema) and not field.many:
-            specs.extend(field_specs(field.schema, path))
-            continue
-        if isinstance(field, fields.List):
-            kind = _list_kind(field)
-            choices = _choices(field.inner) if kind == CHOICES else ()
-            pair: tuple[str, str] = ("first", "last")
-            inner = field.inner
-            if kind == PAIRS and isinstance(inner, fields.Nested):
-                first, last = (_key(n, f) for n, f in inner.schema.fields.items())
-                pair = (first, last)
-            columns: tuple[tuple[str, str], ...] = ()
-            if kind == RECORDS and isinstance(inner, fields.Nested):
-                columns = tuple(
-                    (_key(n, f), STRING if _accepts_text(f) else _leaf_kind(f) or STRING)
-                    for n, f in inner.schema.fields.items()
-                )
-            specs.append(FieldSpec(path, kind, field.required, _description(field), choices,
-                                   pair=pair, columns=columns))
-            continue
-        kind = _leaf_kind(field) or RAW_JSON
-        default = field.load_default
-        default = None if default is None or callable(default) or _is_missing(default) else default
-        specs.append(FieldSpec(path, kind, field.required, _description(field),
-                               _choices(field), default,
-                               required_unless=_required_unless(field),
-                               amount=_accepts_text(field)))
-    return specs
-
-
-def _required_unless(field: fields.Field[Any]) -> tuple[str, ...]:
-    """The ``required_unless`` metadata (one field name or several) as a tuple."""
-    names = field.metadata.get("required_unless") or ()
-    return (names,) if isinstance(names, str) else tuple(names)
-
-
-def _is_missing(value: Any) -> bool:
-    return value is marshmallow.missing
-
-
-def group_descriptions(schema: Schema, prefix: tuple[str, ...] = ()) -> dict[tuple[str, ...], str]:
-    """The description of each nested object, by its path (for help groups)."""
-    found: dict[tuple[str, ...], str] = {}
-    for name, field in schema.fields.items():
-        if isinstance(field, fields.Nested) and isinstance(field.schema, Schema) and not field.many:
-            path = (*prefix, _key(name, field))
-            found[path] = _description(field)
-            found.update(group_descriptions(field.schema, path))
-    return found
 
 
 # --------------------------------------------------------------------------- values

@@ -16,23 +16,27 @@ import textwrap
 from collections.abc import Iterable, Mapping, Sequence
 from typing import Any
 
+from sampling_client import contract
+
 WIDTH = 100
 
 
 def caution() -> str:
-    """The service's caution sentence (service.sampling.wording.CAUTION)."""
-    # Imported when needed: the wording module loads the computation core (scipy), which
-    # the commands that only ask a server for its health, or start one, do without.
-    from service.sampling.wording import CAUTION
-
-    return CAUTION
+    """The service's caution sentence, from its OpenAPI document."""
+    return contract.caution()
 
 
 def csv_cell(item: int | str) -> int | str:
-    """A CSV cell with the formula guard of the service's selection CSV."""
-    from service.http.selection import csv_cell as guarded
+    """A CSV cell with the formula guard of the service's CSV answers: a text that a
+    spreadsheet would run as a formula gets the guard's prefix (``'``), so it reads as text.
 
-    return guarded(item)
+    >>> csv_cell("=SUM(A1:A9)"), csv_cell("NT-P2P-01"), csv_cell(7)
+    ("'=SUM(A1:A9)", 'NT-P2P-01', 7)
+    """
+    if not isinstance(item, str):
+        return item
+    starts, prefix = contract.formula_guard()
+    return prefix + item if item.startswith(starts) else item
 
 # Fields that are not shown in the table: links and ready-made bodies are for programs.
 _NOT_SHOWN = frozenset({"summary", "warnings", "links", "curve_request"})

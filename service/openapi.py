@@ -1,11 +1,29 @@
 """Generate the OpenAPI 3.1 document from the operations and their schemas.
 
-``python -m service.openapi`` prints it; ``make spec`` writes it to
-``openapi.yaml``, and a test fails when the committed file differs.
+``python -m service.openapi`` prints it and writes the same document as JSON to
+``sampling_client/openapi.json``, the copy the client and its command ship as package data
+and read their operations, flags and texts from; ``make spec`` writes the printed text to
+``openapi.yaml``, and a test fails when either committed file differs.
+
+Facts the command line needs that OpenAPI has no keyword for are vendor extensions:
+
+- ``info.x-caution``: the caution sentence every text answer ends with;
+- ``info.x-csv-formula-guard``: how a CSV text cell that a spreadsheet would run as a
+  formula is written (``prefix`` put before a text starting with one of ``starts``);
+- on a request field, ``x-required-unless``: the list fields whose presence makes it
+  optional; ``x-accepts-text``: the field takes a number written as text (an exact amount),
+  so a table cell is sent as written;
+- on an operation, ``x-file-required``: the operation means nothing without a file;
+- on an operation with another form for a file (a completed test sheet, a ledger file),
+  ``x-answers``: the media types its JSON form answers, and ``x-file-form``: the file
+  form's ``operationId``, ``summary``, ``description`` and ``answers``.
 """
 
 from __future__ import annotations
 
+import json
+import sys
+from pathlib import Path
 from typing import Any
 
 import yaml
@@ -17,7 +35,12 @@ from schemas.fields import StrictFloat, StrictInteger, StrictString
 from service.http import all_operations
 from service.http.markdown import MARKDOWN
 from service.http.operations import Operation
+from service.render.cells import FORMULA_STARTS
+from service.sampling.wording import CAUTION
 from service.version import VERSION
+
+#: The copy of the document the client ships (see the module's docstring).
+CLIENT_COPY = Path(__file__).resolve().parents[1] / "sampling_client" / "openapi.json"
 
 OPENAPI_VERSION = "3.1.0"
 
@@ -142,6 +165,36 @@ def _add_file_form(
     )
 
 
+def _client_facts(self: Any, field: Any, **kwargs: Any) -> dict[str, Any]:
+    """``x-required-unless`` from a field's ``required_unless`` metadata, and
+    ``x-accepts-text`` on a field that takes a number written as text (an exact amount)."""
+    facts: dict[str, Any] = {}
+    other = field.metadata.get("required_unless")
+    if other:
+        # Always a list of field names, whether the metadata names one or several.
+        facts["x-required-unless"] = [other] if isinstance(other, str) else list(other)
+    if getattr(field, "accepts_text", False):
+        facts["x-accepts-text"] = True
+    return facts
+
+
+def _extensions(operation: Operation) -> dict[str, Any]:
+    """The vendor extensions of an operation (see the module's docstring)."""
+    found: dict[str, Any] = {}
+    if operation.file_required:
+        found["x-file-required"] = True
+    form = operation.file_form
+    if form is not None:
+        found["x-answers"] = list(operation.media_types)
+        found["x-file-form"] = {
+            "operationId": form.name,
+            "summary": form.summary,
+            "description": form.description,
+            "answers": list(form.media_types),
+        }
+    return found
+
+
 def _problem_response(description: str, status: str = "") -> dict[str, Any]:
     response: dict[str, Any] = {
         "description": description,
@@ -160,11 +213,16 @@ def build_spec() -> APISpec:
         version=VERSION,
         openapi_version=OPENAPI_VERSION,
         plugins=[plugin],
-        info={"description": DESCRIPTION},
+        info={
+            "description": DESCRIPTION,
+            "x-caution": CAUTION,
+            "x-csv-formula-guard": {"starts": list(FORMULA_STARTS), "prefix": "'"},
+        },
     )
     plugin.converter.map_to_openapi_type(StrictFloat, "number", None)  # type: ignore[union-attr]
     plugin.converter.map_to_openapi_type(StrictInteger, "integer", None)  # type: ignore[union-attr]
     plugin.converter.map_to_openapi_type(StrictString, "string", None)  # type: ignore[union-attr]
+    plugin.converter.add_attribute_function(_client_facts)  # type: ignore[union-attr]
     spec.components.schema("Problem", schema=ProblemSchema)
     spec.components.schema("Health", schema=HealthSchema)
     spec.components.schema("Ready", schema=ReadySchema)
@@ -199,23 +257,20 @@ def build_spec() -> APISpec:
                 spec, operation, operation.file_form, content, body, statuses
             )
         responses.update({code: _problem_response(text, code) for code, text in statuses.items()})
-        spec.path(
-            path=operation.path,
-            operations={
-                "post": {
-                    "operationId": operation.name,
-                    "summary": operation.summary,
-                    "description": description,
-                    "tags": [operation.tag],
-                    "security": _SECURITY,
-                    "requestBody": {
-                        "required": True,
-                        "content": body,
-                    },
-                    "responses": responses,
-                }
+        post: dict[str, Any] = {
+            "operationId": operation.name,
+            "summary": operation.summary,
+            "description": description,
+            "tags": [operation.tag],
+            "security": _SECURITY,
+            "requestBody": {
+                "required": True,
+                "content": body,
             },
-        )
+            "responses": responses,
+        }
+        post.update(_extensions(operation))
+        spec.path(path=operation.path, operations={"post": post})
 
     _service_get(spec, "/v1/health", "health", "Liveness and version", {
         "200": _answer("The service is up.", "application/json", "Health"),
@@ -294,5 +349,22 @@ def build_yaml() -> str:
     return str(yaml.safe_dump(document, sort_keys=False, allow_unicode=True, width=100))
 
 
+def build_json() -> str:
+    """The document as JSON text (the client's copy), keys in declaration order."""
+    document = build_spec().to_dict()
+    return json.dumps(document, indent=1, ensure_ascii=False) + "\n"
+
+
+def write_client_copy(path: Path = CLIENT_COPY) -> None:
+    """Write :func:`build_json` to ``path`` when it differs (a source tree's client copy)."""
+    text = build_json()
+    try:
+        if not path.exists() or path.read_text(encoding="utf-8") != text:
+            path.write_text(text, encoding="utf-8")
+    except OSError as exc:  # an installed copy in a read-only folder: the print still stands
+        print(f"service.openapi: {path} not written: {exc.strerror}", file=sys.stderr)
+
+
 if __name__ == "__main__":
     print(build_yaml(), end="")
+    write_client_copy()

@@ -1,4 +1,5 @@
-"""Layering: the sampling core knows nothing of HTTP, and the schemas nothing of Flask.
+"""Layering: the sampling core knows nothing of HTTP, the schemas nothing of Flask, and the
+client nothing of the service but its published contract (the OpenAPI document).
 
 Imports are read with ``ast`` from every file, so an import inside a function or under
 ``if TYPE_CHECKING`` counts too.
@@ -15,6 +16,9 @@ ROOT = Path(__file__).resolve().parents[2]
 
 CORE_FORBIDDEN = ("flask", "marshmallow", "werkzeug", "schemas", "service.http")
 SCHEMAS_FORBIDDEN = ("flask",)
+# The client reads the service's OpenAPI document (sampling_client/openapi.json), never its
+# code: installing or running the command needs none of the server's packages.
+CLIENT_FORBIDDEN = ("service", "schemas", "marshmallow", "apispec", "flask", "werkzeug")
 
 
 def _module_name(path: Path) -> str:
@@ -68,6 +72,34 @@ def test_sampling_core_does_not_import_the_web_layers() -> None:
 
 def test_schemas_do_not_import_flask() -> None:
     assert _violations("schemas", SCHEMAS_FORBIDDEN) == {}
+
+
+def test_the_client_imports_nothing_of_the_service() -> None:
+    assert _violations("sampling_client", CLIENT_FORBIDDEN) == {}
+
+
+def test_the_client_imports_no_module_by_name() -> None:
+    # importlib.import_module("service.http") or __import__ would escape the import scan.
+    found = {}
+    for path in sorted((ROOT / "sampling_client").rglob("*.py")):
+        calls = [
+            node.func.attr if isinstance(node.func, ast.Attribute) else getattr(node.func, "id", "")
+            for node in ast.walk(ast.parse(path.read_text(encoding="utf-8")))
+            if isinstance(node, ast.Call)
+        ]
+        dynamic = sorted({name for name in calls if name in ("import_module", "__import__")})
+        if dynamic:
+            found[path.name] = dynamic
+    assert found == {}
+
+
+def test_the_client_is_actually_read() -> None:
+    # Guards the guard: the walk sees a lazy import inside a function of the client.
+    names = imported_modules(
+        (ROOT / "sampling_client/api.py").read_text(encoding="utf-8"), "sampling_client.api"
+    )
+    assert "yaml" in names
+    assert "sampling_client.multipart" in names
 
 
 def test_the_core_is_actually_read() -> None:

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import json
+import tomllib
 from pathlib import Path
 from typing import Any
 
@@ -15,7 +16,7 @@ from referencing import Registry, Resource
 from referencing.jsonschema import DRAFT202012
 
 from service.http import all_operations
-from service.openapi import build_yaml
+from service.openapi import CLIENT_COPY, build_json, build_yaml
 
 ROOT = Path(__file__).resolve().parents[2]
 SPEC_FILE = ROOT / "openapi.yaml"
@@ -55,6 +56,22 @@ def test_committed_document_is_up_to_date() -> None:
     assert SPEC_FILE.read_text(encoding="utf-8") == build_yaml(), (
         "openapi.yaml differs from the schemas: run `make spec` and commit the result"
     )
+
+
+def test_the_client_copy_is_up_to_date_and_the_same_document() -> None:
+    # sampling_client/openapi.json is what the command builds its subcommands from.
+    assert CLIENT_COPY.exists(), "sampling_client/openapi.json is missing: run `make spec`"
+    assert CLIENT_COPY.read_text(encoding="utf-8") == build_json(), (
+        "sampling_client/openapi.json differs from the schemas: run `make spec` and commit it"
+    )
+    committed = yaml.safe_load(SPEC_FILE.read_text(encoding="utf-8"))
+    assert json.loads(CLIENT_COPY.read_text(encoding="utf-8")) == committed
+
+
+def test_the_client_copy_is_package_data() -> None:
+    # The command reads it through importlib.resources, from a wheel as from the source tree.
+    project = tomllib.loads((ROOT / "pyproject.toml").read_text(encoding="utf-8"))
+    assert CLIENT_COPY.name in project["tool"]["setuptools"]["package-data"]["sampling_client"]
 
 
 def test_generation_is_deterministic() -> None:

@@ -6,13 +6,18 @@ from pathlib import Path
 
 import pytest
 
-from sampling_client import controls, flags
-from schemas.attributes import EvaluationRequest, SampleSizeRequest
-from schemas.estimation import EstimationRequest
+from sampling_client import contract, controls, flags
 
 ROOT = Path(__file__).resolve().parents[3]
 EXAMPLE = ROOT / "examples" / "month-end-controls.csv"
-SIZING = flags.field_specs(SampleSizeRequest())
+
+
+def request_fields(component: str) -> list[flags.FieldSpec]:
+    """The fields of a request, as the command reads them from the OpenAPI document."""
+    return contract.field_specs(contract.component(component))
+
+
+SIZING = request_fields("SampleSizeRequest")
 
 
 def write(tmp_path: Path, text: str, name: str = "controls.csv") -> str:
@@ -79,7 +84,7 @@ def test_messages_name_the_files_own_line_after_a_cell_with_line_breaks(
 
 
 def test_an_evaluation_file(tmp_path: Path) -> None:
-    specs = flags.field_specs(EvaluationRequest())
+    specs = request_fields("EvaluationRequest")
     path = write(tmp_path, "control_id,sample_size,deviations,tolerable_rate\nNT-1,93,1,0.05\n")
     (row,) = controls.read_controls(path, specs)
     assert row.request == {"sample_size": 93, "deviations": 1, "tolerable_rate": 0.05}
@@ -136,7 +141,7 @@ def test_an_unknown_column_is_refused_not_ignored(tmp_path: Path) -> None:
 def test_a_list_column_is_refused(tmp_path: Path) -> None:
     path = write(tmp_path, "control_id,margin,methods\nNT-1,0.05,exact\n")
     with pytest.raises(controls.ControlsFileError, match="methods: is a list field"):
-        controls.read_controls(path, flags.field_specs(EstimationRequest()))
+        controls.read_controls(path, request_fields("EstimationRequest"))
 
 
 def test_a_repeated_column(tmp_path: Path) -> None:

@@ -1,4 +1,8 @@
-"""Flags derived from the request schemas, and the JSON bodies built from them."""
+"""Flags derived from the request schemas, and the JSON bodies built from them.
+
+The command reads the request schemas from the OpenAPI document the service generates
+from them (and the client ships), so each schema here goes through that document.
+"""
 
 from __future__ import annotations
 
@@ -10,7 +14,7 @@ from typing import Any
 import pytest
 from marshmallow import Schema, fields
 
-from sampling_client import flags
+from sampling_client import contract, flags
 from sampling_client.cli import build_parser
 from schemas.attributes import EvaluationRequest, SampleSizeRequest
 from schemas.batch import BatchRequest
@@ -19,10 +23,26 @@ from schemas.fields import Rate, StrictString
 from schemas.monetary import MonetaryEvaluationRequest, MonetarySelectionRequest
 from schemas.selection import SelectionRequest
 from service.http import all_operations
+from service.openapi import build_spec
+
+
+def contract_schema(schema: Schema) -> contract.Schema:
+    """``schema`` as the command reads it: its component of the shipped OpenAPI document,
+    or, for a schema the service does not have, of a document generated with it."""
+    name = type(schema).__name__
+    if name in contract.document()["components"]["schemas"]:
+        return contract.component(name)
+    spec = build_spec()
+    spec.components.schema(name, schema=schema)
+    return contract.component(name, spec.to_dict())
+
+
+def field_specs(schema: Schema) -> list[flags.FieldSpec]:
+    return contract.field_specs(contract_schema(schema))
 
 
 def by_name(schema: Schema) -> dict[str, flags.FieldSpec]:
-    return {spec.name: spec for spec in flags.field_specs(schema)}
+    return {spec.name: spec for spec in field_specs(schema)}
 
 
 def parse(operation: str, *argv: str) -> argparse.Namespace:
@@ -231,15 +251,15 @@ def test_every_operation_of_the_service_is_a_command() -> None:
     parser = build_parser()
     for operation in all_operations():
         args = parser.parse_args([operation.name])
-        assert args.operation is operation
+        assert (args.operation.name, args.operation.path) == (operation.name, operation.path)
         assert [s.name for s in args.specs] == [
-            s.name for s in flags.field_specs(operation.request())]
+            s.name for s in field_specs(operation.request())]
 
 
 def test_evaluation_fields_cover_the_schema() -> None:
     # Every top-level field of the schema is reached by some flag.
     schema = EvaluationRequest()
-    roots = {spec.path[0] for spec in flags.field_specs(schema)}
+    roots = {spec.path[0] for spec in field_specs(schema)}
     assert roots == {field.data_key or name for name, field in schema.fields.items()}
 
 
