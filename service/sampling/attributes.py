@@ -35,6 +35,7 @@ Garwood, F. (1936). Fiducial limits for the Poisson distribution.
 
 from __future__ import annotations
 
+import math
 from collections.abc import Callable
 from dataclasses import dataclass
 from fractions import Fraction
@@ -44,8 +45,14 @@ from typing import Any
 import numpy as np
 from scipy import special, stats
 
+try:
+    # the quantile scipy.stats.beta.ppf calls, without its generic argument handling
+    from scipy.special._ufuncs import _beta_ppf
+except ImportError:  # pragma: no cover - a scipy that moved it
+    _beta_ppf = stats.beta.ppf
+
 from service.sampling import hypergeometric
-from service.sampling.distributions import Model, deviant_items, resolve_model
+from service.sampling.distributions import MODELS, Model, deviant_items, resolve_model
 from service.sampling.errors import ComputationTooLarge, InvalidInput, NoFeasiblePlan
 from service.sampling.rates import ceil_product, exact_rate, floor_quotient
 from service.sampling.ties import at_most, at_most_each, hypergeometric_above
@@ -194,6 +201,70 @@ def _smallest_satisfying(holds: Callable[[int], bool], lo: int, hi: int) -> int:
     return lo
 
 
+def _smallest_satisfying_below(holds: Callable[[int], bool], lo: int, hi: int) -> int:
+    """Smallest n in [lo, hi] with ``holds(n)``, for ``holds`` monotone and true at ``hi``.
+
+    Searched downwards from ``hi`` by doubling steps, then by bisection: when ``hi`` is
+    a close upper bound of the answer (the binomial plan for a hypergeometric one), a
+    few evaluations settle it.
+    """
+    step = 1
+    while hi - step >= lo and holds(hi - step):
+        hi -= step
+        step *= 2
+    lo = max(lo, hi - step + 1)
+    while lo < hi:
+        mid = (lo + hi) // 2
+        if holds(mid):
+            hi = mid
+        else:
+            lo = mid + 1
+    return lo
+
+
+def _largest_qualifying(qualifies: Callable[[int], bool], lo: int, hi: int, guess: int) -> int:
+    """Largest m in [lo, hi] with ``qualifies(m)``, for ``qualifies`` true at ``lo`` and
+    monotone (true, then false).
+
+    The search starts at ``guess`` and moves away from it by doubling steps until the
+    answer is bracketed, then bisects; a guess within a few units of the answer settles
+    it in a few evaluations, and any guess gives the same answer.
+    """
+    probe = min(max(guess, lo), hi)
+    if probe > lo:
+        step = 1
+        if qualifies(probe):
+            lo = probe
+            while lo + step <= hi:
+                if not qualifies(lo + step):
+                    hi = lo + step - 1
+                    break
+                lo += step
+                step *= 2
+        else:
+            hi = probe - 1
+            while hi - step + 1 > lo:
+                below = hi - step + 1
+                if qualifies(below):
+                    lo = below
+                    break
+                hi = below - 1
+                step *= 2
+    while lo < hi:
+        mid = (lo + hi + 1) // 2
+        if qualifies(mid):
+            lo = mid
+        else:
+            hi = mid - 1
+    return lo
+
+
+def _smallest_qualifying(qualifies: Callable[[int], bool], lo: int, hi: int, guess: int) -> int:
+    """Smallest m in [lo, hi] with ``qualifies(m)``, for ``qualifies`` true at ``hi`` and
+    monotone (false, then true); searched from ``guess`` as :func:`_largest_qualifying`."""
+    return -_largest_qualifying(lambda m: qualifies(-m), -hi, -lo, -guess)
+
+
 def _tail_within(model: Model, rate: Fraction, population_size: int | None, risk: Fraction,
                  k: int, n: int) -> bool:
     return at_most(model.name, k, n, rate, population_size, risk).holds
@@ -228,6 +299,12 @@ def _plan_search(
         return model.lower_tail(k, n, tolerable, population_size)
 
     within = partial(_tail_within, model, tolerable, population_size, alpha)
+    if model.needs_population and population_size is not None:
+        found = _plan_below_binomial(
+            within, tolerable, expected, alpha, population_size, max_n, max_deviations, tail
+        )
+        if found is not None:
+            return found
     if expected == 0:
         if not within(0, max_n):
             return None
@@ -260,6 +337,56 @@ def _plan_search(
             return _smallest_satisfying(partial(within, k), block_low[i], block_high[i]), k
         first_k += chunk
         chunk = min(4 * chunk, 4096)
+
+
+def _plan_below_binomial(
+    within: Callable[[int, int], bool],
+    tolerable: Fraction,
+    expected: Fraction,
+    alpha: Fraction,
+    population_size: int,
+    max_n: int,
+    max_deviations: int,
+    tail: Callable[[Any, Any], Any],
+) -> tuple[int, int] | None:
+    """The hypergeometric plan, searched downwards from the binomial one; None when the
+    binomial plan is not an upper bound here (the full search then decides).
+
+    The binomial plan at the population's deviation rate ``ceil(t N) / N`` usually
+    satisfies the hypergeometric condition too (sampling without replacement is less
+    dispersed), so it bounds the answer from above; this is checked, not assumed. With
+    ``n_b`` allowing ``k_b`` deviations, blocks allowing fewer deviations are tested at
+    their largest ``n`` (one vectorised evaluation); when none holds, the answer is the
+    smallest ``n`` of block ``k_b`` up to ``n_b``, found downwards from ``n_b``. The
+    answer is the one :func:`_plan_search` finds by scanning up from one deviation.
+    """
+    rate = Fraction(deviant_items(tolerable, population_size), population_size)
+    try:
+        bound = _plan_search(MODELS["binomial"], rate, expected, alpha, None, max_n,
+                             max_deviations)
+    except _TooManyDeviations:
+        return None
+    if bound is None:
+        return None
+    n_b, k_b = bound
+    if not within(k_b, n_b):
+        return None
+    if expected == 0:
+        return _smallest_satisfying_below(partial(within, 0), 1, n_b), 0
+    if k_b > 1:
+        ks = np.arange(1, k_b, dtype=np.int64)
+        block_low = np.array([floor_quotient(k - 1, expected) + 1 for k in range(1, k_b)],
+                             dtype=np.int64)
+        block_high = np.array([floor_quotient(k, expected) for k in range(1, k_b)],
+                              dtype=np.int64)
+        ns = np.maximum(block_high, ks)
+        feasible = (block_low <= block_high) & at_most_each(
+            "hypergeometric", ks, ns, tail(ks, ns), tolerable, population_size, alpha
+        )
+        if feasible.any():
+            return None
+    low = floor_quotient(k_b - 1, expected) + 1
+    return _smallest_satisfying_below(partial(within, k_b), low, n_b), k_b
 
 
 def size_sample(
@@ -480,9 +607,17 @@ def _plan_warnings(
                 "The sample is more than 10% of the population; the hypergeometric method "
                 "would give a smaller sample (common practice threshold)."
             )
+    # The zero-deviation plan's size z is the smallest n with P(X = 0) ≤ risk, a tail
+    # that falls as n grows; so n > 3 z exactly when the condition holds at
+    # m = floor((n − 1) / 3). One tail decides, and z itself is searched for only when
+    # the warning is given, to be named in it.
     if zero_size is None:
-        zero_plan = _plan_search(model, tolerable, Fraction(0), alpha, population_size, max_n)
-        zero_size = None if zero_plan is None else zero_plan[0]
+        largest_small = (n - 1) // _LARGE_PLAN_FACTOR
+        if largest_small >= 1 and _tail_within(model, tolerable, population_size, alpha, 0,
+                                               largest_small):
+            zero_plan = _plan_search(model, tolerable, Fraction(0), alpha, population_size,
+                                     largest_small)
+            zero_size = None if zero_plan is None else zero_plan[0]
     if zero_size is not None and n > _LARGE_PLAN_FACTOR * zero_size:
         warnings.append(
             f"The expected rate is close to the tolerable rate: the sample of {n:,} is more "
@@ -504,14 +639,15 @@ def _binomial_upper(d: int, n: int, alpha: float) -> float:
     """Clopper–Pearson one-sided upper bound with risk ``alpha``."""
     if d == n:
         return 1.0
-    return float(stats.beta.isf(alpha, d + 1, n - d))
+    # the inverse scipy.stats.beta.isf calls, without its generic argument handling
+    return float(special.betainccinv(d + 1, n - d, alpha))
 
 
 def _binomial_lower(d: int, n: int, alpha: float) -> float:
     """Clopper–Pearson one-sided lower bound with risk ``alpha``."""
     if d == 0:
         return 0.0
-    return float(stats.beta.ppf(alpha, d, n - d + 1))
+    return float(_beta_ppf(alpha, d, n - d + 1))
 
 
 def _poisson_upper(d: int, n: int, alpha: float) -> float:
@@ -527,26 +663,26 @@ def _poisson_lower(d: int, n: int, alpha: float) -> float:
 
 
 def _hypergeometric_upper_count(d: int, n: int, size: int, alpha: Fraction) -> int:
-    """Largest deviant count M with P(X ≤ d | M) > alpha (exact, by bisection)."""
+    """Largest deviant count M with P(X ≤ d | M) > alpha (exact).
+
+    Searched from the Clopper–Pearson bound ``p_U N``, which sampling without
+    replacement rarely exceeds by much: the bracket grows from there by doubling steps
+    and is then bisected, so the answer is the one a bisection over ``[d, N − n + d]``
+    gives, in a few evaluations instead of ``log2 N``.
+    """
     lo, hi = d, size - (n - d)  # P(X ≤ d | M = d) = 1, so lo always qualifies
 
     def qualifies(m: int) -> bool:
         value = float(hypergeometric.cdf(d, size, m, n))
         return hypergeometric_above(d, size, m, n, alpha, value, upper=False)
 
-    if qualifies(hi):
-        return hi
-    while hi - lo > 1:
-        mid = (lo + hi) // 2
-        if qualifies(mid):
-            lo = mid
-        else:
-            hi = mid
-    return lo
+    guess = math.floor(_binomial_upper(d, n, float(alpha)) * size)
+    return _largest_qualifying(qualifies, lo, hi, guess)
 
 
 def _hypergeometric_lower_count(d: int, n: int, size: int, alpha: Fraction) -> int:
-    """Smallest deviant count M with P(X ≥ d | M) > alpha (exact, by bisection)."""
+    """Smallest deviant count M with P(X ≥ d | M) > alpha (exact), searched from the
+    Clopper–Pearson lower bound as :func:`_hypergeometric_upper_count` is."""
     if d == 0:
         return 0
     lo, hi = d, size - (n - d)  # P(X ≥ d | M = hi) = 1, so hi always qualifies
@@ -555,7 +691,8 @@ def _hypergeometric_lower_count(d: int, n: int, size: int, alpha: Fraction) -> i
         value = float(hypergeometric.sf(d - 1, size, m, n))
         return hypergeometric_above(d - 1, size, m, n, alpha, value, upper=True)
 
-    return _smallest_satisfying(qualifies, lo, hi)
+    guess = math.ceil(_binomial_lower(d, n, float(alpha)) * size)
+    return _smallest_qualifying(qualifies, lo, hi, guess)
 
 
 @dataclass(frozen=True)
