@@ -39,7 +39,7 @@ import math
 from collections.abc import Callable
 from dataclasses import dataclass
 from fractions import Fraction
-from functools import partial
+from functools import lru_cache, partial
 from typing import Any
 
 import numpy as np
@@ -467,13 +467,13 @@ def size_sample(
             raise _too_large(estimate, expected_rate, tolerable_rate, max_sample_size)
 
     try:
-        found = _plan_search(model, tolerable, expected, alpha, population_size, max_n)
+        planned = _planned(model.name, tolerable, expected, alpha, population_size, max_n)
     except _TooManyDeviations:
         raise _over_the_cap(
             model, tolerable, expected, alpha, population_size, max_n, expected_rate,
             tolerable_rate, confidence,
         ) from None
-    if found is None:
+    if planned is None:
         if max_n == max_sample_size:
             raise ComputationTooLarge(
                 "tolerable_rate",
@@ -488,8 +488,60 @@ def size_sample(
             f"reach the {deviant_items(tolerable, max_n)} deviant items the population "
             f"holds at tolerable_rate {tolerable_rate!r}",
         )
-    n, k = found
+    return SampleSizePlan(
+        method=model.name,
+        tolerable_rate=tolerable_rate,
+        expected_rate=expected_rate,
+        confidence=confidence,
+        population_size=population_size,
+        population_label=population_label,
+        sample_size=planned.sample_size,
+        allowed_deviations=planned.allowed_deviations,
+        achieved_confidence=1.0 - planned.risk_of_overreliance,
+        risk_of_overreliance=planned.risk_of_overreliance,
+        risk_of_underreliance=planned.risk_of_underreliance,
+        warnings=planned.warnings,
+        tolerable_deviant_items=(
+            None if population_size is None else deviant_items(tolerable, population_size)
+        ),
+    )
 
+
+@dataclass(frozen=True)
+class _Planned:
+    """What a plan's exact inputs determine: the plan, its two risks and its warnings."""
+
+    sample_size: int
+    allowed_deviations: int
+    risk_of_overreliance: float
+    risk_of_underreliance: float
+    warnings: tuple[str, ...]
+
+
+#: Plans kept per process, keyed by their exact inputs: month-end requests repeat a
+#: firm's standard parameters. A plan is a few hundred bytes.
+PLAN_MEMO_SIZE = 1024
+
+
+@lru_cache(maxsize=PLAN_MEMO_SIZE)
+def _planned(
+    method: str,
+    tolerable: Fraction,
+    expected: Fraction,
+    alpha: Fraction,
+    population_size: int | None,
+    max_n: int,
+) -> _Planned | None:
+    """The plan for exact rates, or None when no sample of at most ``max_n`` items holds.
+
+    A pure function of its arguments (the written rates, not their doubles), so its
+    answers are kept in a bounded memo; refusals raise and are not kept.
+    """
+    model = MODELS[method]
+    found = _plan_search(model, tolerable, expected, alpha, population_size, max_n)
+    if found is None:
+        return None
+    n, k = found
     risk_over = at_most(model.name, k, n, tolerable, population_size, alpha).value
     risk_under = 0.0 if expected == 0 else float(model.upper_tail(k, n, expected, population_size))
     # With no deviations expected the plan is its own zero-deviation plan.
@@ -498,23 +550,7 @@ def size_sample(
     if 0 < expected * n < _TINY_EXPECTED_COUNT:
         warnings += (_tiny_expected_warning(model, expected, n, k, tolerable, alpha,
                                             population_size, max_n),)
-    return SampleSizePlan(
-        method=model.name,
-        tolerable_rate=tolerable_rate,
-        expected_rate=expected_rate,
-        confidence=confidence,
-        population_size=population_size,
-        population_label=population_label,
-        sample_size=n,
-        allowed_deviations=k,
-        achieved_confidence=1.0 - risk_over,
-        risk_of_overreliance=risk_over,
-        risk_of_underreliance=risk_under,
-        warnings=warnings,
-        tolerable_deviant_items=(
-            None if population_size is None else deviant_items(tolerable, population_size)
-        ),
-    )
+    return _Planned(n, k, risk_over, risk_under, warnings)
 
 
 def _tiny_expected_warning(
@@ -702,8 +738,7 @@ class _Limits:
     interval: Interval
 
 
-def _binomial_limits(d: int, n: int, confidence: float, size: int | None) -> _Limits:
-    alpha = 1 - exact_rate(confidence)
+def _binomial_limits(d: int, n: int, alpha: Fraction, size: int | None) -> _Limits:
     half = float(alpha / 2)
     return _Limits(
         _binomial_upper(d, n, float(alpha)),
@@ -712,8 +747,7 @@ def _binomial_limits(d: int, n: int, confidence: float, size: int | None) -> _Li
     )
 
 
-def _poisson_limits(d: int, n: int, confidence: float, size: int | None) -> _Limits:
-    alpha = 1 - exact_rate(confidence)
+def _poisson_limits(d: int, n: int, alpha: Fraction, size: int | None) -> _Limits:
     half = float(alpha / 2)
     return _Limits(
         _poisson_upper(d, n, float(alpha)),
@@ -722,21 +756,27 @@ def _poisson_limits(d: int, n: int, confidence: float, size: int | None) -> _Lim
     )
 
 
-def _hypergeometric_limits(d: int, n: int, confidence: float, size: int | None) -> _Limits:
+def _hypergeometric_limits(d: int, n: int, alpha: Fraction, size: int | None) -> _Limits:
     if size is None:
         raise InvalidInput("population.size", "the hypergeometric method needs a population size")
-    alpha = 1 - exact_rate(confidence)
     upper = _hypergeometric_upper_count(d, n, size, alpha)
     low = _hypergeometric_lower_count(d, n, size, alpha / 2)
     high = _hypergeometric_upper_count(d, n, size, alpha / 2)
     return _Limits(upper / size, upper, Interval(low / size, high / size))
 
 
-_LIMITS: dict[str, Callable[[int, int, float, int | None], _Limits]] = {
+_LIMITS: dict[str, Callable[[int, int, Fraction, int | None], _Limits]] = {
     "binomial": _binomial_limits,
     "hypergeometric": _hypergeometric_limits,
     "poisson": _poisson_limits,
 }
+
+
+@lru_cache(maxsize=PLAN_MEMO_SIZE)
+def _limits(method: str, d: int, n: int, alpha: Fraction, size: int | None) -> _Limits:
+    """The limits of ``d`` deviations in ``n`` items at risk ``alpha``: a pure function of
+    its arguments, kept in a bounded memo as the plans are."""
+    return _LIMITS[method](d, n, alpha, size)
 
 
 def evaluate_sample(
@@ -834,7 +874,8 @@ def evaluate_sample(
         count = deviations if model.needs_population else None
         limits = _Limits(exact, count, Interval(exact, exact))
     else:
-        limits = _LIMITS[model.name](deviations, sample_size, confidence, population_size)
+        limits = _limits(model.name, deviations, sample_size, 1 - exact_rate(confidence),
+                         population_size)
     upper = (
         Fraction(limits.upper_count, population_size)
         if limits.upper_count is not None and population_size is not None
