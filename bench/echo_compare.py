@@ -17,11 +17,16 @@ same round and body kind; the table gives the median over rounds of requests per
 of that ratio, of the server CPU per request (master and workers, from /proc/<pid>/stat)
 and of the 99th-percentile latency, with the load average before and after.
 
+With ``--baseline DIR`` (a checkout of another revision, for example made with
+``git worktree add /tmp/baseline main``) a third server runs that revision's service
+under the same settings, and its sizing and evaluation runs join each round, so that a
+change is measured against what it replaces in the same conditions.
+
 Goals: sizing and evaluation at 0.8 × the echo's requests per second or more with the
 repeated body, 0.6 × or more with random bodies.
 
 Usage: ``.venv/bin/python bench/echo_compare.py [--workers N] [--rounds R] [--seconds S]
-[--clients C]`` (wrk must be installed: ``apt-get install -y wrk``).
+[--clients C] [--baseline DIR]`` (wrk must be installed: ``apt-get install -y wrk``).
 """
 
 from __future__ import annotations
@@ -123,7 +128,8 @@ class Target:
     bodies_file: Path
 
 
-def _start(name: str, app: str, workers: int, folder: Path, extra: list[str]) -> Server:
+def _start(name: str, app: str, workers: int, folder: Path, extra: list[str],
+           root: Path = ROOT) -> Server:
     port = free_port()
     metrics = folder / f"metrics-{name}"
     metrics.mkdir()
@@ -134,8 +140,8 @@ def _start(name: str, app: str, workers: int, folder: Path, extra: list[str]) ->
     with log_path.open("wb") as log:
         # Our own argument list, no shell.
         process = subprocess.Popen(  # noqa: S603
-            [str(GUNICORN), "--config", str(CONFIG), *extra, app],
-            cwd=ROOT, env=env, stdout=log, stderr=subprocess.STDOUT,
+            [str(GUNICORN), "--config", str(root / CONFIG.relative_to(ROOT)), *extra, app],
+            cwd=root, env=env, stdout=log, stderr=subprocess.STDOUT,
         )
     return Server(url=f"http://{HOST}:{port}", process=process, log_path=log_path)
 
@@ -179,6 +185,8 @@ def _options() -> argparse.Namespace:
     parser.add_argument("--seconds", type=int, default=5, help="seconds per wrk run")
     parser.add_argument("--clients", type=int, default=8, help="wrk connections")
     parser.add_argument("--threads", type=int, default=2, help="wrk threads")
+    parser.add_argument("--baseline", type=Path, default=None,
+                        help="root of another revision whose service joins the runs")
     return parser.parse_args()
 
 
@@ -208,6 +216,12 @@ def main() -> None:
                        paths["sizing", bodies]),
                 Target("evaluation", bodies, "service", "/v1/evaluation",
                        paths["evaluation", bodies]),
+                *(() if options.baseline is None else (
+                    Target("sample-size, baseline", bodies, "baseline", "/v1/sample-size",
+                           paths["sizing", bodies]),
+                    Target("evaluation, baseline", bodies, "baseline", "/v1/evaluation",
+                           paths["evaluation", bodies]),
+                )),
             )
         ]
         load_before = os.getloadavg()
@@ -216,8 +230,13 @@ def main() -> None:
             "echo": _start("echo", "echo_app:app", options.workers, folder,
                            ["--pythonpath", str(HERE / "echo")]),
         }
+        if options.baseline is not None:
+            servers["baseline"] = _start("baseline", "service.wsgi:app", options.workers,
+                                         folder, [], options.baseline.resolve())
         try:
-            wait_until_healthy(servers["service"])
+            for name in ("service", "baseline"):
+                if name in servers:
+                    wait_until_healthy(servers[name])
             _wait_for_echo(servers["echo"])
             time.sleep(2)  # let every worker boot
             results: dict[tuple[str, str], list[tuple[wrk_runs.RunResult, float]]] = {}
@@ -261,6 +280,8 @@ def main() -> None:
             share = f"{statistics.median(values):.2f} ({', '.join(f'{v:.2f}' for v in values)})"
             wanted = SHARE_REPEATED if target.bodies == "repeated" else SHARE_RANDOM
             goal = f"≥ {wanted} {'met' if statistics.median(values) >= wanted else 'NOT met'}"
+            if target.server == "baseline":
+                goal = "(before)"
         print(f"| {target.name} | {target.bodies} | {rps:.0f} | {share} | {goal} | "
               f"{cpu:.2f} | {p99:.1f} | {errors} |")
 
