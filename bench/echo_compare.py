@@ -20,7 +20,9 @@ and of the 99th-percentile latency, with the load average before and after.
 With ``--baseline DIR`` (a checkout of another revision, for example made with
 ``git worktree add /tmp/baseline main``) a third server runs that revision's service
 under the same settings, and its sizing and evaluation runs join each round, so that a
-change is measured against what it replaces in the same conditions.
+change is measured against what it replaces in the same conditions;
+``--baseline-workers N`` gives that server another worker count (``--baseline .`` with
+``--baseline-workers 5`` compares this revision with 2 × cores + 1 workers).
 
 Goals: sizing and evaluation at 0.8 × the echo's requests per second or more with the
 repeated body, 0.6 × or more with random bodies.
@@ -187,6 +189,8 @@ def _options() -> argparse.Namespace:
     parser.add_argument("--threads", type=int, default=2, help="wrk threads")
     parser.add_argument("--baseline", type=Path, default=None,
                         help="root of another revision whose service joins the runs")
+    parser.add_argument("--baseline-workers", type=int, default=None,
+                        help="workers of the baseline server (default: --workers)")
     return parser.parse_args()
 
 
@@ -231,8 +235,9 @@ def main() -> None:
                            ["--pythonpath", str(HERE / "echo")]),
         }
         if options.baseline is not None:
-            servers["baseline"] = _start("baseline", "service.wsgi:app", options.workers,
-                                         folder, [], options.baseline.resolve())
+            servers["baseline"] = _start(
+                "baseline", "service.wsgi:app", options.baseline_workers or options.workers,
+                folder, [], options.baseline.resolve())
         try:
             for name in ("service", "baseline"):
                 if name in servers:
@@ -259,7 +264,10 @@ def main() -> None:
                 stop(server.process)
         load_after = os.getloadavg()
 
-    print(f"\nworkers {options.workers} per server, {os.cpu_count()} cores, wrk "
+    baseline = "" if options.baseline is None else (
+        f"; baseline {options.baseline} with "
+        f"{options.baseline_workers or options.workers} workers")
+    print(f"\nworkers {options.workers} per server{baseline}, {os.cpu_count()} cores, wrk "
           f"{options.clients} connections / {options.threads} threads, "
           f"{options.rounds} rounds of {options.seconds} s per run, alternating; "
           f"load average (1, 5, 15 min) before {_load(load_before)}, after "
