@@ -779,6 +779,15 @@ def _limits(method: str, d: int, n: int, alpha: Fraction, size: int | None) -> _
     return _LIMITS[method](d, n, alpha, size)
 
 
+@lru_cache(maxsize=PLAN_MEMO_SIZE)
+def _reliance(method: str, d: int, n: int, tolerable: Fraction, size: int | None,
+              alpha: Fraction) -> tuple[float, bool]:
+    """The risk at the tolerable rate, ``P(X ≤ d)``, and whether it is at most ``alpha``
+    (decided exactly near a tie); kept in a bounded memo as the limits are."""
+    decision = at_most(method, d, n, tolerable, size, alpha)
+    return decision.value, decision.holds
+
+
 def evaluate_sample(
     sample_size: int,
     deviations: int,
@@ -894,11 +903,10 @@ def evaluate_sample(
             risk = 1.0 if deviations >= tolerable_count else 0.0
             supports = deviations < tolerable_count
         else:
-            decision = at_most(
+            risk, supports = _reliance(
                 model.name, deviations, sample_size, exact_rate(tolerable_rate),
                 population_size, 1 - exact_rate(confidence),
             )
-            risk, supports = decision.value, decision.holds
 
     warnings: list[str] = []
     if whole and not model.needs_population:
