@@ -339,6 +339,41 @@ def _plan_search(
         chunk = min(4 * chunk, 4096)
 
 
+def _binomial_plan_guess(
+    rate: float, expected: Fraction, alpha: float, max_n: int, max_deviations: int
+) -> tuple[int, int] | None:
+    """The binomial plan at ``rate``, decided in doubles (no exact decision near a tie):
+    a starting point for the exact hypergeometric search, not an answer. None when it
+    would allow more than ``max_deviations`` deviations or need more than ``max_n`` items.
+    """
+
+    def holds(k: int, n: int) -> bool:
+        return bool(k < n and special.betaincc(k + 1, n - k, rate) <= alpha)
+
+    if expected == 0:
+        if not holds(0, max_n):
+            return None
+        return _smallest_satisfying(partial(holds, 0), 1, max_n), 0
+    # Blocks of n allowing k deviations, tested at their largest n, in growing chunks.
+    first, chunk = 1, 8
+    while first <= max_deviations:
+        ks = range(first, min(first + chunk, max_deviations + 1))
+        lows = [floor_quotient(k - 1, expected) + 1 for k in ks]
+        highs = [min(floor_quotient(k, expected), max_n) for k in ks]
+        k_arr, high_arr = np.array(ks, dtype=np.int64), np.array(highs, dtype=np.int64)
+        inside = (np.array(lows, dtype=np.int64) <= high_arr) & (k_arr < high_arr)
+        tails = special.betaincc(k_arr + 1, np.where(inside, high_arr - k_arr, 1), rate)
+        hits = np.flatnonzero(inside & (tails <= alpha))
+        if hits.size:
+            i = int(hits[0])
+            return _smallest_satisfying(partial(holds, ks[i]), lows[i], highs[i]), ks[i]
+        if lows[-1] > max_n:
+            return None
+        first += chunk
+        chunk = min(4 * chunk, 4096)
+    return None
+
+
 def _plan_below_binomial(
     within: Callable[[int, int], bool],
     tolerable: Fraction,
@@ -354,18 +389,16 @@ def _plan_below_binomial(
 
     The binomial plan at the population's deviation rate ``ceil(t N) / N`` usually
     satisfies the hypergeometric condition too (sampling without replacement is less
-    dispersed), so it bounds the answer from above; this is checked, not assumed. With
+    dispersed), so it bounds the answer from above; this is checked, not assumed, and
+    the binomial plan is found in doubles alone (:func:`_binomial_plan_guess`): a wrong
+    guess costs time, never the answer. With
     ``n_b`` allowing ``k_b`` deviations, blocks allowing fewer deviations are tested at
     their largest ``n`` (one vectorised evaluation); when none holds, the answer is the
     smallest ``n`` of block ``k_b`` up to ``n_b``, found downwards from ``n_b``. The
     answer is the one :func:`_plan_search` finds by scanning up from one deviation.
     """
-    rate = Fraction(deviant_items(tolerable, population_size), population_size)
-    try:
-        bound = _plan_search(MODELS["binomial"], rate, expected, alpha, None, max_n,
-                             max_deviations)
-    except _TooManyDeviations:
-        return None
+    rate = deviant_items(tolerable, population_size) / population_size
+    bound = _binomial_plan_guess(rate, expected, float(alpha), max_n, max_deviations)
     if bound is None:
         return None
     n_b, k_b = bound
