@@ -201,14 +201,17 @@ def _smallest_satisfying(holds: Callable[[int], bool], lo: int, hi: int) -> int:
     return lo
 
 
-def _smallest_satisfying_below(holds: Callable[[int], bool], lo: int, hi: int) -> int:
+def _smallest_satisfying_below(
+    holds: Callable[[int], bool], lo: int, hi: int, first_step: int = 1
+) -> int:
     """Smallest n in [lo, hi] with ``holds(n)``, for ``holds`` monotone and true at ``hi``.
 
-    Searched downwards from ``hi`` by doubling steps, then by bisection: when ``hi`` is
-    a close upper bound of the answer (the binomial plan for a hypergeometric one), a
-    few evaluations settle it.
+    Searched downwards from ``hi`` by doubling steps, the first of ``first_step``, then
+    by bisection: when ``hi`` is a close upper bound of the answer (the binomial plan for
+    a hypergeometric one) and ``first_step`` about the distance to it, a few evaluations
+    settle it.
     """
-    step = 1
+    step = max(1, first_step)
     while hi - step >= lo and holds(hi - step):
         hi -= step
         step *= 2
@@ -393,9 +396,9 @@ def _plan_below_binomial(
     the binomial plan is found in doubles alone (:func:`_binomial_plan_guess`): a wrong
     guess costs time, never the answer. With
     ``n_b`` allowing ``k_b`` deviations, blocks allowing fewer deviations are tested at
-    their largest ``n`` (one vectorised evaluation); when none holds, the answer is the
-    smallest ``n`` of block ``k_b`` up to ``n_b``, found downwards from ``n_b``. The
-    answer is the one :func:`_plan_search` finds by scanning up from one deviation.
+    their largest ``n`` (one vectorised evaluation); the answer is the smallest ``n``
+    of the first of them that holds there, or else of block ``k_b`` up to ``n_b``, found
+    downwards. It is the one :func:`_plan_search` finds by scanning up from one deviation.
     """
     rate = deviant_items(tolerable, population_size) / population_size
     bound = _binomial_plan_guess(rate, expected, float(alpha), max_n, max_deviations)
@@ -404,8 +407,11 @@ def _plan_below_binomial(
     n_b, k_b = bound
     if not within(k_b, n_b):
         return None
+    # Sampling without replacement shrinks the variance by about (N − n) / N, and the
+    # sample needed roughly with it: the first step down is that much of n_b.
+    first_step = n_b * n_b // population_size
     if expected == 0:
-        return _smallest_satisfying_below(partial(within, 0), 1, n_b), 0
+        return _smallest_satisfying_below(partial(within, 0), 1, n_b, first_step), 0
     if k_b > 1:
         ks = np.arange(1, k_b, dtype=np.int64)
         block_low = np.array([floor_quotient(k - 1, expected) + 1 for k in range(1, k_b)],
@@ -416,10 +422,14 @@ def _plan_below_binomial(
         feasible = (block_low <= block_high) & at_most_each(
             "hypergeometric", ks, ns, tail(ks, ns), tolerable, population_size, alpha
         )
-        if feasible.any():
-            return None
+        hits = np.flatnonzero(feasible)
+        if hits.size:
+            # The first block that holds at its largest n holds the answer, as in the scan.
+            i = int(hits[0])
+            holds = partial(within, int(ks[i]))
+            return _smallest_satisfying_below(holds, int(block_low[i]), int(ns[i])), int(ks[i])
     low = floor_quotient(k_b - 1, expected) + 1
-    return _smallest_satisfying_below(partial(within, k_b), low, n_b), k_b
+    return _smallest_satisfying_below(partial(within, k_b), low, n_b, first_step), k_b
 
 
 def size_sample(
