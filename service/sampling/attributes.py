@@ -394,9 +394,9 @@ def _plan_below_binomial(
     satisfies the hypergeometric condition too (sampling without replacement is less
     dispersed), so it bounds the answer from above; this is checked, not assumed, and
     the binomial plan is found in doubles alone (:func:`_binomial_plan_guess`): a wrong
-    guess costs time, never the answer. With
-    ``n_b`` allowing ``k_b`` deviations, blocks allowing fewer deviations are tested at
-    their largest ``n`` (one vectorised evaluation); the answer is the smallest ``n``
+    guess costs time, never the answer. With ``n_b`` allowing ``k_b`` deviations,
+    blocks allowing fewer deviations are tested at their largest ``n`` (one vectorised
+    evaluation); the answer is the smallest ``n``
     of the first of them that holds there, or else of block ``k_b`` up to ``n_b``, found
     downwards. It is the one :func:`_plan_search` finds by scanning up from one deviation.
     """
