@@ -131,3 +131,16 @@ def test_guided_searches_find_the_threshold_whatever_the_guess(
     assert all(lo <= m <= hi for m in calls)
     assert _smallest_qualifying(from_, lo, hi, guess) == threshold
     assert _smallest_satisfying_below(from_, lo, hi) == threshold
+
+
+@GRID
+@given(st.sampled_from([0.05, 0.06, 0.08, 0.1]), expected, confidence,
+       st.integers(min_value=3000, max_value=10**7))
+def test_large_population_plans_are_the_first_sample_size_that_holds(
+    t: float, e: float, c: float, size: int
+) -> None:
+    # Large populations, where the binomial plan is a close bound and the search steps
+    # down from it by a first step sized from the sampling fraction.
+    plan = size_sample(t, e, c, size)
+    assert _scanned_plan("hypergeometric", t, e, c, size, plan.sample_size) == (
+        plan.sample_size, plan.allowed_deviations)
