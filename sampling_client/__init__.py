@@ -15,6 +15,7 @@ from sampling_client.api import (
     MARKDOWN,
     MAX_BATCH_OPERATIONS,
     SVG,
+    XLSX,
     AuthenticationFailed,
     RequestRejected,
     SamplingClient,
@@ -22,6 +23,7 @@ from sampling_client.api import (
     ServiceUnavailable,
     UnexpectedAnswer,
 )
+from sampling_client.multipart import FileUpload
 from sampling_client.retrying import RetryPolicy
 
 __all__ = [
@@ -31,7 +33,9 @@ __all__ = [
     "MARKDOWN",
     "MAX_BATCH_OPERATIONS",
     "SVG",
+    "XLSX",
     "AuthenticationFailed",
+    "FileUpload",
     "RequestRejected",
     "RetryPolicy",
     "SamplingClient",

@@ -5,6 +5,12 @@
 >>> client.sample_size(tolerable_rate=0.05, expected_rate=0.01)["sample_size"]  # doctest: +SKIP
 93
 
+A population file or a completed test sheet goes with its request as
+``multipart/form-data``, streamed from disk as it is sent (:mod:`sampling_client.multipart`):
+``client.population_profile("ledger.csv", population={"file": {"id_column": "doc_no"}})``,
+:meth:`SamplingClient.selection_from_file`, :meth:`SamplingClient.test_sheet_evaluation` and
+the others, or :meth:`SamplingClient.call_file` for any operation that reads a file.
+
 Every call has a timeout. A call is tried again only when the connection could not be
 made or the service answered ``503`` (see :mod:`sampling_client.retrying`); every endpoint
 is a stateless computation whose answer depends only on the request, so sending a POST
@@ -28,6 +34,7 @@ One client holds one HTTP session (connections are reused); use one client per t
 from __future__ import annotations
 
 import json
+import os
 import time
 from collections.abc import Callable, Mapping, Sequence
 from importlib import metadata
@@ -36,6 +43,7 @@ from urllib.parse import urlsplit
 
 import requests
 
+from sampling_client.multipart import FileChanged, FileUpload
 from sampling_client.retrying import RetryPolicy
 
 DEFAULT_URL = "http://127.0.0.1:8000"
@@ -44,6 +52,7 @@ JSON = "application/json"
 MARKDOWN = "text/markdown"
 CSV = "text/csv"
 SVG = "image/svg+xml"
+XLSX = "application/vnd.openxmlformats-officedocument.spreadsheetml.sheet"
 
 #: The path of each operation, by its operationId in the service's OpenAPI document.
 #: An operation not listed here is looked up in ``GET /openapi.yaml`` on first use.
@@ -79,6 +88,8 @@ USER_AGENT = f"attribute-sampling-client/{VERSION}"
 
 Timeout = float | tuple[float, float]
 Body = Mapping[str, Any] | None
+#: A file to upload: its path.
+FilePath = str | os.PathLike[str]
 
 
 # --------------------------------------------------------------------------- errors
@@ -210,6 +221,20 @@ def _is_json(media_type: str) -> bool:
                                   media_type.endswith("+json"))
 
 
+def _file_changed(exc: BaseException) -> FileChanged | None:
+    """The :class:`FileChanged` behind a connection error, if the upload raised one (requests
+    and urllib3 wrap what the body raised while it was sent)."""
+    seen: BaseException | None = exc
+    for _ in range(10):
+        if seen is None:
+            return None
+        if isinstance(seen, FileChanged):
+            return seen
+        inner = [a for a in getattr(seen, "args", ()) if isinstance(a, BaseException)]
+        seen = seen.__cause__ or seen.__context__ or (inner[-1] if inner else None)
+    return None
+
+
 def _connection_reason(exc: requests.RequestException, timeout: Timeout) -> str:
     """A few plain words for why no connection was made."""
     if isinstance(exc, requests.ConnectTimeout):
@@ -301,7 +326,11 @@ class SamplingClient:
         return self.call("sample-size", {**(request or {}), **fields})
 
     def evaluation(self, request: Body = None, /, **fields: Any) -> dict[str, Any]:
-        """``POST /v1/evaluation``: upper deviation limit and conclusion for a finished test."""
+        """``POST /v1/evaluation``: upper deviation limit and conclusion for a finished test.
+
+        With ``strata`` the answer is the evaluation in strata, as :meth:`strata_evaluation`
+        gives it.
+        """
         return self.call("evaluation", {**(request or {}), **fields})
 
     def selection(self, request: Body = None, /, **fields: Any) -> dict[str, Any]:
@@ -359,6 +388,10 @@ class SamplingClient:
         """``POST /v1/plans/staged/curve``: acceptance and expected size against the rate."""
         return self.call("staged-curve", {**(request or {}), **fields})
 
+    def staged_curve_svg(self, request: Body = None, /, **fields: Any) -> str:
+        """``POST /v1/plans/staged/curve`` as an SVG chart."""
+        return self.call_text("staged-curve", {**(request or {}), **fields}, SVG)
+
     def strata_evaluation(self, request: Body = None, /, **fields: Any) -> dict[str, Any]:
         """``POST /v1/evaluation/strata``: strata evaluated, one limit for the whole."""
         return self.call("strata-evaluation", {**(request or {}), **fields})
@@ -366,6 +399,81 @@ class SamplingClient:
     def sequence_evaluation(self, request: Body = None, /, **fields: Any) -> dict[str, Any]:
         """``POST /v1/evaluation/sequence``: limits valid at any stopping time."""
         return self.call("sequence-evaluation", {**(request or {}), **fields})
+
+    # ------------------------------------------------------------------ files
+
+    def population_profile(self, file: FilePath, request: Body = None, /,
+                           **fields: Any) -> dict[str, Any]:
+        """``POST /v1/populations/profile``: what the population file at ``file`` holds.
+
+        ``client.population_profile("ledger.csv", population={"file": {"id_column":
+        "doc_no", "amount_column": "amount"}}, control_total="56192.76")``.
+        """
+        return self.call_file("population-profile", file, {**(request or {}), **fields})
+
+    def selection_from_file(self, file: FilePath, request: Body = None, /,
+                            **fields: Any) -> dict[str, Any]:
+        """``POST /v1/selection`` from the population file at ``file`` (described by
+        ``population.file``): the items, with the selected records and a pull list."""
+        return self.call_file("selection", file, {**(request or {}), **fields})
+
+    def selection_from_file_as(self, accept: str, file: FilePath, request: Body = None, /,
+                               **fields: Any) -> bytes:
+        """The same selection as :data:`CSV`, or :data:`XLSX` (a test sheet when the
+        request names ``attributes``): the file's bytes as the service wrote them."""
+        return self.call_file_bytes("selection", file, {**(request or {}), **fields}, accept)
+
+    def stratified_selection(self, file: FilePath, request: Body = None, /,
+                             **fields: Any) -> dict[str, Any]:
+        """``POST /v1/populations/stratified-selection``: stratum by stratum from ``file``."""
+        return self.call_file("population-stratified-selection", file,
+                              {**(request or {}), **fields})
+
+    def test_sheet_evaluation(self, file: FilePath, request: Body = None, /,
+                              **fields: Any) -> dict[str, Any]:
+        """``POST /v1/evaluation`` of the completed test sheet at ``file``: one evaluation
+        per attribute. ``client.test_sheet_evaluation("completed.xlsx", confidence=0.95,
+        tolerable_rates={"three-way match": 0.05})``."""
+        return self.call_file("evaluation", file, {**(request or {}), **fields})
+
+    def test_sheet_evaluation_as(self, accept: str, file: FilePath, request: Body = None, /,
+                                 **fields: Any) -> bytes:
+        """The same evaluation as :data:`MARKDOWN`, or :data:`XLSX` (the workbook again with
+        an Evaluation sheet added), as the service wrote it."""
+        return self.call_file_bytes("evaluation", file, {**(request or {}), **fields}, accept)
+
+    def monetary_selection_from_file(self, file: FilePath, request: Body = None, /,
+                                     **fields: Any) -> dict[str, Any]:
+        """``POST /v1/monetary/selection`` from the ledger file at ``file`` (described by
+        ``population.file`` with ``id_column`` and ``amount_column``): the currency units
+        selected, with each selected record."""
+        return self.call_file("monetary-selection", file, {**(request or {}), **fields})
+
+    def monetary_selection_from_file_as(self, accept: str, file: FilePath,
+                                        request: Body = None, /, **fields: Any) -> bytes:
+        """The same selection as :data:`CSV`, :data:`MARKDOWN`, or :data:`XLSX` (the
+        monetary-unit test sheet), as the service wrote it."""
+        return self.call_file_bytes("monetary-selection", file,
+                                    {**(request or {}), **fields}, accept)
+
+    def monetary_test_sheet(self, request: Body = None, /, **fields: Any) -> bytes:
+        """The monetary-unit test sheet (XLSX) of a selection from a JSON list of
+        ``{"id", "amount"}`` items."""
+        return self.call_bytes("monetary-selection", {**(request or {}), **fields}, XLSX)
+
+    def monetary_sheet_evaluation(self, file: FilePath, request: Body = None, /,
+                                  **fields: Any) -> dict[str, Any]:
+        """``POST /v1/monetary/evaluation`` of the completed monetary-unit test sheet at
+        ``file``: ``client.monetary_sheet_evaluation("completed.xlsx",
+        tolerable_misstatement="20000")``."""
+        return self.call_file("monetary-evaluation", file, {**(request or {}), **fields})
+
+    def monetary_sheet_evaluation_as(self, accept: str, file: FilePath, request: Body = None,
+                                     /, **fields: Any) -> bytes:
+        """The same evaluation as :data:`MARKDOWN`, or :data:`XLSX` (the workbook again with
+        an Evaluation sheet added), as the service wrote it."""
+        return self.call_file_bytes("monetary-evaluation", file,
+                                    {**(request or {}), **fields}, accept)
 
     def batch(
         self,
@@ -452,13 +560,71 @@ class SamplingClient:
         response = self._send(
             "POST", self.path_of(operation), request, accept, timeout, request_id
         )
+        return self._expect(response, accept).content.decode("utf-8")
+
+    def call_bytes(
+        self,
+        operation: str,
+        request: Mapping[str, Any],
+        accept: str,
+        *,
+        timeout: Timeout | None = None,
+        request_id: str | None = None,
+    ) -> bytes:
+        """POST ``request`` asking for ``accept`` (an XLSX workbook, say) and return the
+        answer's bytes exactly."""
+        response = self._send(
+            "POST", self.path_of(operation), request, accept, timeout, request_id
+        )
+        return self._expect(response, accept).content
+
+    def call_file(
+        self,
+        operation: str,
+        file: FilePath,
+        request: Mapping[str, Any],
+        *,
+        timeout: Timeout | None = None,
+        request_id: str | None = None,
+    ) -> dict[str, Any]:
+        """POST the file at ``file`` with ``request`` as ``multipart/form-data`` (the parts
+        ``file`` and ``request``) and return the JSON answer.
+
+        The file is streamed from disk as it is sent, never read whole into memory; it is
+        read again from its start when the request is tried again. A file that cannot be
+        read raises :class:`OSError` before anything is sent.
+        """
+        body = FileUpload(file, request)
+        return self._json(
+            self._send("POST", self.path_of(operation), body, JSON, timeout, request_id),
+            "POST",
+        )
+
+    def call_file_bytes(
+        self,
+        operation: str,
+        file: FilePath,
+        request: Mapping[str, Any],
+        accept: str,
+        *,
+        timeout: Timeout | None = None,
+        request_id: str | None = None,
+    ) -> bytes:
+        """As :meth:`call_file`, asking for ``accept``; the answer's bytes exactly."""
+        body = FileUpload(file, request)
+        response = self._send("POST", self.path_of(operation), body, accept, timeout,
+                              request_id)
+        return self._expect(response, accept).content
+
+    @staticmethod
+    def _expect(response: requests.Response, accept: str) -> requests.Response:
         got = _media_type(response)
         if got != accept.lower():
             raise UnexpectedAnswer(
                 f"POST {response.url} answered {got or 'no Content-Type'}, not {accept}",
                 url=response.url,
             )
-        return response.content.decode("utf-8")
+        return response
 
     def path_of(self, operation: str) -> str:
         """The path of ``operation``: from :data:`OPERATION_PATHS`, else from the spec."""
@@ -490,10 +656,11 @@ class SamplingClient:
 
     # ------------------------------------------------------------------ transport
 
-    def _headers(self, accept: str, request_id: str | None, has_body: bool) -> dict[str, str]:
+    def _headers(self, accept: str, request_id: str | None,
+                 content_type: str | None) -> dict[str, str]:
         headers = {"Accept": accept, "User-Agent": USER_AGENT}
-        if has_body:
-            headers["Content-Type"] = JSON
+        if content_type is not None:
+            headers["Content-Type"] = content_type
         if self._api_key is not None:
             headers["Authorization"] = f"Bearer {self._api_key}"
         if request_id is not None:
@@ -504,22 +671,29 @@ class SamplingClient:
         self,
         method: str,
         path: str,
-        body: Mapping[str, Any] | None,
+        body: Mapping[str, Any] | FileUpload | None,
         accept: str,
         timeout: Timeout | None,
         request_id: str | None,
     ) -> requests.Response:
-        """Send with the retry policy; the final answer if it is 2xx, else raise."""
+        """Send with the retry policy; the final answer if it is 2xx, else raise.
+
+        ``body`` is a JSON request, or a :class:`FileUpload` streamed as it is sent.
+        """
         url = self.base_url + path
         wait = _check_timeout(timeout) if timeout is not None else self.timeout
-        data = None
-        if body is not None:
+        data: bytes | FileUpload | None = None
+        content_type = None
+        if isinstance(body, FileUpload):
+            data, content_type = body, body.content_type
+        elif body is not None:
             try:
                 data = json.dumps(body, allow_nan=False, ensure_ascii=False).encode("utf-8")
             except ValueError:
                 raise ValueError("the request holds NaN or Infinity, which JSON cannot carry") \
                     from None
-        headers = self._headers(accept, request_id, data is not None)
+            content_type = JSON
+        headers = self._headers(accept, request_id, content_type)
         attempt = 0
         while True:
             try:
@@ -527,6 +701,9 @@ class SamplingClient:
                     method, url, data=data, headers=headers, timeout=wait, allow_redirects=False
                 )
             except requests.ConnectionError as exc:  # ConnectTimeout is one too
+                changed = _file_changed(exc)
+                if changed is not None:
+                    raise changed from None  # the file's fault, not the connection's
                 if attempt < self.retry.retries:
                     self._sleep(self.retry.delay(attempt))
                     attempt += 1

@@ -2,8 +2,11 @@
 
 One subcommand per operation of the service (its operationId), with one flag per request
 field derived from the operation's request schema (:mod:`sampling_client.flags`), so a new
-endpoint or field is on the command line without new code here. ``serve`` runs the
-service itself under gunicorn; ``health`` and ``ready`` ask a running one how it is.
+endpoint or field is on the command line without new code here. An operation that reads a
+file takes it with ``--file`` (a population file) or ``--test-sheet`` (a completed test
+sheet, for ``evaluation``), and an answer that is a file (``--xlsx``) goes to ``--output``.
+``serve`` runs the service itself under gunicorn; ``health`` and ``ready`` ask a running
+one how it is.
 """
 
 from __future__ import annotations
@@ -20,11 +23,14 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any, NoReturn
 
+import requests
+
 from sampling_client import api, controls, flags, tables
 from sampling_client.api import (
     DEFAULT_URL,
     JSON,
     MARKDOWN,
+    XLSX,
     AuthenticationFailed,
     RequestRejected,
     SamplingClient,
@@ -60,7 +66,20 @@ environment:
 Rates are fractions: 5% is 0.05. The results support, and do not replace,
 professional judgement and the auditing standards that apply."""
 
-_FORMAT_FLAGS = {"text/csv": "csv", "image/svg+xml": "svg"}
+_FORMAT_FLAGS = {"text/csv": "csv", "image/svg+xml": "svg", XLSX: "xlsx"}
+# Answers that are not text: written to --output FILE, or to a standard output that is not
+# a terminal.
+_BINARY = frozenset({"xlsx"})
+
+#: Shorter names of some commands, beside their operationIds.
+ALIASES = {
+    "population-profile": ["profile"],
+    "population-stratified-selection": ["stratified-selection"],
+}
+#: Read timeout of a call that sends a file, unless --timeout is given: reading a file of
+#: millions of records takes the service seconds to minutes.
+FILE_READ_SECONDS = 600.0
+DEFAULT_SECONDS = 10.0
 # ASCII digits only: str.isdigit also takes superscripts, which int() refuses.
 _DIGITS = re.compile(r"[0-9]{1,9}")
 
@@ -107,15 +126,24 @@ def _connection_options() -> argparse.ArgumentParser:
     group.add_argument("--api-key", default=os.environ.get(KEY_VARIABLE) or None,
                        help=f"API key (default: ${KEY_VARIABLE}); prefer the variable, since "
                        "a flag shows in the process list")
-    group.add_argument("--timeout", type=_positive_seconds, default=10.0,
-                       help="seconds to wait for the connection and for the answer "
-                       "(default 10)")
+    group.add_argument("--timeout", type=_positive_seconds, default=None,
+                       help=f"seconds to wait for the connection and for the answer "
+                       f"(default {DEFAULT_SECONDS:g}; for an answer to a file sent with "
+                       f"--file or --test-sheet, {FILE_READ_SECONDS:g})")
     group.add_argument("--retries", type=_count, default=3,
                        help="further tries when the connection fails or the service answers "
                        "503 (default 3)")
     group.add_argument("--request-id", help="sent as X-Request-ID, to find the call in the "
                        "service's logs")
     return common
+
+
+def _offered(operation: Any) -> list[str]:
+    """The media types of ``operation`` that have a flag, its file form's too."""
+    types = list(operation.media_types)
+    if operation.file_form is not None:
+        types += [t for t in operation.file_form.media_types if t not in types]
+    return [t for t in types if t in _FORMAT_FLAGS]
 
 
 def _output_options(parser: argparse.ArgumentParser, operation: Any, single: bool) -> None:
@@ -125,16 +153,30 @@ def _output_options(parser: argparse.ArgumentParser, operation: Any, single: boo
                         help="print the service's JSON answer exactly")
     choice.add_argument("--markdown", dest="output", action="store_const", const="markdown",
                         help="print the service's ticket-ready Markdown block")
-    offered = [t for t in operation.media_types if t in _FORMAT_FLAGS]
+    offered = _offered(operation)
+    names = ["json", "markdown"]
     for media_type in offered:
         name = _FORMAT_FLAGS[media_type]
+        names.append(name)
         extra = "; with --controls, the rows as CSV" if name == "csv" and single else ""
+        if name == "xlsx" and operation.file_form is not None:
+            extra = (" (with --test-sheet: the workbook again, with an Evaluation sheet "
+                     "added)")
+        elif name == "xlsx":
+            extra = " (a test sheet when --attributes are named)"
         choice.add_argument(f"--{name}", dest="output", action="store_const", const=name,
                             help=f"print the service's {media_type} answer exactly{extra}")
     if single and "text/csv" not in offered:
+        names.append("csv")
         choice.add_argument("--csv", dest="output", action="store_const", const="csv",
                             help="with --controls: the rows as CSV (UTF-8 with a byte order "
                             "mark, CRLF line ends)")
+    choice.add_argument("--accept", dest="output", choices=names, metavar="FORMAT",
+                        help=f"the same as the flag of that name: one of {', '.join(names)}")
+    group.add_argument("--output", dest="output_file", metavar="FILE",
+                       help="write the answer to FILE (whole, or not at all) instead of "
+                       "standard output. An XLSX answer needs it, unless standard output "
+                       "is redirected to a file or a pipe.")
 
 
 def _add_operation(subparsers: Any, operation: Any, common: argparse.ArgumentParser) -> None:
@@ -143,13 +185,27 @@ def _add_operation(subparsers: Any, operation: Any, common: argparse.ArgumentPar
     single = operation.name != "batch"
     parser = subparsers.add_parser(
         operation.name, help=operation.summary, parents=[common], allow_abbrev=False,
+        aliases=ALIASES.get(operation.name, []),
         description=textwrap.fill(
             f"{operation.summary} (POST {operation.path}). {operation.description}",
             flags.HELP_WIDTH),
         epilog=EPILOG, formatter_class=argparse.RawDescriptionHelpFormatter,
     )
-    parser.set_defaults(command="operation", operation=operation, specs=specs, output=None)
+    parser.set_defaults(command="operation", operation=operation, specs=specs, output=None,
+                        sheet_specs=None)
     flags.add_flags(parser, specs, flags.group_descriptions(schema))
+    if operation.accepts_file:
+        parser.add_argument(
+            "--file", metavar="PATH", dest="upload",
+            help="the population file (CSV, XLSX or Parquet), sent as the file part of a "
+            "multipart/form-data request and read from disk as it is sent; describe it "
+            "with --id-column (or --row-numbers), --amount-column and the other "
+            "population.file flags"
+            + ("" if operation.file_required else ", instead of a --population-size, "
+               "ranges or items"),
+        )
+    if operation.file_form is not None:
+        _add_test_sheet(parser, operation, specs)
     parser.add_argument("--body", metavar="FILE",
                         help="the request as a JSON object from FILE ('-' for standard "
                         "input); flags given set their fields on top of it")
@@ -161,7 +217,10 @@ def _add_operation(subparsers: Any, operation: Any, common: argparse.ArgumentPar
             f"{api.MAX_BATCH_OPERATIONS:,}): a CSV file whose header names {controls.ID_COLUMN} "
             f"and any of {columns}. Numbers are plain decimals (0.05, not 5%% or 0,05); a "
             "blank cell leaves the field to the service's default; flags given apply to "
-            "every row. Prints one row per control, its warnings numbered under the table.",
+            "every row. Prints one row per control, its warnings numbered under the table."
+            + (f" A {controls.FILE_COLUMN} column names each control's population file "
+               "(relative to the controls file's folder); such a control is sent with its "
+               "file, on its own." if operation.accepts_file else ""),
         )
     if operation.name == "selection":
         parser.add_argument(
@@ -174,6 +233,42 @@ def _add_operation(subparsers: Any, operation: Any, common: argparse.ArgumentPar
             "standard error with the warning to record it, and the rows show it.",
         )
     _output_options(parser, operation, single)
+
+
+def _add_test_sheet(parser: argparse.ArgumentParser, operation: Any,
+                    specs: list[flags.FieldSpec]) -> None:
+    """The flag of the file form's upload and the flags of its request that the JSON form
+    lacks: ``--file`` when the form reads a population file (``population.file``), else
+    ``--test-sheet`` (a completed test sheet)."""
+    form = operation.file_form
+    sheet_specs = flags.field_specs(form.request_schema)
+    known = {spec.path for spec in specs}
+    extra = [spec for spec in sheet_specs if spec.path not in known]
+    reads_population = any(spec.path[:2] == flags.SHORT_PREFIX for spec in sheet_specs)
+    title = "population file" if reads_population else "completed test sheet"
+    group = parser.add_argument_group(
+        title,
+        textwrap.fill(f"{form.summary} (POST {form.path} as multipart/form-data). "
+                      f"{form.description}", flags.HELP_WIDTH),
+    )
+    if reads_population:
+        group.add_argument(
+            "--file", metavar="PATH", dest="upload",
+            help="the population file (CSV, XLSX or Parquet), sent as the file part of a "
+            "multipart/form-data request and read from disk as it is sent; describe it with "
+            "the population.file flags (--id-column, --amount-column, ...)",
+        )
+        flags.add_flags(parser, extra, flags.group_descriptions(form.request_schema))
+    else:
+        group.add_argument(
+            "--test-sheet", metavar="PATH", dest="upload",
+            help="the completed test sheet (XLSX), sent as the file part. With it, only "
+            + ", ".join(spec.flag for spec in sheet_specs) + " apply; the sheet holds the "
+            "selection and the results.",
+        )
+        flags.add_flags(group, extra)
+    parser.set_defaults(sheet_specs=sheet_specs,
+                        upload_flag="--file" if reads_population else "--test-sheet")
 
 
 #: Commands that need no request schema: their parser is built without the operations.
@@ -227,9 +322,12 @@ def build_parser(with_operations: bool = True) -> argparse.ArgumentParser:
 # --------------------------------------------------------------------------- running
 
 
-def _client(args: argparse.Namespace) -> SamplingClient:
+def _client(args: argparse.Namespace, sends_files: bool = False) -> SamplingClient:
+    timeout: float | tuple[float, float] = args.timeout or DEFAULT_SECONDS
+    if args.timeout is None and sends_files:
+        timeout = (DEFAULT_SECONDS, FILE_READ_SECONDS)
     try:
-        return SamplingClient(args.url, api_key=args.api_key, timeout=args.timeout,
+        return SamplingClient(args.url, api_key=args.api_key, timeout=timeout,
                               retries=args.retries)
     except ValueError as problem:
         raise UsageProblem(str(problem)) from None
@@ -260,10 +358,34 @@ def _read_body(path: str | None) -> dict[str, Any]:
 
 
 def _body(args: argparse.Namespace) -> dict[str, Any]:
+    specs = _request_specs(args)
     try:
-        return flags.build_body(args, args.specs, _read_body(args.body))
+        return flags.build_body(args, specs, _read_body(args.body))
     except flags.ValueProblem as problem:
         raise UsageProblem(str(problem)) from None
+
+
+def _request_specs(args: argparse.Namespace) -> list[flags.FieldSpec]:
+    """The fields of the request sent: the test sheet's with --test-sheet, else the
+    operation's; a flag of the other form given is a usage error."""
+    sheet_specs = args.sheet_specs
+    if sheet_specs is None:
+        return list(args.specs)
+    with_sheet = args.upload is not None
+    used = sheet_specs if with_sheet else args.specs
+    other = args.specs if with_sheet else sheet_specs
+    paths = {spec.path for spec in used}
+    given = [spec.flag for spec, _ in flags.iter_values(args, other) if spec.path not in paths]
+    upload_flag = _upload_flag(args)
+    if given and with_sheet and upload_flag == "--test-sheet":
+        raise UsageProblem(f"{', '.join(given)} cannot be given with --test-sheet: the sheet "
+                           "holds the sample and its results")
+    if given and with_sheet:
+        raise UsageProblem(f"{', '.join(given)} cannot be given with {upload_flag}: the file "
+                           "holds the population")
+    if given:
+        raise UsageProblem(f"{', '.join(given)} needs {upload_flag}")
+    return list(used)
 
 
 def _merge(base: Mapping[str, Any], extra: Mapping[str, Any]) -> dict[str, Any]:
@@ -287,11 +409,30 @@ def _leaf_names(body: Mapping[str, Any], prefix: str = "") -> set[str]:
 def _run_operation(args: argparse.Namespace) -> int:
     operation = args.operation
     body = _body(args)
+    upload = getattr(args, "upload", None)
+    if args.output_file is not None:
+        _check_writable("--output", args.output_file)
     if getattr(args, "controls", None):
+        if upload is not None and operation.accepts_file:
+            raise UsageProblem(f"--file cannot be given with --controls; give each control's "
+                               f"file in the {controls.FILE_COLUMN} column")
+        if upload is not None:
+            raise UsageProblem(f"{_upload_flag(args)} cannot be given with --controls")
         return _run_controls(args, body)
+    if args.output in _BINARY and args.output_file is None and sys.stdout.isatty():
+        raise UsageProblem(f"--{args.output} writes a binary file: give --output FILE, or "
+                           "redirect standard output to a file")
     if getattr(args, "items_out", None):
         raise UsageProblem("--items-out needs --controls; a single selection's items are "
                            "its --csv")
+    if upload is not None or operation.file_required:
+        return _run_upload(args, body)
+    if "file" in (body.get("population") or {}):
+        raise UsageProblem("the population.file flags describe a population file: send the "
+                           "file with --file PATH")
+    if args.output in _BINARY:
+        raise UsageProblem(f"--{args.output} for {operation.name} needs "
+                           f"{_upload_flag(args)}")
     if operation.name == "selection" and "seed" not in body and args.output in ("csv",
                                                                                 "markdown"):
         _say(args, f"warning: no --seed given: the service generates one on every call, so "
@@ -303,17 +444,100 @@ def _run_operation(args: argparse.Namespace) -> int:
         if args.output is None:
             document = client.call(operation.name, body, request_id=args.request_id)
             if operation.name == "batch":
-                _write(tables.batch_text(body.get("operations") or [], document["results"]))
+                _emit(args, tables.batch_text(body.get("operations") or [],
+                                              document["results"]))
                 return _batch_status(document["results"])
-            _write(tables.document_text(operation.summary, document))
+            _emit(args, tables.document_text(operation.summary, document))
             return EXIT_OK
         media_type = {"json": JSON, "markdown": MARKDOWN}.get(args.output) or next(
             t for t, name in _FORMAT_FLAGS.items() if name == args.output)
         text = client.call_text(operation.name, body, media_type, request_id=args.request_id)
-        _write(text if text.endswith("\n") or media_type != JSON else text + "\n")
+        _emit(args, text if text.endswith("\n") or media_type != JSON else text + "\n")
         if operation.name == "batch" and media_type == JSON:
             return _batch_status(json.loads(text)["results"])
         return EXIT_OK
+
+
+def _upload_flag(args: argparse.Namespace) -> str:
+    return str(getattr(args, "upload_flag", None) or "--file")
+
+
+def _run_upload(args: argparse.Namespace, body: dict[str, Any]) -> int:
+    """Send the file of --file or --test-sheet with the request, streamed from disk."""
+    operation = args.operation
+    path = args.upload
+    if path is None:
+        raise UsageProblem(f"{operation.name} reads a population file: give it with "
+                           "--file PATH")
+    form = operation.file_form or operation
+    if args.output == "csv" and "text/csv" not in form.media_types:
+        raise UsageProblem(f"--csv is not offered for {operation.name} with a file")
+    if operation.name in ("selection", "monetary-selection") and "seed" not in body \
+            and args.output not in (None, "json"):
+        _say(args, "warning: no --seed given: the service generates one on every call, so "
+             "each run selects other items; record the seed written in the answer, or give "
+             "--seed.")
+    try:
+        with _client(args, sends_files=True) as client:
+            if args.output is None:
+                document = client.call_file(operation.name, path, body,
+                                            request_id=args.request_id)
+                _emit(args, tables.document_text(form.summary, document))
+                return EXIT_OK
+            media_type = {"json": JSON, "markdown": MARKDOWN}.get(args.output) or next(
+                t for t, name in _FORMAT_FLAGS.items() if name == args.output)
+            data = client.call_file_bytes(operation.name, path, body, media_type,
+                                          request_id=args.request_id)
+    except requests.RequestException:
+        raise  # an OSError too, but the transport's, not the file's
+    except OSError as exc:
+        raise UsageProblem(f"{_upload_flag(args)} {path}: {exc.strerror or exc}") from None
+    if media_type == JSON and not data.endswith(b"\n"):
+        data += b"\n"
+    _emit(args, data)
+    return EXIT_OK
+
+
+def _emit(args: argparse.Namespace, data: str | bytes) -> None:
+    """The answer, to --output FILE when given, else to standard output, exactly."""
+    raw = data.encode("utf-8") if isinstance(data, str) else data
+    if args.output_file is None:
+        sys.stdout.buffer.write(raw)
+        sys.stdout.flush()
+    else:
+        _write_file("--output", args.output_file, raw)
+
+
+def _send_controls(args: argparse.Namespace, client: SamplingClient,
+                   rows: Sequence[controls.Control],
+                   items: list[dict[str, Any]]) -> dict[str, Any]:
+    """The answers of every control, in the file's order, as a batch answers them: the
+    controls with a population file each sent with it, the others as one batch."""
+    operation = args.operation.name
+    answers = iter(client.batch(items, chunk_size=api.MAX_BATCH_OPERATIONS,
+                                request_id=args.request_id)["results"] if items else [])
+    results: list[dict[str, Any]] = []
+    for row in rows:
+        if row.file is None:
+            results.append(next(answers))
+            continue
+        try:
+            result = client.call_file(operation, row.file, row.request,
+                                      request_id=args.request_id)
+        except AuthenticationFailed:
+            raise
+        except RequestRejected as refused:
+            results.append({"id": row.control_id, "status": refused.status,
+                            "problem": refused.problem})
+            continue
+        except requests.RequestException:
+            raise
+        except OSError as exc:
+            raise UsageProblem(f"{args.controls}, line {row.line}, column "
+                               f"{controls.FILE_COLUMN}: {row.file}: "
+                               f"{exc.strerror or exc}") from None
+        results.append({"id": row.control_id, "status": 200, "result": result})
+    return {"results": results}
 
 
 def _batch_status(results: Sequence[Mapping[str, Any]]) -> int:
@@ -322,31 +546,38 @@ def _batch_status(results: Sequence[Mapping[str, Any]]) -> int:
 
 def _run_controls(args: argparse.Namespace, shared: dict[str, Any]) -> int:
     operation = args.operation
+    if args.output in _BINARY:
+        raise UsageProblem(f"--{args.output} is not offered with --controls; use the table, "
+                           "--csv or --json")
     if args.output == "markdown":
         raise UsageProblem("--markdown is not offered with --controls; use the table, --csv or "
                            "--json, or send the controls to /v1/batch with Accept: "
                            "text/markdown for one workpaper block per control")
     given = _leaf_names(shared)
     try:
-        rows = controls.read_controls(args.controls, args.specs)
+        rows = controls.read_controls(args.controls, args.specs, files=operation.accepts_file,
+                                      file_required=operation.file_required)
     except controls.ControlsFileError as problem:
         raise UsageProblem(str(problem)) from None
     twice = sorted(given & {name for row in rows for name in _leaf_names(row.request)})
     if twice:
         raise UsageProblem(f"{args.controls}: {', '.join(twice)} is given both on the command "
                            "line and in the file; give each field in one place")
-    items = controls.batch_operations(
-        [controls.Control(r.control_id, r.line, _merge(shared, r.request)) for r in rows],
-        operation.name,
-    )
+    merged = [controls.Control(r.control_id, r.line, _merge(shared, r.request), r.file)
+              for r in rows]
+    batched = [row for row in merged if row.file is None]
+    items = controls.batch_operations(batched, operation.name)
     ids = [r.control_id for r in rows]
     items_out = getattr(args, "items_out", None)
     if items_out is not None:
-        _check_writable(items_out)
-    args.control_rows = rows  # so that a refusal of the whole batch can name the rows
+        _check_writable("--items-out", items_out)
+    args.control_rows = batched  # so that a refusal of the whole batch can name the rows
     text = None
-    with _client(args) as client:
-        if args.output == "json" and len(items) <= api.MAX_BATCH_OPERATIONS:
+    with _client(args, sends_files=len(batched) < len(merged)) as client:
+        if len(batched) < len(merged):
+            document = _send_controls(args, client, merged, items)
+            results = document["results"]
+        elif args.output == "json" and len(items) <= api.MAX_BATCH_OPERATIONS:
             text = client.call_text("batch", {"operations": items}, JSON,
                                     request_id=args.request_id)
             results = json.loads(text)["results"]
@@ -355,16 +586,16 @@ def _run_controls(args: argparse.Namespace, shared: dict[str, Any]) -> int:
                                     request_id=args.request_id)
             results = document["results"]
     if items_out is not None:
-        _write_file(items_out, tables.selected_items_csv(ids, results))
+        _write_file("--items-out", items_out, tables.selected_items_csv(ids, results))
     _report_generated_seeds(args, ids, results)
     if text is not None:
-        _write(text if text.endswith("\n") else text + "\n")
+        _emit(args, text if text.endswith("\n") else text + "\n")
     elif args.output == "json":
-        _write(json.dumps(document, ensure_ascii=False) + "\n")
+        _emit(args, json.dumps(document, ensure_ascii=False) + "\n")
     elif args.output == "csv":
-        _write(tables.controls_csv(ids, operation.name, results))
+        _emit(args, tables.controls_csv(ids, operation.name, results))
     else:
-        _write(tables.controls_text(ids, operation.name, results, items_out))
+        _emit(args, tables.controls_text(ids, operation.name, results, items_out))
     if operation.name == "selection" and items_out is None and args.output == "csv":
         _say(args, "note: the selected items are not in these rows; --items-out FILE "
              "writes them as CSV")
@@ -388,26 +619,26 @@ def _report_generated_seeds(args: argparse.Namespace, ids: Sequence[str],
                  "the file's seed column.")
 
 
-def _check_writable(path: str) -> None:
+def _check_writable(flag: str, path: str) -> None:
     """Refuse, before anything is sent, a file that could not be written."""
     target = Path(path)
     if target.is_dir():
-        raise UsageProblem(f"--items-out {path}: is a folder; name a file")
+        raise UsageProblem(f"{flag} {path}: is a folder; name a file")
     if not target.resolve().parent.is_dir():
-        raise UsageProblem(f"--items-out {path}: no such folder {str(target.parent)!r}")
+        raise UsageProblem(f"{flag} {path}: no such folder {str(target.parent)!r}")
 
 
-def _write_file(path: str, text: str) -> None:
-    """Write ``text`` to ``path`` as UTF-8 bytes, whole or not at all."""
+def _write_file(flag: str, path: str, data: str | bytes) -> None:
+    """Write ``data`` to ``path`` (text as UTF-8), whole or not at all."""
     target = Path(path)
     partial = target.with_name(f".{target.name}.partial")
     try:
-        partial.write_bytes(text.encode("utf-8"))
+        partial.write_bytes(data.encode("utf-8") if isinstance(data, str) else data)
         partial.replace(target)
     except OSError as exc:
         with contextlib.suppress(OSError):
             partial.unlink(missing_ok=True)
-        raise UsageProblem(f"--items-out {path}: {exc.strerror}") from None
+        raise UsageProblem(f"{flag} {path}: {exc.strerror}") from None
 
 
 def _run_meta(args: argparse.Namespace) -> int:
@@ -454,13 +685,17 @@ class Sources:
     lists: Mapping[str, str] = field(default_factory=dict)
     controls_file: str | None = None
     rows: Sequence[controls.Control] = ()
+    #: The flag and path of the file sent with the request (--file, --test-sheet).
+    upload: tuple[str, str] | None = None
 
 
 def sources(args: argparse.Namespace) -> Sources:
     """Where the request of ``args`` came from (see :class:`Sources`)."""
     lists = {spec.dotted: path for spec in getattr(args, "specs", ())
              if (path := getattr(args, flags.file_dest(spec), None)) is not None}
-    return Sources(lists, getattr(args, "controls", None), getattr(args, "control_rows", ()))
+    upload = getattr(args, "upload", None)
+    return Sources(lists, getattr(args, "controls", None), getattr(args, "control_rows", ()),
+                   None if upload is None else (_upload_flag(args), upload))
 
 
 def _field_flag(name: str, specs: Sequence[flags.FieldSpec], where: Sources = Sources()) -> str:
@@ -475,6 +710,8 @@ def _field_flag(name: str, specs: Sequence[flags.FieldSpec], where: Sources = So
                 f"{item.group(2) or 'request'}")
     if name in where.lists:
         return f"{where.lists[name]} ({name})"
+    if name == "file" and where.upload is not None:
+        return f"{where.upload[0]} {where.upload[1]} (file)"
     entry = _ENTRY_FIELD.fullmatch(name)
     if entry is not None and entry.group(1) in where.lists:
         # file_lines keeps every line up to the last entry, so entry k is on line k + 1.

@@ -4,7 +4,9 @@ Each field of a marshmallow request schema becomes one flag, so a field added to
 is a flag of the command without new code:
 
 - ``tolerable_rate`` → ``--tolerable-rate``; a nested field ``population.size`` →
-  ``--population-size``; the help text is the field's ``description`` metadata;
+  ``--population-size``; the help text is the field's ``description`` metadata; the
+  fields of a population file's description also go by their own names
+  (``--id-column``, see :func:`short_names`);
 - numbers are read as JSON numbers and sent as numbers (``5`` stays the integer 5, so the
   service can say that it looks like a percentage); nothing else is checked here, so
   every range and consistency message is the service's own;
@@ -70,9 +72,11 @@ class FieldSpec:
     pair: tuple[str, str] = ("first", "last")
     # RECORDS: how each column of a record is read (a kind of this module, by field name).
     columns: tuple[tuple[str, str], ...] = ()
-    # A list field whose presence makes this one optional (``attributes`` for
+    # The list fields whose presence makes this one optional (``attributes`` for
     # ``tolerable_rate``): where no list can be given, as in a controls file, it is required.
-    required_unless: str | None = None
+    required_unless: tuple[str, ...] = ()
+    # An exact amount, which a table cell (a controls file's) gives as the text written.
+    amount: bool = False
 
     @property
     def name(self) -> str:
@@ -166,8 +170,15 @@ def field_specs(schema: Schema, prefix: tuple[str, ...] = ()) -> list[FieldSpec]
         default = None if default is None or callable(default) or _is_missing(default) else default
         specs.append(FieldSpec(path, kind, field.required, _description(field),
                                _choices(field), default,
-                               required_unless=field.metadata.get("required_unless")))
+                               required_unless=_required_unless(field),
+                               amount=_accepts_text(field)))
     return specs
+
+
+def _required_unless(field: fields.Field[Any]) -> tuple[str, ...]:
+    """The ``required_unless`` metadata (one field name or several) as a tuple."""
+    names = field.metadata.get("required_unless") or ()
+    return (names,) if isinstance(names, str) else tuple(names)
 
 
 def _is_missing(value: Any) -> bool:
@@ -359,7 +370,8 @@ def _help(spec: FieldSpec) -> str:
     elif spec.required:
         parts.append(f"Required when {'.'.join(spec.path[:-1])} is given.")
     elif spec.required_unless:
-        parts.append(f"Required unless --{spec.required_unless.replace('_', '-')} is given.")
+        flags = " or ".join(f"--{name.replace('_', '-')}" for name in spec.required_unless)
+        parts.append(f"Required unless {flags} is given.")
     if spec.kind == NUMBERS:
         parts.append("Numbers, comma-separated or repeated.")
     elif spec.kind == CHOICES:
@@ -377,12 +389,34 @@ def _help(spec: FieldSpec) -> str:
     return " ".join(p for p in parts if p).replace("%", "%%")
 
 
+#: The object whose fields also go by their own names, as their command-line flags and
+#: controls-file columns: ``--id-column`` for ``--population-file-id-column``.
+SHORT_PREFIX = ("population", "file")
+
+
+def short_names(specs: list[FieldSpec]) -> dict[str, FieldSpec]:
+    """Short names (``id_column``) of the fields under :data:`SHORT_PREFIX`, by name.
+
+    A field goes by its last name alone when no other field of the request ends with that
+    name and no top-level field is called so: ``population.file.exclude`` is ``exclude``
+    in a profile, but not in a selection, which has ``population.exclude`` too.
+    """
+    leaves: dict[str, int] = {}
+    for spec in specs:
+        leaves[spec.path[-1]] = leaves.get(spec.path[-1], 0) + 1
+    return {
+        spec.path[-1]: spec
+        for spec in specs
+        if spec.path[:-1] == SHORT_PREFIX and leaves[spec.path[-1]] == 1
+    }
+
+
 def file_dest(spec: FieldSpec) -> str:
     return spec.name + "__file"
 
 
 def add_flags(
-    parser: argparse.ArgumentParser,
+    parser: argparse.ArgumentParser | argparse._ArgumentGroup,
     specs: list[FieldSpec],
     groups: Mapping[tuple[str, ...], str] | None = None,
 ) -> None:
@@ -407,29 +441,32 @@ def add_flags(
             made[parent] = parser.add_argument_group(".".join(parent), about)
         return made[parent]
 
+    short = {id(spec): "--" + name.replace("_", "-")
+             for name, spec in short_names(specs).items()}
     for spec in specs:
         target = container(spec)
         metavar = spec.path[-1].upper()
+        names = [spec.flag, *([short[id(spec)]] if id(spec) in short else [])]
         common: dict[str, Any] = {"dest": spec.name, "help": _help(spec), "default": None}
         if spec.kind == BOOLEAN:
-            target.add_argument(spec.flag, action=argparse.BooleanOptionalAction, **common)
+            target.add_argument(*names, action=argparse.BooleanOptionalAction, **common)
             continue
         if spec.kind in (NUMBER, STRING):
             convert: Any = _argparse_type(json_number) if spec.kind == NUMBER else str
             if spec.choices:
                 metavar = "{" + ",".join(spec.choices) + "}"
-            target.add_argument(spec.flag, type=convert, metavar=metavar, **common)
+            target.add_argument(*names, type=convert, metavar=metavar, **common)
             continue
         # A list, or free-shaped JSON: the flag or its file, not both.
         exclusive = target.add_mutually_exclusive_group()
         if spec.kind in (RAW_JSON, RECORDS):
-            exclusive.add_argument(spec.flag, type=_argparse_type(strict_json),
+            exclusive.add_argument(*names, type=_argparse_type(strict_json),
                                    metavar="JSON", **common)
         elif spec.kind == STRINGS:
-            exclusive.add_argument(spec.flag, action="append", metavar="TEXT", **common)
+            exclusive.add_argument(*names, action="append", metavar="TEXT", **common)
         else:
             exclusive.add_argument(
-                spec.flag, action="extend", metavar=metavar,
+                *names, action="extend", metavar=metavar,
                 type=_argparse_type(lambda text, spec=spec: [
                     _entry(spec, part) for part in _comma_list(text)]),
                 **common,

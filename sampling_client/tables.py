@@ -11,6 +11,7 @@ from __future__ import annotations
 import csv
 import io
 import json
+import re
 import textwrap
 from collections.abc import Iterable, Mapping, Sequence
 from typing import Any
@@ -46,6 +47,7 @@ _LABELS = {
     "upper_deviation_count": "Upper deviation count",
     "ratio_to_exact": "Ratio to exact",
     "finite_population_correction": "Finite population correction",
+    "strata.strata": "Suggested amount strata",
 }
 
 # Rates and probabilities, shown as percentages.
@@ -63,7 +65,24 @@ HEADLINES: dict[str, tuple[str, ...]] = {
     "estimation-sample-size": ("recommended",),
     "selection": ("population_size", "sample_size", "seed", "seed_generated",
                   "selection_fingerprint"),
+    "population-profile": ("rows_read", "rows_kept", "distinct_ids", "repeated_ids",
+                           "blank_ids", "amounts.total", "reconciliation.total_difference",
+                           "reconciliation.count_difference", "reconciliation.reconciles"),
+    "population-stratified-selection": ("sample_size", "seed", "seed_generated", "method",
+                                        "allocation"),
 }
+
+
+def field_value(result: Mapping[str, Any], path: str) -> Any:
+    """The value at ``path`` (``amounts.total``) of an answer, None where it has none.
+
+    >>> field_value({"amounts": {"total": "12.50"}}, "amounts.total")
+    '12.50'
+    """
+    value: Any = result
+    for key in path.split("."):
+        value = value.get(key) if isinstance(value, Mapping) else None
+    return value
 
 
 def label(path: str) -> str:
@@ -79,11 +98,25 @@ def label(path: str) -> str:
 
 
 def is_rate(path: str) -> bool:
+    """Whether a field holds a rate or a probability (shown as a percentage).
+
+    An expected sample size at a rate is a number of items, whatever its name ends with.
+
+    >>> is_rate("plan_risk_of_overreliance"), is_rate("expected_sample_size_at_expected_rate")
+    (True, False)
+    >>> is_rate("sizes.confidence_against_2_deviant"), is_rate("posterior_upper_limit")
+    (True, True)
+    """
     leaf = path.rsplit(".", 1)[-1]
+    if "sample_size" in leaf:
+        return False
     return (
         leaf in _RATE_NAMES
-        or leaf.endswith(("_rate", "_confidence", "_probability"))
+        or leaf.endswith(("_rate", "_probability", "_risk", "_limit"))
         or leaf.startswith("risk_")
+        or "_risk_of_" in leaf
+        or "confidence" in leaf
+        or "upper_deviation_limit" in leaf
     )
 
 
@@ -142,12 +175,48 @@ def _is_objects(value: Any) -> bool:
     return isinstance(value, list) and bool(value) and all(isinstance(v, Mapping) for v in value)
 
 
+#: The columns of a list of objects whose full content is in ``--json``: the attributes of
+#: a test sheet's evaluation, the strata of a stratified selection.
+_LIST_COLUMNS = {
+    "evaluations": ("attribute", "passed", "deviations_found", "not_tested",
+                    "sample_deviation_rate", "upper_deviation_limit",
+                    "allowance_for_sampling_risk", "tolerable_rate", "conclusion"),
+    "strata": ("label", "population_size", "total", "standard_deviation", "sample_size",
+               "taken_in_full", "seed"),
+}
+
+
 def _objects_table(name: str, items: list[Mapping[str, Any]]) -> list[str]:
+    """A list of objects as a table; objects that carry a summary of their own (one
+    evaluation per attribute) have it as a paragraph under the table, and objects with
+    selected items (strata) their items, each after their first column's value."""
+    summarised = any(isinstance(item.get("summary"), str) for item in items)
     columns: list[str] = []
     for item in items:
-        columns += [k for k, v in item.items() if k not in columns and not isinstance(v, list)]
+        columns += [k for k, v in item.items() if k not in columns and not isinstance(v, list)
+                    and not (summarised and (k in _NOT_SHOWN or isinstance(v, Mapping)))]
+    if name in _LIST_COLUMNS and set(_LIST_COLUMNS[name]) <= set(columns):
+        columns = list(_LIST_COLUMNS[name])
     rows = [[value_text(c, item.get(c)) for c in columns] for item in items]
-    return [f"{label(name)}:", "", *aligned(rows, [label(c) for c in columns])]
+    # A file's records keep the file's own column names, and its cells are text as written.
+    headers = columns if name == "records" else [label(c) for c in columns]
+    if name == "records":
+        rows = [[str(item.get(c) if item.get(c) is not None else "") for c in columns]
+                for item in items]
+    lines = [f"{label(name)}:", "", *aligned(rows, headers)]
+    listed: list[str] = []
+    for item in items:
+        lead = f"{item.get(columns[0])}" if columns else ""
+        summary, chosen = item.get("summary"), item.get("items")
+        if isinstance(summary, str) and summary:
+            lines += ["", *_paragraph(f"{lead}: {split_caution(summary)}")]
+        elif isinstance(chosen, list) and chosen:
+            text = f"{lead} ({len(chosen):,}): " + ", ".join(_item_text(i) for i in chosen)
+            listed += textwrap.wrap(text, WIDTH, subsequent_indent="    ",
+                                    break_on_hyphens=False)
+    if listed:
+        lines += ["", "Selected items, in draw order:", *listed]
+    return lines
 
 
 def _selected_items(document: Mapping[str, Any]) -> list[str] | None:
@@ -258,7 +327,7 @@ def _rows(ids: Sequence[str], results: Sequence[Mapping[str, Any]],
             notes.append(f"{control}: {warning}")
             numbers.append(f"[{len(notes)}]")
         if isinstance(result, Mapping):
-            cells = [value_text(c, result.get(c)) for c in columns]
+            cells = [value_text(c, field_value(result, c)) for c in columns]
             rows.append([control, *cells, " ".join(numbers), ""])
         else:
             refused = True
@@ -396,7 +465,7 @@ def controls_csv(
     for index, (control, answer) in enumerate(zip(ids, results, strict=True)):
         result = answer.get("result")
         if isinstance(result, Mapping):
-            cells = [_csv_value(result.get(c)) for c in columns]
+            cells = [_csv_value(field_value(result, c)) for c in columns]
             problem = ""
         else:
             cells = [""] * len(columns)
@@ -407,13 +476,18 @@ def controls_csv(
     return out.getvalue()
 
 
+# An exact amount of an answer (a string such as "-7.24"): a spreadsheet reads it as the
+# number it is, never as a formula, so it is written without the guard's quote.
+_PLAIN_AMOUNT = re.compile(r"-?[0-9]+(\.[0-9]+)?")
+
+
 def _csv_value(value: Any) -> Any:
     if value is None:
         return ""
     if isinstance(value, bool):
         return "true" if value else "false"
     if isinstance(value, str):
-        return csv_cell(value)
+        return value if _PLAIN_AMOUNT.fullmatch(value) else csv_cell(value)
     return value
 
 

@@ -8,12 +8,26 @@ from marshmallow import (
     ValidationError,
     fields,
     post_load,
-    validate,
     validates_schema,
 )
 
-from schemas.common import IntervalSchema, PopulationSchema, ResultSchema, StrictSchema
-from schemas.fields import Rate, StrictFloat, StrictInteger, StrictString
+from schemas.common import (
+    IntervalSchema,
+    PopulationSchema,
+    ResultSchema,
+    StrictSchema,
+    check_rates_in_order,
+    conclusion_field,
+    summary_field,
+)
+from schemas.fields import (
+    Rate,
+    choice_field,
+    confidence_field,
+    count_field,
+    expected_rate_field,
+    tolerable_rate_field,
+)
 from schemas.plans import (
     AttributeFindingsSchema,
     AttributeRatesSchema,
@@ -22,7 +36,7 @@ from schemas.plans import (
     prior_answer_fields,
     unique_names,
 )
-from service.sampling.attributes import MAX_CONFIDENCE, MIN_CONFIDENCE, MIN_TOLERABLE_RATE
+from schemas.strata import check_strata, strata_field
 from service.sampling.distributions import MODELS
 from service.sampling.plans.wording import any_evaluation_summary, any_plan_summary
 from service.sampling.wording import (
@@ -32,27 +46,19 @@ from service.sampling.wording import (
 
 METHOD_NAMES = sorted(MODELS)
 _MISSING_UNLESS_ATTRIBUTES = "Missing data for required field (unless attributes is given)."
+_MISSING_UNLESS_STRATA = "Missing data for required field (unless strata is given)."
+_MISSING_UNLESS_EITHER = (
+    "Missing data for required field (unless attributes or strata is given)."
+)
+# The fields of a single population's evaluation, which strata replace.
+_SINGLE_POPULATION_FIELDS = (
+    "population", "sample_size", "deviations", "method", "attributes", "prior",
+)
 
-_METHOD: dict[str, Any] = {
-    "validate": validate.OneOf(METHOD_NAMES, error="must be one of {choices}"),
-    "metadata": {
-        "description": "Distribution used: hypergeometric (finite population, without "
-        "replacement), binomial, or poisson. Default: hypergeometric when population.size "
-        "is given, else binomial."
-    },
-}
-
-
-def _confidence() -> StrictFloat:
-    return Rate(
-        load_default=0.95,
-        metadata={
-            "minimum": MIN_CONFIDENCE,
-            "maximum": MAX_CONFIDENCE,
-            "description": "Confidence, one minus the risk of overreliance, as a fraction.",
-            "example": 0.95,
-        },
-    )
+METHOD_DESCRIPTION = (
+    "Distribution used: hypergeometric (finite population, without replacement), binomial, "
+    "or poisson. Default: hypergeometric when population.size is given, else binomial."
+)
 
 
 def _flatten_population(data: dict[str, Any]) -> dict[str, Any]:
@@ -69,26 +75,15 @@ class SampleSizeRequest(StrictSchema):
         PopulationSchema,
         metadata={"description": "Absent for a population large enough to ignore its size."},
     )
-    tolerable_rate = Rate(
-        metadata={
-            "minimum": MIN_TOLERABLE_RATE,
-            "required_unless": "attributes",
-            "description": "Tolerable deviation rate, as a fraction. Required unless "
-            "attributes is given.",
-            "example": 0.05,
-        },
+    tolerable_rate = tolerable_rate_field(
+        "Tolerable deviation rate, as a fraction. Required unless attributes is given.",
+        metadata={"required_unless": "attributes"},
     )
-    expected_rate = Rate(
-        allow_zero=True,
-        load_default=0.0,
-        metadata={
-            "description": "Expected population deviation rate, as a fraction, below "
-            "tolerable_rate.",
-            "example": 0.01,
-        },
+    expected_rate = expected_rate_field(
+        "Expected population deviation rate, as a fraction, below tolerable_rate."
     )
-    confidence = _confidence()
-    method = StrictString(**_METHOD)
+    confidence = confidence_field()
+    method = choice_field(METHOD_NAMES, METHOD_DESCRIPTION)
     attributes = attributes_field(
         AttributeRatesSchema,
         "Several attributes tested on one sample, each with its own rates (instead of "
@@ -133,11 +128,7 @@ class SampleSizeRequest(StrictSchema):
             errors["prior"] = [
                 "a prior applies to a single attribute without underreliance_risk"
             ]
-        tolerable, expected = data.get("tolerable_rate"), data.get("expected_rate")
-        if tolerable is not None and expected is not None and expected >= tolerable:
-            errors["expected_rate"] = [
-                f"expected_rate {expected!r} must be below tolerable_rate {tolerable!r}"
-            ]
+        check_rates_in_order(data, errors)
         if errors:
             raise ValidationError(errors)
 
@@ -234,11 +225,7 @@ class SampleSizePlanSchema(ResultSchema):
             "the prior asks for more items)."
         }
     )
-    summary = fields.Function(
-        any_plan_summary,
-        required=True,
-        metadata={"type": "string", "description": "Plain-English paragraph."},
-    )
+    summary = summary_field(any_plan_summary)
     warnings = fields.List(fields.String(), required=True)
     curve_request = fields.Method(
         "_curve_request",
@@ -281,38 +268,29 @@ class EvaluationRequest(StrictSchema):
     """Evaluation of a finished test of controls."""
 
     population = fields.Nested(PopulationSchema)
-    sample_size = StrictInteger(
-        required=True,
-        validate=validate.Range(min=1, error="must be at least {min}"),
-        metadata={"description": "Items tested.", "example": 60},
+    sample_size = count_field(
+        "Items tested. Required unless strata is given.",
+        minimum=1,
+        example=60,
+        metadata={"required_unless": ("strata",)},
     )
-    deviations = StrictInteger(
-        validate=validate.Range(min=0, error="must be at least {min}"),
-        metadata={
-            "required_unless": "attributes",
-            "description": "Deviations found. Required unless attributes is given.",
-            "example": 1,
-        },
+    deviations = count_field(
+        "Deviations found. Required unless attributes or strata is given.",
+        example=1,
+        metadata={"required_unless": ("attributes", "strata")},
     )
-    confidence = _confidence()
-    tolerable_rate = Rate(
-        metadata={
-            "minimum": MIN_TOLERABLE_RATE,
-            "description": "When given, the response says whether the sample supports reliance.",
-            "example": 0.05,
-        },
+    confidence = confidence_field()
+    tolerable_rate = tolerable_rate_field(
+        "When given, the response says whether the sample supports reliance."
     )
-    expected_rate = Rate(
-        allow_zero=True,
-        metadata={
-            "description": "The plan's expected population deviation rate, as a fraction "
-            "(optional): the answer then compares the deviations found with the "
-            "ceil(expected_rate × sample_size) the plan allowed. The same body can so be sent "
-            "to /v1/sample-size and, with sample_size and deviations added, here.",
-            "example": 0.01,
-        },
+    expected_rate = expected_rate_field(
+        "The plan's expected population deviation rate, as a fraction (optional): the answer "
+        "then compares the deviations found with the ceil(expected_rate × sample_size) the "
+        "plan allowed. The same body can so be sent to /v1/sample-size and, with sample_size "
+        "and deviations added, here.",
+        default=False,
     )
-    method = StrictString(**_METHOD)
+    method = choice_field(METHOD_NAMES, METHOD_DESCRIPTION)
     attributes = attributes_field(
         AttributeFindingsSchema,
         "Several attributes tested on the same sample_size items, each with the deviations "
@@ -327,13 +305,29 @@ class EvaluationRequest(StrictSchema):
             "limit, beside the classical evaluation."
         },
     )
+    strata = strata_field(
+        "A population sampled in strata (instead of population, sample_size, deviations, "
+        "method, attributes and prior): each stratum's population, sample and deviations. "
+        "The answer is then a StrataEvaluation, as POST /v1/evaluation/strata gives it."
+    )
 
     @validates_schema
     def _consistent(self, data: dict[str, Any], **kwargs: Any) -> None:
         n, d = data.get("sample_size"), data.get("deviations")
         errors: dict[str, list[str]] = {}
         several = data.get("attributes")
-        if several is not None:
+        if "strata" in data:
+            for name in _SINGLE_POPULATION_FIELDS:
+                if name in data:
+                    errors[name] = [
+                        "strata carry their own populations, samples and findings; leave "
+                        "this field out when strata is given"
+                    ]
+            check_strata(data["strata"], errors)
+            n = d = None
+        elif n is None:
+            errors["sample_size"] = [_MISSING_UNLESS_STRATA]
+        if several is not None and "strata" not in data:
             for name in ("deviations", "tolerable_rate", "expected_rate"):
                 if name in data:
                     errors[name] = [
@@ -348,13 +342,9 @@ class EvaluationRequest(StrictSchema):
                     errors[f"attributes[{index}].deviations"] = [
                         f"deviations {item.deviations} must not exceed sample_size {n}"
                     ]
-        elif d is None:
-            errors["deviations"] = [_MISSING_UNLESS_ATTRIBUTES]
-        tolerable, expected = data.get("tolerable_rate"), data.get("expected_rate")
-        if tolerable is not None and expected is not None and expected >= tolerable:
-            errors["expected_rate"] = [
-                f"expected_rate {expected!r} must be below tolerable_rate {tolerable!r}"
-            ]
+        elif d is None and "strata" not in data:
+            errors["deviations"] = [_MISSING_UNLESS_EITHER]
+        check_rates_in_order(data, errors)
         if n is not None and d is not None and d > n:
             errors["deviations"] = [f"deviations {d} must not exceed sample_size {n}"]
         size = (data.get("population") or {}).get("size")
@@ -457,24 +447,9 @@ class EvaluationSchema(ResultSchema):
             "expect next (ISA 530 ¶12-13, AU-C 530), in plain words; empty otherwise.",
         },
     )
-    conclusion = fields.Function(
-        lambda result: (
-            None
-            if result.supports_reliance is None
-            else ("supports_reliance" if result.supports_reliance else "does_not_support_reliance")
-        ),
-        metadata={
-            "type": "string",
-            "enum": ["supports_reliance", "does_not_support_reliance"],
-            "description": "Present only when tolerable_rate is given.",
-        },
-    )
+    conclusion = conclusion_field()
     prior = prior_answer_fields()["prior"]
     posterior_probability = prior_answer_fields()["posterior_probability"]
     posterior_upper_limit = prior_answer_fields()["posterior_upper_limit"]
-    summary = fields.Function(
-        any_evaluation_summary,
-        required=True,
-        metadata={"type": "string", "description": "Plain-English paragraph."},
-    )
+    summary = summary_field(any_evaluation_summary)
     warnings = fields.List(fields.String(), required=True)

@@ -2,11 +2,12 @@
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from typing import Any, ClassVar
 
-from marshmallow import RAISE, Schema, fields, post_dump, validate
+from marshmallow import RAISE, Schema, ValidationError, fields, post_dump, validate
 
-from schemas.fields import StrictInteger, StrictString
+from schemas.fields import StrictString, count_field
 
 
 class StrictSchema(Schema):
@@ -24,10 +25,8 @@ class StrictSchema(Schema):
 class PopulationSchema(StrictSchema):
     """The population the sample is drawn from."""
 
-    size = StrictInteger(
-        required=True,
-        validate=validate.Range(min=1, error="must be at least {min}"),
-        metadata={"description": "Number of items in the population.", "example": 4200},
+    size = count_field(
+        "Number of items in the population.", minimum=1, example=4200, required=True
     )
     label = StrictString(
         validate=validate.Length(max=200, error="must be at most {max} characters"),
@@ -96,3 +95,56 @@ class ResultSchema(Schema):
     def _drop_absent(self, data: dict[str, Any], **kwargs: Any) -> dict[str, Any]:
         keys = self.absent_when_none
         return {k: v for k, v in data.items() if not (k in keys and v is None)}
+
+
+def check_rates_in_order(data: dict[str, Any], errors: dict[str, list[str]]) -> None:
+    """Add an error under ``expected_rate`` when it is not below ``tolerable_rate``."""
+    tolerable, expected = data.get("tolerable_rate"), data.get("expected_rate")
+    if tolerable is not None and expected is not None and expected >= tolerable:
+        errors["expected_rate"] = [
+            f"expected_rate {expected!r} must be below tolerable_rate {tolerable!r}"
+        ]
+
+
+def rates_in_order(data: dict[str, Any]) -> None:
+    """Refuse an ``expected_rate`` that is not below ``tolerable_rate`` (a schema rule)."""
+    errors: dict[str, list[str]] = {}
+    check_rates_in_order(data, errors)
+    if errors:
+        raise ValidationError(errors)
+
+
+# --------------------------------------------------------------------------- answers
+
+CONCLUSIONS = ["supports_reliance", "does_not_support_reliance"]
+
+
+def conclusion_text(supports: bool | None) -> str | None:
+    """``supports_reliance``, ``does_not_support_reliance``, or None without a judgement."""
+    if supports is None:
+        return None
+    return CONCLUSIONS[0] if supports else CONCLUSIONS[1]
+
+
+def conclusion_field(
+    supports: Callable[[Any], bool | None] = lambda result: result.supports_reliance,
+    *,
+    description: str | None = "Present only when tolerable_rate is given.",
+    required: bool = False,
+) -> fields.Function:
+    """The answer's ``conclusion``, read from the result by ``supports``."""
+    metadata: dict[str, Any] = {"type": "string", "enum": list(CONCLUSIONS)}
+    if description is not None:
+        metadata["description"] = description
+    return fields.Function(
+        lambda result: conclusion_text(supports(result)), required=required, metadata=metadata
+    )
+
+
+def summary_field(summary: Callable[[Any], str]) -> fields.Function:
+    """The answer's ``summary``: one plain-English paragraph, ending with the caution."""
+    return fields.Function(
+        summary,
+        required=True,
+        metadata={"type": "string", "description": "Plain-English paragraph."},
+    )

@@ -13,7 +13,12 @@ from marshmallow import (
     validates_schema,
 )
 
-from schemas.common import PopulationSchema, ResultSchema, StrictSchema
+from schemas.common import (
+    PopulationSchema,
+    ResultSchema,
+    StrictSchema,
+    summary_field,
+)
 from schemas.fields import Rate, StrictInteger, StrictString
 from service.sampling.attributes import SampleSizePlan
 from service.sampling.curves import (
@@ -170,11 +175,7 @@ class CurveSchema(ResultSchema):
             "there)."
         }
     )
-    summary = fields.Function(
-        curve_summary,
-        required=True,
-        metadata={"type": "string", "description": "Plain-English paragraph."},
-    )
+    summary = summary_field(curve_summary)
     warnings = fields.List(fields.String(), required=True)
 
 

@@ -12,8 +12,13 @@ from marshmallow import (
     validate,
 )
 
-from schemas.common import PopulationSchema, ResultSchema, StrictSchema
-from schemas.fields import Rate, StrictFloat, StrictString
+from schemas.common import (
+    PopulationSchema,
+    ResultSchema,
+    StrictSchema,
+    summary_field,
+)
+from schemas.fields import Rate, StrictFloat, StrictString, confidence_field
 from service.sampling.estimation import MAX_CONFIDENCE, METHODS, MIN_CONFIDENCE, MIN_MARGIN
 from service.sampling.wording import CAUTION, percent
 
@@ -88,18 +93,13 @@ class EstimationRequest(StrictSchema):
             "example": 0.05,
         },
     )
-    confidence = Rate(
-        load_default=0.95,
+    confidence = confidence_field(
+        "Probability, as a fraction, that the sample rate lands within the margin of the "
+        "true rate.",
+        bounds=(MIN_CONFIDENCE, MAX_CONFIDENCE),
         validate=validate.Range(
             MIN_CONFIDENCE, MAX_CONFIDENCE, error="must be from {min} to {max}; got {input}"
         ),
-        metadata={
-            "minimum": MIN_CONFIDENCE,
-            "maximum": MAX_CONFIDENCE,
-            "description": "Probability, as a fraction, that the sample rate lands within "
-            "the margin of the true rate.",
-            "example": 0.95,
-        },
     )
     anticipated_rate = Rate(
         metadata={
@@ -201,11 +201,7 @@ class EstimationSchema(ResultSchema):
             "for, the smallest of those.",
         },
     )
-    summary = fields.Function(
-        lambda result: estimation_summary(result),
-        required=True,
-        metadata={"type": "string", "description": "Plain-English paragraph."},
-    )
+    summary = summary_field(lambda result: estimation_summary(result))
 
 
 # --- summary ----------------------------------------------------------------

@@ -14,9 +14,11 @@ import re
 from decimal import Decimal
 from typing import Any
 
-from marshmallow import fields
+from marshmallow import fields, validate
 
+from service.sampling.attributes import MAX_CONFIDENCE, MIN_CONFIDENCE, MIN_TOLERABLE_RATE
 from service.sampling.rates import MAX_SIGNIFICANT_DIGITS, WrittenDecimal, significant_digits
+from service.sampling.selection import MAX_SEED_LENGTH
 
 # Largest integer a JSON number carries exactly in every mainstream client
 # (IEEE double precision); larger counts are refused rather than rounded.
@@ -241,3 +243,106 @@ class Amount(fields.Field):  # type: ignore[type-arg]
 
     def _serialize(self, value: Any, attr: str | None, obj: Any, **kwargs: Any) -> str | None:
         return None if value is None else str(value)
+
+
+# --------------------------------------------------------------------------- factories
+# The fields many requests share, declared once: the same bounds, messages and
+# descriptions wherever they appear, so the published contract reads the same everywhere.
+
+CONFIDENCE_DESCRIPTION = "Confidence, one minus the risk of overreliance, as a fraction."
+_AT_LEAST = "must be at least {min}"
+
+
+def _metadata(description: str, example: Any, **bounds: Any) -> dict[str, Any]:
+    """Bounds first, then the description and the example (when there is one)."""
+    metadata = {name: value for name, value in bounds.items() if value is not None}
+    metadata["description"] = description
+    if example is not None:
+        metadata["example"] = example
+    return metadata
+
+
+def confidence_field(
+    description: str = CONFIDENCE_DESCRIPTION,
+    *,
+    bounds: tuple[float, float] | None = (MIN_CONFIDENCE, MAX_CONFIDENCE),
+    **kwargs: Any,
+) -> Rate:
+    """``confidence``: a fraction, 0.95 by default; ``bounds`` publishes the range the core
+    accepts (by default the attribute-sampling core's,
+    :data:`~service.sampling.attributes.MIN_CONFIDENCE` to
+    :data:`~service.sampling.attributes.MAX_CONFIDENCE`)."""
+    low, high = bounds if bounds is not None else (None, None)
+    return Rate(
+        load_default=0.95,
+        metadata=_metadata(description, 0.95, minimum=low, maximum=high),
+        **kwargs,
+    )
+
+
+def tolerable_rate_field(
+    description: str, *, example: float | None = 0.05, required: bool = False, **kwargs: Any
+) -> Rate:
+    """``tolerable_rate``: a fraction of at least
+    :data:`~service.sampling.attributes.MIN_TOLERABLE_RATE`."""
+    extra = kwargs.pop("metadata", {})
+    metadata = {"minimum": MIN_TOLERABLE_RATE, **extra, **_metadata(description, example)}
+    return Rate(required=required, metadata=metadata, **kwargs)
+
+
+def expected_rate_field(
+    description: str, *, example: float | None = 0.01, default: bool = True
+) -> Rate:
+    """``expected_rate``: a fraction from 0, 0 by default unless ``default`` is false."""
+    if default:
+        return Rate(allow_zero=True, load_default=0.0, metadata=_metadata(description, example))
+    return Rate(allow_zero=True, metadata=_metadata(description, example))
+
+
+def count_field(
+    description: str, *, minimum: int = 0, example: int | None = None, **kwargs: Any
+) -> StrictInteger:
+    """A whole number of at least ``minimum`` (items, deviations, stages)."""
+    extra = kwargs.pop("metadata", {})
+    return StrictInteger(
+        validate=validate.Range(min=minimum, error=_AT_LEAST),
+        metadata={**_metadata(description, example), **extra},
+        **kwargs,
+    )
+
+
+def label_field(
+    description: str, *, example: str | None = None, longest: int = 200, **kwargs: Any
+) -> StrictString:
+    """A non-empty name of at most ``longest`` characters (a stratum, an attribute)."""
+    return StrictString(
+        validate=validate.Length(
+            min=1, max=longest, error="must be from {min} to {max} characters"
+        ),
+        metadata=_metadata(description, example),
+        **kwargs,
+    )
+
+
+def seed_field(description: str, *, example: str) -> StrictString:
+    """``seed``: any text of 1 to :data:`~service.sampling.selection.MAX_SEED_LENGTH`
+    characters, used as given."""
+    return StrictString(
+        validate=validate.Length(
+            min=1, max=MAX_SEED_LENGTH, error="must have {min} to {max} characters"
+        ),
+        metadata=_metadata(description, example),
+    )
+
+
+def choice_field(
+    names: Any, description: str | None = None, *, default: str | None = None, **kwargs: Any
+) -> StrictString:
+    """One of ``names`` (a method, a frequency); ``default`` when left out."""
+    if default is not None:
+        kwargs["load_default"] = default
+    if description is not None:
+        kwargs["metadata"] = {"description": description, **kwargs.get("metadata", {})}
+    return StrictString(
+        validate=validate.OneOf(names, error="must be one of {choices}"), **kwargs
+    )

@@ -22,8 +22,13 @@ from schemas.fields import (
     Rate,
     StrictInteger,
     StrictString,
+    choice_field,
+    confidence_field,
+    count_field,
     json_kind,
+    seed_field,
 )
+from schemas.populations import FilePopulationSchema
 from service.sampling.monetary.amounts import DEFAULT_SCALE, MAX_SCALE, fraction_text
 from service.sampling.monetary.evaluation import (
     DIRECTIONS,
@@ -31,6 +36,7 @@ from service.sampling.monetary.evaluation import (
     MonetaryEvaluation,
 )
 from service.sampling.monetary.evaluation import METHODS as EVALUATION_METHODS
+from service.sampling.monetary.files import MonetaryFileSelection
 from service.sampling.monetary.selection import METHODS as SELECTION_METHODS
 from service.sampling.monetary.selection import MonetarySelection
 from service.sampling.monetary.sizing import METHODS as SIZING_METHODS
@@ -41,7 +47,6 @@ from service.sampling.monetary.wording import (
     plan_summary,
     selection_summary,
 )
-from service.sampling.selection import MAX_SEED_LENGTH
 
 
 def _amount(description: str, example: str, **kwargs: Any) -> Amount:
@@ -64,21 +69,13 @@ def _decimals() -> StrictInteger:
 
 
 def _confidence() -> Rate:
-    return Rate(
-        load_default=0.95,
-        metadata={
-            "description": "Confidence, one minus the risk of incorrect acceptance.",
-            "example": 0.95,
-        },
+    return confidence_field(
+        "Confidence, one minus the risk of incorrect acceptance.", bounds=None
     )
 
 
 def _choice(names: tuple[str, ...], default: str, description: str) -> StrictString:
-    return StrictString(
-        load_default=default,
-        validate=validate.OneOf(names, error="must be one of {choices}"),
-        metadata={"description": f"{description} Default: {default}."},
-    )
+    return choice_field(names, f"{description} Default: {default}.", default=default)
 
 
 def _money(description: str = "", **kwargs: Any) -> fields.String:
@@ -292,6 +289,30 @@ def _plain_item(entry: Any) -> dict[str, Any] | None:
     return None
 
 
+def _sample_size() -> StrictInteger:
+    return count_field(
+        "Sampling units, individually significant items included.",
+        minimum=1,
+        example=60,
+        required=True,
+    )
+
+
+def _seed() -> StrictString:
+    return seed_field(
+        "Seed of the random stream; generated when absent.", example="kestrel-2026-ar"
+    )
+
+
+def _selection_method() -> StrictString:
+    return _choice(
+        SELECTION_METHODS,
+        "fixed_interval",
+        "fixed_interval (random start, then every interval-th unit), cell (one random unit in "
+        "each interval) or random_units (independent units, with replacement).",
+    )
+
+
 class MonetarySelectionRequest(StrictSchema):
     """Selection of currency units, re-performable from the seed."""
 
@@ -302,30 +323,39 @@ class MonetarySelectionRequest(StrictSchema):
         validate=validate.Length(min=1, error="must list at least one item"),
         metadata={"description": 'The items, each {"id", "amount"}, in any order.'},
     )
-    sample_size = StrictInteger(
-        required=True,
-        validate=validate.Range(min=1, error="must be at least {min}"),
-        metadata={
-            "description": "Sampling units, individually significant items included.",
-            "example": 60,
-        },
-    )
-    seed = StrictString(
-        validate=validate.Length(
-            min=1, max=MAX_SEED_LENGTH, error="must have {min} to {max} characters"
-        ),
-        metadata={
-            "description": "Seed of the random stream; generated when absent.",
-            "example": "kestrel-2026-ar",
-        },
-    )
-    method = _choice(
-        SELECTION_METHODS,
-        "fixed_interval",
-        "fixed_interval (random start, then every interval-th unit), cell (one random unit in "
-        "each interval) or random_units (independent units, with replacement).",
-    )
+    sample_size = _sample_size()
+    seed = _seed()
+    method = _selection_method()
     currency_decimals = _decimals()
+
+
+class MonetaryFileSelectionRequest(StrictSchema):
+    """Selection of currency units from a population file, re-performable from the seed."""
+
+    population = fields.Nested(
+        FilePopulationSchema,
+        required=True,
+        metadata={
+            "description": "The population file sent as the file part of the "
+            "multipart/form-data request, described as population.file: id_column and "
+            "amount_column are required. Each record kept gives the item {id, amount}, so "
+            "the file selects exactly as the same items sent as a JSON list, whatever its "
+            "format or row order.",
+        },
+    )
+    sample_size = _sample_size()
+    seed = _seed()
+    method = _selection_method()
+    currency_decimals = _decimals()
+
+
+_RECORD = {
+    "type": "object",
+    "additionalProperties": {"type": "string"},
+    "description": "File populations only: the item's record, every column's text as "
+    'written in the file (blank cells as "").',
+}
+_WHERE = {"description": 'File populations only: where the record is in the file ("line 12").'}
 
 
 class SelectedItemSchema(Schema):
@@ -333,6 +363,8 @@ class SelectedItemSchema(Schema):
 
     id = fields.String(required=True)
     amount = _money()
+    where = fields.String(metadata=_WHERE)
+    record = fields.Dict(keys=fields.String(), values=fields.String(), metadata=_RECORD)
     hits = fields.Integer(required=True)
     units = fields.List(
         fields.Integer(),
@@ -349,10 +381,23 @@ class SignificantItemSchema(Schema):
 
     id = fields.String(required=True)
     amount = _money()
+    where = fields.String(metadata=_WHERE)
+    record = fields.Dict(keys=fields.String(), values=fields.String(), metadata=_RECORD)
+
+
+class ExcludedRecordSchema(Schema):
+    """A record with a zero or negative amount, not sampled by amount."""
+
+    id = fields.String(required=True)
+    amount = _money()
+    where = fields.String(required=True, metadata=_WHERE)
+    record = fields.Dict(keys=fields.String(), values=fields.String(), metadata=_RECORD)
 
 
 class MonetarySelectionSchema(ResultSchema):
     """A monetary-unit selection and what re-performs it."""
+
+    absent_when_none = ("columns", "excluded_records")
 
     items = fields.List(fields.Nested(SelectedItemSchema), required=True)
     individually_significant = fields.List(fields.Nested(SignificantItemSchema), required=True)
@@ -377,6 +422,18 @@ class MonetarySelectionSchema(ResultSchema):
     population_fingerprint = fields.String(required=True)
     selection_fingerprint = fields.String(required=True)
     currency_decimals = fields.Integer(required=True)
+    columns = fields.List(
+        fields.String(),
+        metadata={"description": "File populations only: the file's column names, in its order."},
+    )
+    excluded_records = fields.List(
+        fields.Nested(ExcludedRecordSchema),
+        metadata={
+            "description": "File populations only: the records with a zero or negative "
+            "amount (the first 20 in identifier order; excluded_count counts them all), "
+            "which need a procedure of their own."
+        },
+    )
     summary = fields.String(required=True)
     warnings = fields.List(fields.String(), required=True)
 
@@ -384,6 +441,14 @@ class MonetarySelectionSchema(ResultSchema):
     def _view(self, result: SelectionAnswer, **kwargs: Any) -> dict[str, Any]:
         chosen = result.selection
         s = chosen.scale
+        file = result.file
+
+        def located(identifier: str) -> dict[str, Any]:
+            if file is None:
+                return {}
+            found = file.records[identifier]
+            return {"where": found.where, "record": found.values}
+
         return {
             "items": [
                 {
@@ -391,12 +456,25 @@ class MonetarySelectionSchema(ResultSchema):
                     "amount": money_text(item.amount, s),
                     "hits": item.hits,
                     "units": list(item.units),
+                    **located(item.id),
                 }
                 for item in chosen.items
             ],
             "individually_significant": [
-                {"id": identifier, "amount": money_text(amount, s)}
+                {"id": identifier, "amount": money_text(amount, s), **located(identifier)}
                 for identifier, amount in chosen.individually_significant
+            ],
+            "columns": None if file is None else list(file.columns),
+            "excluded_records": None
+            if file is None
+            else [
+                {
+                    "id": found.id,
+                    "amount": money_text(amount, s),
+                    "where": found.where,
+                    "record": found.values,
+                }
+                for found, amount in file.excluded
             ],
             "sample_size": chosen.sample_size,
             "units_drawn": chosen.units_drawn,
@@ -425,6 +503,7 @@ class SelectionAnswer:
 
     selection: MonetarySelection
     seed_generated: bool
+    file: MonetaryFileSelection | None = None
 
 
 # --------------------------------------------------------------------------- evaluation
@@ -436,11 +515,7 @@ class MisstatementSchema(StrictSchema):
     id = StrictString(required=True, validate=validate.Length(min=1, error="must not be empty"))
     book_amount = _amount("Recorded amount of the item, above 0.", "4000.00", required=True)
     audited_amount = _amount("Amount found by the auditor.", "2000.00", required=True)
-    hits = StrictInteger(
-        load_default=1,
-        validate=validate.Range(min=1, error="must be at least {min}"),
-        metadata={"description": "Sampling units that hit the item. Default 1."},
-    )
+    hits = count_field("Sampling units that hit the item. Default 1.", minimum=1, load_default=1)
     individually_significant = fields.Boolean(
         load_default=False,
         metadata={
@@ -459,12 +534,8 @@ class MonetaryEvaluationRequest(StrictSchema):
         "2500000.00",
         required=True,
     )
-    sample_size = StrictInteger(
-        validate=validate.Range(min=1, error="must be at least {min}"),
-        metadata={
-            "description": "Sampling units drawn (give this or sampling_interval).",
-            "example": 60,
-        },
+    sample_size = count_field(
+        "Sampling units drawn (give this or sampling_interval).", minimum=1, example=60
     )
     sampling_interval = _amount(
         "Sampling interval (give this or sample_size); with both, it must equal "

@@ -7,9 +7,20 @@ from typing import Any
 from marshmallow import ValidationError, fields, post_load, validate, validates_schema
 
 from schemas.attributes import SampleSizePlanSchema
-from schemas.common import ResultSchema, StrictSchema
-from schemas.fields import Rate, StrictInteger, StrictString
-from service.sampling.attributes import MAX_CONFIDENCE, MIN_CONFIDENCE, MIN_TOLERABLE_RATE
+from schemas.common import (
+    ResultSchema,
+    StrictSchema,
+    rates_in_order,
+    summary_field,
+)
+from schemas.fields import (
+    StrictInteger,
+    choice_field,
+    confidence_field,
+    count_field,
+    expected_rate_field,
+    tolerable_rate_field,
+)
 from service.sampling.plans.periodic import DEFAULT_CONVENTIONS, FREQUENCIES, MAX_OCCURRENCES
 from service.sampling.plans.wording import periodic_summary
 
@@ -24,16 +35,8 @@ _TABLE = "; ".join(
 class CommonPracticeSchema(StrictSchema):
     """The engagement's own range of sample sizes for this frequency."""
 
-    low = StrictInteger(
-        required=True,
-        validate=validate.Range(min=1, error="must be at least {min}"),
-        metadata={"description": "Smallest size used.", "example": 2},
-    )
-    high = StrictInteger(
-        required=True,
-        validate=validate.Range(min=1, error="must be at least {min}"),
-        metadata={"description": "Largest size used.", "example": 5},
-    )
+    low = count_field("Smallest size used.", minimum=1, example=2, required=True)
+    high = count_field("Largest size used.", minimum=1, example=5, required=True)
 
     @validates_schema
     def _ordered(self, data: dict[str, Any], **kwargs: Any) -> None:
@@ -45,10 +48,11 @@ class CommonPracticeSchema(StrictSchema):
 class PeriodicRequest(StrictSchema):
     """A periodic control: its frequency and the rates to judge it by."""
 
-    frequency = StrictString(
+    frequency = choice_field(
+        FREQUENCIES,
+        "How often the control runs.",
         required=True,
-        validate=validate.OneOf(FREQUENCIES, error="must be one of {choices}"),
-        metadata={"description": "How often the control runs.", "example": "monthly"},
+        metadata={"example": "monthly"},
     )
     occurrences = StrictInteger(
         validate=validate.Range(min=1, max=MAX_OCCURRENCES, error="must be from {min} to {max}"),
@@ -58,31 +62,13 @@ class PeriodicRequest(StrictSchema):
             "example": 12,
         },
     )
-    tolerable_rate = Rate(
-        required=True,
-        metadata={
-            "minimum": MIN_TOLERABLE_RATE,
-            "description": "Tolerable deviation rate.",
-            "example": 0.10,
-        },
+    tolerable_rate = tolerable_rate_field(
+        "Tolerable deviation rate.", example=0.10, required=True
     )
-    expected_rate = Rate(
-        allow_zero=True,
-        load_default=0.0,
-        metadata={
-            "description": "Expected deviation rate of the statistical plan.",
-            "example": 0.0,
-        },
+    expected_rate = expected_rate_field(
+        "Expected deviation rate of the statistical plan.", example=0.0
     )
-    confidence = Rate(
-        load_default=0.95,
-        metadata={
-            "minimum": MIN_CONFIDENCE,
-            "maximum": MAX_CONFIDENCE,
-            "description": "Confidence, one minus the risk of overreliance.",
-            "example": 0.95,
-        },
-    )
+    confidence = confidence_field()
     common_practice = fields.Nested(
         CommonPracticeSchema,
         metadata={
@@ -93,12 +79,7 @@ class PeriodicRequest(StrictSchema):
 
     @validates_schema
     def _expected_below_tolerable(self, data: dict[str, Any], **kwargs: Any) -> None:
-        tolerable, expected = data.get("tolerable_rate"), data.get("expected_rate")
-        if tolerable is not None and expected is not None and expected >= tolerable:
-            raise ValidationError(
-                f"expected_rate {expected!r} must be below tolerable_rate {tolerable!r}",
-                "expected_rate",
-            )
+        rates_in_order(data)
 
     @post_load
     def _to_core(self, data: dict[str, Any], **kwargs: Any) -> dict[str, Any]:
@@ -192,9 +173,5 @@ class PeriodicPlanSchema(ResultSchema):
         },
     )
     sizes = fields.List(fields.Nested(SizeMeaningSchema), required=True)
-    summary = fields.Function(
-        periodic_summary,
-        required=True,
-        metadata={"type": "string", "description": "Plain-English paragraph."},
-    )
+    summary = summary_field(periodic_summary)
     warnings = fields.List(fields.String(), required=True)

@@ -11,53 +11,41 @@ from typing import Any
 
 from marshmallow import ValidationError, fields, post_load, validate, validates_schema
 
-from schemas.common import ResultSchema, StrictSchema
-from schemas.fields import Rate, StrictFloat, StrictInteger, StrictString
-from service.sampling.attributes import MIN_TOLERABLE_RATE
+from schemas.common import (
+    ResultSchema,
+    StrictSchema,
+    conclusion_field,
+    rates_in_order,
+    summary_field,
+)
+from schemas.fields import (
+    StrictFloat,
+    StrictInteger,
+    choice_field,
+    count_field,
+    expected_rate_field,
+    label_field,
+    tolerable_rate_field,
+)
 from service.sampling.errors import InvalidInput
 from service.sampling.plans.bayesian import PRIOR_TYPES, BetaPrior, beta_prior
 from service.sampling.plans.multiple import AttributeFindings, AttributeRates
 from service.sampling.plans.wording import several_evaluation_summary, several_plan_summary
 from service.sampling.wording import NEXT_STEPS
 
-_NAME: dict[str, Any] = {
-    "validate": validate.Length(min=1, max=200, error="must be 1 to {max} characters"),
-}
-
 
 class AttributeRatesSchema(StrictSchema):
     """One attribute tested on the shared sample, with its own rates."""
 
-    name = StrictString(
-        required=True,
-        **_NAME,
-        metadata={"description": "The attribute, in plain words.", "example": "approval"},
-    )
-    tolerable_rate = Rate(
-        required=True,
-        metadata={
-            "minimum": MIN_TOLERABLE_RATE,
-            "description": "Tolerable deviation rate.",
-            "example": 0.05,
-        },
-    )
-    expected_rate = Rate(
-        allow_zero=True,
-        load_default=0.0,
-        metadata={
-            "description": "Expected population deviation rate, below tolerable_rate.",
-            "example": 0.0,
-        },
+    name = label_field("The attribute, in plain words.", example="approval", required=True)
+    tolerable_rate = tolerable_rate_field("Tolerable deviation rate.", required=True)
+    expected_rate = expected_rate_field(
+        "Expected population deviation rate, below tolerable_rate.", example=0.0
     )
 
     @validates_schema
     def _expected_below_tolerable(self, data: dict[str, Any], **kwargs: Any) -> None:
-        tolerable, expected = data.get("tolerable_rate"), data.get("expected_rate")
-        if tolerable is not None and expected is not None and expected >= tolerable:
-            raise ValidationError(
-                f"expected_rate {expected!r} must be below tolerable_rate {tolerable!r}",
-                "expected_rate",
-            )
+        rates_in_order(data)
 
     @post_load
     def _to_core(self, data: dict[str, Any], **kwargs: Any) -> AttributeRates:
@@ -67,24 +55,9 @@ class AttributeRatesSchema(StrictSchema):
 class AttributeFindingsSchema(StrictSchema):
     """One attribute of a finished test: the deviations found for it."""
 
-    name = StrictString(
-        required=True,
-        **_NAME,
-        metadata={"description": "The attribute, in plain words.", "example": "approval"},
-    )
-    deviations = StrictInteger(
-        required=True,
-        validate=validate.Range(min=0, error="must be at least {min}"),
-        metadata={"description": "Deviations found for this attribute.", "example": 0},
-    )
-    tolerable_rate = Rate(
-        required=True,
-        metadata={
-            "minimum": MIN_TOLERABLE_RATE,
-            "description": "Tolerable deviation rate.",
-            "example": 0.05,
-        },
-    )
+    name = label_field("The attribute, in plain words.", example="approval", required=True)
+    deviations = count_field("Deviations found for this attribute.", example=0, required=True)
+    tolerable_rate = tolerable_rate_field("Tolerable deviation rate.", required=True)
 
     @post_load
     def _to_core(self, data: dict[str, Any], **kwargs: Any) -> AttributeFindings:
@@ -94,20 +67,16 @@ class AttributeFindingsSchema(StrictSchema):
 class PriorSchema(StrictSchema):
     """Prior evidence on the deviation rate, as a beta prior."""
 
-    type = StrictString(
+    type = choice_field(
+        PRIOR_TYPES,
+        "uniform: Beta(1, 1). expected_rate: the uniform prior plus strength items seen at "
+        "expected_rate, Beta(1 + e·s, 1 + (1 − e)·s). previous_sample: an earlier sample of "
+        "sample_size items with deviations, discounted by weight, Beta(1 + w·d, 1 + w·(n − d)).",
         required=True,
-        validate=validate.OneOf(PRIOR_TYPES, error="must be one of {choices}"),
-        metadata={
-            "description": "uniform: Beta(1, 1). expected_rate: the uniform prior plus "
-            "strength items seen at expected_rate, Beta(1 + e·s, 1 + (1 − e)·s). "
-            "previous_sample: an earlier sample of sample_size items with deviations, "
-            "discounted by weight, Beta(1 + w·d, 1 + w·(n − d)).",
-            "example": "previous_sample",
-        },
+        metadata={"example": "previous_sample"},
     )
-    expected_rate = Rate(
-        allow_zero=True,
-        metadata={"description": "expected_rate prior: the rate the evidence points to."},
+    expected_rate = expected_rate_field(
+        "expected_rate prior: the rate the evidence points to.", example=None, default=False
     )
     strength = StrictFloat(
         metadata={
@@ -265,18 +234,8 @@ class SeveralAttributesPlanSchema(ResultSchema):
     population_label = fields.String()
     whole_population = fields.Boolean(required=True)
     attributes = fields.List(fields.Nested(AttributePlanSchema), required=True)
-    summary = fields.Function(
-        several_plan_summary,
-        required=True,
-        metadata={"type": "string", "description": "Plain-English paragraph."},
-    )
+    summary = summary_field(several_plan_summary)
     warnings = fields.List(fields.String(), required=True)
-
-
-def _conclusion(supports: bool | None) -> str | None:
-    if supports is None:
-        return None
-    return "supports_reliance" if supports else "does_not_support_reliance"
 
 
 class AttributeEvaluationSchema(ResultSchema):
@@ -300,10 +259,8 @@ class AttributeEvaluationSchema(ResultSchema):
     risk_at_tolerable_rate = fields.Float(
         required=True, attribute="evaluation.risk_at_tolerable_rate"
     )
-    conclusion = fields.Function(
-        lambda item: _conclusion(item.evaluation.supports_reliance),
-        required=True,
-        metadata={"type": "string", "enum": ["supports_reliance", "does_not_support_reliance"]},
+    conclusion = conclusion_field(
+        lambda item: item.evaluation.supports_reliance, description=None, required=True
     )
 
 
@@ -318,14 +275,8 @@ class SeveralAttributesEvaluationSchema(ResultSchema):
     population_size = fields.Integer(required=True, allow_none=True)
     population_label = fields.String()
     attributes = fields.List(fields.Nested(AttributeEvaluationSchema), required=True)
-    conclusion = fields.Function(
-        lambda result: _conclusion(result.supports_reliance),
-        required=True,
-        metadata={
-            "type": "string",
-            "enum": ["supports_reliance", "does_not_support_reliance"],
-            "description": "supports_reliance when every attribute's result does.",
-        },
+    conclusion = conclusion_field(
+        description="supports_reliance when every attribute's result does.", required=True
     )
     attributes_not_supporting = fields.List(
         fields.String(),
@@ -343,11 +294,7 @@ class SeveralAttributesEvaluationSchema(ResultSchema):
             "otherwise.",
         },
     )
-    summary = fields.Function(
-        several_evaluation_summary,
-        required=True,
-        metadata={"type": "string", "description": "Plain-English paragraph."},
-    )
+    summary = summary_field(several_evaluation_summary)
     warnings = fields.List(fields.String(), required=True)
 
 

@@ -19,13 +19,25 @@ from typing import Any, ClassVar
 
 from marshmallow import ValidationError, fields, post_load, validate, validates_schema
 
-from schemas.common import ResultSchema, StrictSchema
-from schemas.fields import StrictInteger, StrictString, json_kind
+from schemas.common import (
+    ResultSchema,
+    StrictSchema,
+    summary_field,
+)
+from schemas.fields import (
+    StrictInteger,
+    StrictString,
+    choice_field,
+    count_field,
+    json_kind,
+    seed_field,
+)
 from service.sampling.populations.amounts import MAX_PLACES, STYLES
 from service.sampling.populations.filters import COMPARISONS, MAX_IN_VALUES, Filter
 from service.sampling.populations.profile import PopulationProfile
 from service.sampling.populations.reading import DELIMITERS, FORMATS, PopulationFile
 from service.sampling.selection import MAX_IDENTIFIER_LENGTH
+from service.sampling.selection import METHODS as SELECTION_METHODS
 from service.sampling.wording import CAUTION
 
 _PLAIN = re.compile(rf"-?\d{{1,28}}(\.\d{{1,{MAX_PLACES}}})?")
@@ -71,6 +83,8 @@ _NAME = validate.Length(min=1, max=MAX_NAME, error="must have between {min} and 
 
 class Amount(fields.Field[Decimal]):
     """An exact amount: a string in plain decimal notation, or a JSON number."""
+
+    accepts_text = True  # the command line sends table cells for this field as they are
 
     default_error_messages = {  # noqa: RUF012 - marshmallow's documented extension point
         "invalid": "must be an amount (a number, or a string such as \"1234.56\"), not {kind}",
@@ -263,10 +277,8 @@ class ProfileRequest(StrictSchema):
         metadata={"description": "The ledger's total of the population, to reconcile with "
                   "(needs amount_column).", "example": "1284411.37"},
     )
-    control_count = StrictInteger(
-        validate=validate.Range(min=0, error="must be at least {min}"),
-        metadata={"description": "The ledger's count of records in the population.",
-                  "example": 4200},
+    control_count = count_field(
+        "The ledger's count of records in the population.", example=4200
     )
     strata = StrictInteger(
         validate=validate.Range(min=1, max=20, error="must be from {min} to {max}"),
@@ -482,9 +494,7 @@ class ProfileSchema(ResultSchema):
     amounts = fields.Nested(AmountSummarySchema, attribute="profile.amounts")
     reconciliation = fields.Nested(ReconciliationSchema, attribute="profile.reconciliation")
     strata = fields.Nested(StrataSuggestionSchema, attribute="profile.strata")
-    summary = fields.Function(
-        profile_summary, required=True, metadata={"type": "string"}
-    )
+    summary = summary_field(profile_summary)
     warnings = fields.Function(
         profile_warnings,
         required=True,
@@ -540,21 +550,23 @@ class StratifiedRequest(StrictSchema):
 
     population = fields.Nested(FilePopulationSchema, required=True)
     strata = fields.Nested(StrataSchema, required=True)
-    sample_size = StrictInteger(
+    sample_size = count_field(
+        "Records to select from the strata below the top stratum.",
+        minimum=1,
+        example=40,
         required=True,
-        validate=validate.Range(min=1, error="must be at least {min}"),
-        metadata={"description": "Records to select from the strata below the top stratum.",
-                  "example": 40},
     )
-    seed = StrictString(
-        validate=validate.Length(min=1, max=256),
-        metadata={"description": "Any text; each stratum's seed is derived from it. Absent: "
-                  "the service generates one and returns it.",
-                  "example": "harbour-lane-2026-q3"},
+    seed = seed_field(
+        "Any text; each stratum's seed is derived from it. Absent: the service generates one "
+        "and returns it.",
+        example="harbour-lane-2026-q3",
     )
-    method = StrictString(
-        load_default="random",
-        validate=validate.OneOf(("random", "systematic"), error="must be one of {choices}"),
+    method = choice_field(
+        SELECTION_METHODS,
+        "Within each stratum, random: simple random sampling without replacement; "
+        "systematic: one record per interval of stratum size / stratum sample size from a "
+        "random start. Default: random.",
+        default="random",
     )
 
     @validates_schema
@@ -652,7 +664,7 @@ class StratifiedSchema(ResultSchema):
                   "population and selection fingerprints, and the selected items, where "
                   "each is in the file, and the records, in draw order."},
     )
-    summary = fields.Function(stratified_summary, required=True, metadata={"type": "string"})
+    summary = summary_field(stratified_summary)
     warnings = fields.Function(
         stratified_warnings, required=True,
         metadata={"type": "array", "items": {"type": "string"}},

@@ -23,7 +23,11 @@ from marshmallow import (
     validates_schema,
 )
 
-from schemas.common import ResultSchema, StrictSchema
+from schemas.common import (
+    ResultSchema,
+    StrictSchema,
+    summary_field,
+)
 from schemas.fields import MAX_EXACT_INTEGER, StrictInteger, StrictString, json_kind
 from schemas.populations import PopulationFileSchema
 from schemas.test_sheet_fields import AttributeNames
@@ -593,11 +597,7 @@ class SelectionSchema(ResultSchema):
             "the file, to pull the documents in file order.",
         },
     )
-    summary = fields.Function(
-        selection_summary,
-        required=True,
-        metadata={"type": "string", "description": "Plain-English paragraph."},
-    )
+    summary = summary_field(selection_summary)
     warnings = fields.Function(
         selection_warnings,
         required=True,

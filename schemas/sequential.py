@@ -6,16 +6,31 @@ from typing import Any
 
 from marshmallow import Schema, ValidationError, fields, post_load, validate, validates_schema
 
-from schemas.attributes import METHOD_NAMES, EvaluationSchema, _confidence, _flatten_population
-from schemas.common import PopulationSchema, ResultSchema, StrictSchema
-from schemas.fields import Rate, StrictInteger, StrictString
-from service.sampling.attributes import MIN_TOLERABLE_RATE
+from schemas.attributes import METHOD_NAMES, EvaluationSchema, _flatten_population
+from schemas.common import (
+    PopulationSchema,
+    ResultSchema,
+    StrictSchema,
+    check_rates_in_order,
+    conclusion_field,
+    rates_in_order,
+    summary_field,
+)
+from schemas.fields import (
+    StrictInteger,
+    StrictString,
+    choice_field,
+    confidence_field,
+    count_field,
+    expected_rate_field,
+    tolerable_rate_field,
+)
+from schemas.strata import check_strata, strata_field
 from service.sampling.sequential.anytime import MAX_RESULTS
 from service.sampling.sequential.curve import DEFAULT_POINTS as CURVE_DEFAULT_POINTS
 from service.sampling.sequential.curve import MAX_POINTS as CURVE_MAX_POINTS
 from service.sampling.sequential.curve import MIN_POINTS as CURVE_MIN_POINTS
-from service.sampling.sequential.staged import MAX_STAGES, MIN_STAGES, Stage
-from service.sampling.sequential.strata import MAX_STRATA, StratumInput
+from service.sampling.sequential.staged import MAX_STAGES, MIN_STAGES, Stage, StagedPlan
 from service.sampling.sequential.wording import (
     SEQUENCE_GUARANTEE,
     STRATA_GUARANTEE,
@@ -26,20 +41,13 @@ from service.sampling.sequential.wording import (
     strata_summary,
 )
 
-_METHOD: dict[str, Any] = {
-    "validate": validate.OneOf(METHOD_NAMES, error="must be one of {choices}"),
-    "metadata": {
-        "description": "Distribution used: hypergeometric (finite population, without "
-        "replacement across stages), binomial, or poisson. Default: hypergeometric when "
-        "population.size is given, else binomial."
-    },
-}
 
-
-def _tolerable(description: str) -> Rate:
-    return Rate(
-        required=True,
-        metadata={"minimum": MIN_TOLERABLE_RATE, "description": description, "example": 0.05},
+def _method() -> StrictString:
+    return choice_field(
+        METHOD_NAMES,
+        "Distribution used: hypergeometric (finite population, without replacement across "
+        "stages), binomial, or poisson. Default: hypergeometric when population.size is "
+        "given, else binomial.",
     )
 
 
@@ -50,18 +58,15 @@ class StagedPlanRequest(StrictSchema):
         PopulationSchema,
         metadata={"description": "Absent for a population large enough to ignore its size."},
     )
-    tolerable_rate = _tolerable("Tolerable deviation rate, as a fraction.")
-    expected_rate = Rate(
-        allow_zero=True,
-        load_default=0.0,
-        metadata={
-            "description": "Expected population deviation rate, as a fraction, below "
-            "tolerable_rate: the expected sample size is minimised at this rate.",
-            "example": 0.01,
-        },
+    tolerable_rate = tolerable_rate_field(
+        "Tolerable deviation rate, as a fraction.", required=True
     )
-    confidence = _confidence()
-    method = StrictString(**_METHOD)
+    expected_rate = expected_rate_field(
+        "Expected population deviation rate, as a fraction, below tolerable_rate: the "
+        "expected sample size is minimised at this rate."
+    )
+    confidence = confidence_field()
+    method = _method()
     max_stages = StrictInteger(
         load_default=2,
         validate=validate.Range(
@@ -72,12 +77,7 @@ class StagedPlanRequest(StrictSchema):
 
     @validates_schema
     def _expected_below_tolerable(self, data: dict[str, Any], **kwargs: Any) -> None:
-        tolerable, expected = data.get("tolerable_rate"), data.get("expected_rate")
-        if tolerable is not None and expected is not None and expected >= tolerable:
-            raise ValidationError(
-                f"expected_rate {expected!r} must be below tolerable_rate {tolerable!r}",
-                "expected_rate",
-            )
+        rates_in_order(data)
 
     @post_load
     def _to_core(self, data: dict[str, Any], **kwargs: Any) -> dict[str, Any]:
@@ -87,28 +87,21 @@ class StagedPlanRequest(StrictSchema):
 class StageSchema(StrictSchema):
     """One stage of a staged plan; counts are cumulative over the stages."""
 
-    cumulative_sample_size = StrictInteger(
-        required=True,
-        validate=validate.Range(min=1, error="must be at least {min}"),
-        metadata={"description": "Items tested by the end of this stage, in all.", "example": 66},
+    cumulative_sample_size = count_field(
+        "Items tested by the end of this stage, in all.", minimum=1, example=66, required=True
     )
-    accept_if_at_most = StrictInteger(
+    accept_if_at_most = count_field(
+        "Accept when the deviations found so far are at most this (-1: never accept at this "
+        "stage).",
+        minimum=-1,
+        example=0,
         required=True,
-        validate=validate.Range(min=-1, error="must be at least {min}"),
-        metadata={
-            "description": "Accept when the deviations found so far are at most this "
-            "(-1: never accept at this stage).",
-            "example": 0,
-        },
     )
-    fail_if_at_least = StrictInteger(
+    fail_if_at_least = count_field(
+        "Fail when the deviations found so far are at least this; in between, extend to the "
+        "next stage. At the last stage, accept_if_at_most + 1.",
+        example=2,
         required=True,
-        validate=validate.Range(min=0, error="must be at least {min}"),
-        metadata={
-            "description": "Fail when the deviations found so far are at least this; in "
-            "between, extend to the next stage. At the last stage, accept_if_at_most + 1.",
-            "example": 2,
-        },
     )
 
     @post_load
@@ -120,6 +113,32 @@ class StageOut(Schema):
     cumulative_sample_size = fields.Integer(required=True)
     accept_if_at_most = fields.Integer(required=True)
     fail_if_at_least = fields.Integer(required=True)
+
+
+#: Where the curve of a staged plan is asked for; a staged plan links to it.
+STAGED_CURVE_PATH = "/v1/plans/staged/curve"
+
+
+def staged_curve_request_body(plan: StagedPlan) -> dict[str, Any]:
+    """The body to POST to :data:`STAGED_CURVE_PATH` for the curve of ``plan``: its stages,
+    model and population size, and the two rates it was planned for, so that the curve's
+    risks are the plan's."""
+    body: dict[str, Any] = {
+        "stages": [
+            {
+                "cumulative_sample_size": stage.cumulative_sample_size,
+                "accept_if_at_most": stage.accept_if_at_most,
+                "fail_if_at_least": stage.fail_if_at_least,
+            }
+            for stage in plan.stages
+        ],
+        "method": plan.method,
+    }
+    if plan.population_size is not None:
+        body["population"] = {"size": plan.population_size}
+    body["tolerable_rate"] = plan.tolerable_rate
+    body["expected_rate"] = plan.expected_rate
+    return body
 
 
 class StagedPlanSchema(ResultSchema):
@@ -158,12 +177,34 @@ class StagedPlanSchema(ResultSchema):
     plans_examined = fields.Integer(
         required=True, metadata={"description": "Candidate plans the bounded search examined."}
     )
-    summary = fields.Function(
-        staged_plan_summary,
-        required=True,
-        metadata={"type": "string", "description": "Plain-English paragraph."},
-    )
+    summary = summary_field(staged_plan_summary)
     warnings = fields.List(fields.String(), required=True)
+    curve_request = fields.Function(
+        staged_curve_request_body,
+        required=True,
+        metadata={
+            "allOf": [{"$ref": "#/components/schemas/StagedCurveRequest"}],
+            "description": "Body to POST, unchanged, to links.curve for the acceptance "
+            "probability and expected sample size of this plan against the rate (with "
+            "Accept: image/svg+xml, as a chart).",
+        },
+    )
+    links = fields.Function(
+        lambda plan: {"curve": STAGED_CURVE_PATH},
+        required=True,
+        metadata={
+            "type": "object",
+            "properties": {
+                "curve": {
+                    "type": "string",
+                    "description": "Path of the staged plan's curve endpoint.",
+                    "example": STAGED_CURVE_PATH,
+                }
+            },
+            "required": ["curve"],
+            "additionalProperties": False,
+        },
+    )
 
 
 class StagedEvaluationRequest(StrictSchema):
@@ -178,19 +219,17 @@ class StagedEvaluationRequest(StrictSchema):
         ),
         metadata={"description": "The plan as run (the stages of /v1/plans/staged)."},
     )
-    stage_reached = StrictInteger(
-        required=True,
-        validate=validate.Range(min=1, error="must be at least {min}"),
-        metadata={"description": "Stage (from 1) at which the test stopped.", "example": 2},
+    stage_reached = count_field(
+        "Stage (from 1) at which the test stopped.", minimum=1, example=2, required=True
     )
-    deviations = StrictInteger(
-        required=True,
-        validate=validate.Range(min=0, error="must be at least {min}"),
-        metadata={"description": "Deviations found up to that stage, in all.", "example": 2},
+    deviations = count_field(
+        "Deviations found up to that stage, in all.", example=2, required=True
     )
-    tolerable_rate = _tolerable("Tolerable deviation rate, as a fraction.")
-    confidence = _confidence()
-    method = StrictString(**_METHOD)
+    tolerable_rate = tolerable_rate_field(
+        "Tolerable deviation rate, as a fraction.", required=True
+    )
+    confidence = confidence_field()
+    method = _method()
 
     @post_load
     def _to_core(self, data: dict[str, Any], **kwargs: Any) -> dict[str, Any]:
@@ -214,11 +253,7 @@ class StagedEvaluationSchema(ResultSchema):
     population_size = fields.Integer(required=True, allow_none=True)
     population_label = fields.String()
     decision = fields.String(required=True, metadata={"enum": ["accept", "fail"]})
-    conclusion = fields.Function(
-        lambda r: "supports_reliance" if r.supports_reliance else "does_not_support_reliance",
-        required=True,
-        metadata={"type": "string", "enum": ["supports_reliance", "does_not_support_reliance"]},
-    )
+    conclusion = conclusion_field(description=None, required=True)
     plan_risk_of_overreliance = fields.Float(
         required=True,
         metadata={"description": "Exact probability that the plan accepts at the tolerable rate."},
@@ -259,11 +294,7 @@ class StagedEvaluationSchema(ResultSchema):
             "additionalProperties": False,
         },
     )
-    summary = fields.Function(
-        staged_evaluation_summary,
-        required=True,
-        metadata={"type": "string", "description": "Plain-English paragraph."},
-    )
+    summary = summary_field(staged_evaluation_summary)
     warnings = fields.List(fields.String(), required=True)
 
 
@@ -279,20 +310,12 @@ class StagedCurveRequest(StrictSchema):
         ),
         metadata={"description": "The plan's stages, as /v1/plans/staged returns them."},
     )
-    method = StrictString(**_METHOD)
-    tolerable_rate = Rate(
-        metadata={
-            "minimum": MIN_TOLERABLE_RATE,
-            "description": "When given, the risk of overreliance at this rate is reported.",
-            "example": 0.05,
-        }
+    method = _method()
+    tolerable_rate = tolerable_rate_field(
+        "When given, the risk of overreliance at this rate is reported."
     )
-    expected_rate = Rate(
-        allow_zero=True,
-        metadata={
-            "description": "When given, the risk of underreliance at this rate is reported.",
-            "example": 0.01,
-        },
+    expected_rate = expected_rate_field(
+        "When given, the risk of underreliance at this rate is reported.", default=False
     )
     points = StrictInteger(
         load_default=CURVE_DEFAULT_POINTS,
@@ -341,97 +364,28 @@ class StagedCurveSchema(ResultSchema):
     expected_sample_size_at_tolerable_rate = fields.Float()
     expected_sample_size_at_expected_rate = fields.Float()
     points = fields.List(fields.Nested(StagedCurvePointSchema), required=True)
-    summary = fields.Function(
-        staged_curve_summary,
-        required=True,
-        metadata={"type": "string", "description": "Plain-English paragraph."},
-    )
-
-
-class StratumCountsSchema(StrictSchema):
-    """One stratum: its population, the items tested and the deviations found."""
-
-    label = StrictString(
-        required=True,
-        validate=validate.Length(min=1, max=200, error="must be from {min} to {max} characters"),
-        metadata={"description": "Name of the stratum, unique in the request.",
-                  "example": "Plant A"},
-    )
-    population_size = StrictInteger(
-        required=True,
-        validate=validate.Range(min=1, error="must be at least {min}"),
-        metadata={"description": "Items in the stratum.", "example": 1200},
-    )
-    sample_size = StrictInteger(
-        required=True,
-        validate=validate.Range(min=1, error="must be at least {min}"),
-        metadata={"description": "Items tested in the stratum.", "example": 40},
-    )
-    deviations = StrictInteger(
-        required=True,
-        validate=validate.Range(min=0, error="must be at least {min}"),
-        metadata={"description": "Deviations found in the stratum.", "example": 0},
-    )
-
-    @post_load
-    def _to_core(self, data: dict[str, Any], **kwargs: Any) -> StratumInput:
-        return StratumInput(**data)
+    summary = summary_field(staged_curve_summary)
 
 
 class StrataEvaluationRequest(StrictSchema):
     """A population sampled in strata."""
 
-    strata = fields.List(
-        fields.Nested(StratumCountsSchema),
-        required=True,
-        validate=validate.Length(
-            min=1, max=MAX_STRATA, error="must hold from {min} to {max} strata"
-        ),
-        metadata={"description": "Each stratum's population, sample and deviations."},
+    strata = strata_field(required=True)
+    confidence = confidence_field()
+    tolerable_rate = tolerable_rate_field(
+        "When given, each stratum and the whole population are judged."
     )
-    confidence = _confidence()
-    tolerable_rate = Rate(
-        metadata={
-            "minimum": MIN_TOLERABLE_RATE,
-            "description": "When given, each stratum and the whole population are judged.",
-            "example": 0.05,
-        },
-    )
-    expected_rate = Rate(
-        allow_zero=True,
-        load_default=0.0,
-        metadata={
-            "description": "The planned expected deviation rate: used only to split the risk "
-            "among the strata, as it was known before the results.",
-            "example": 0.0,
-        },
+    expected_rate = expected_rate_field(
+        "The planned expected deviation rate: used only to split the risk among the strata, "
+        "as it was known before the results.",
+        example=0.0,
     )
 
     @validates_schema
     def _consistent(self, data: dict[str, Any], **kwargs: Any) -> None:
         errors: dict[str, list[str]] = {}
-        labels: dict[str, int] = {}
-        for i, stratum in enumerate(data.get("strata") or []):
-            if stratum.label in labels:
-                errors[f"strata[{i}].label"] = [
-                    f"label {stratum.label!r} repeats that of strata[{labels[stratum.label]}]"
-                ]
-            labels.setdefault(stratum.label, i)
-            if stratum.sample_size > stratum.population_size:
-                errors[f"strata[{i}].sample_size"] = [
-                    f"sample_size {stratum.sample_size} must not exceed population_size "
-                    f"{stratum.population_size}"
-                ]
-            if stratum.deviations > stratum.sample_size:
-                errors[f"strata[{i}].deviations"] = [
-                    f"deviations {stratum.deviations} must not exceed sample_size "
-                    f"{stratum.sample_size}"
-                ]
-        tolerable, expected = data.get("tolerable_rate"), data.get("expected_rate")
-        if tolerable is not None and expected is not None and expected >= tolerable:
-            errors["expected_rate"] = [
-                f"expected_rate {expected!r} must be below tolerable_rate {tolerable!r}"
-            ]
+        check_strata(data.get("strata") or [], errors)
+        check_rates_in_order(data, errors)
         if errors:
             raise ValidationError(errors)
 
@@ -479,22 +433,13 @@ class StrataEvaluationSchema(ResultSchema):
                   "coverage (see guarantee)."},
     )
     tolerable_deviant_items = fields.Integer()
-    conclusion = fields.Function(
-        lambda r: None if r.supports_reliance is None else (
-            "supports_reliance" if r.supports_reliance else "does_not_support_reliance"),
-        metadata={"type": "string", "enum": ["supports_reliance", "does_not_support_reliance"],
-                  "description": "Present only when tolerable_rate is given."},
-    )
+    conclusion = conclusion_field()
     guarantee = fields.Function(
         lambda r: STRATA_GUARANTEE,
         required=True,
         metadata={"type": "string", "description": "What the combined limit guarantees."},
     )
-    summary = fields.Function(
-        strata_summary,
-        required=True,
-        metadata={"type": "string", "description": "Plain-English paragraph."},
-    )
+    summary = summary_field(strata_summary)
     warnings = fields.List(fields.String(), required=True)
 
 
@@ -529,17 +474,13 @@ class SequenceRequest(StrictSchema):
             "example": [False, False, True, False],
         },
     )
-    confidence = _confidence()
+    confidence = confidence_field()
     population = fields.Nested(
         PopulationSchema,
         metadata={"description": "When given, the without-replacement form is used."},
     )
-    tolerable_rate = Rate(
-        metadata={
-            "minimum": MIN_TOLERABLE_RATE,
-            "description": "When given: whether, and from which item on, the limit is below it.",
-            "example": 0.05,
-        },
+    tolerable_rate = tolerable_rate_field(
+        "When given: whether, and from which item on, the limit is below it."
     )
 
     @validates_schema
@@ -591,19 +532,11 @@ class SequenceSchema(ResultSchema):
     first_supporting_sample_size = fields.Integer(
         metadata={"description": "First item after which the limit was below tolerable_rate."}
     )
-    conclusion = fields.Function(
-        lambda r: None if r.supports_reliance is None else (
-            "supports_reliance" if r.supports_reliance else "does_not_support_reliance"),
-        metadata={"type": "string", "enum": ["supports_reliance", "does_not_support_reliance"]},
-    )
+    conclusion = conclusion_field()
     points = fields.List(fields.Nested(SequencePointSchema), required=True)
     guarantee = fields.Function(
         lambda r: SEQUENCE_GUARANTEE,
         required=True,
         metadata={"type": "string", "description": "What the limits guarantee."},
     )
-    summary = fields.Function(
-        sequence_summary,
-        required=True,
-        metadata={"type": "string", "description": "Plain-English paragraph."},
-    )
+    summary = summary_field(sequence_summary)

@@ -13,10 +13,8 @@ from marshmallow import ValidationError, fields, validate
 
 from schemas.attributes import METHOD_NAMES, EvaluationSchema
 from schemas.common import PopulationSchema, ResultSchema, StrictSchema
-from schemas.fields import Rate, StrictString
+from schemas.fields import Rate, StrictString, confidence_field
 from service.sampling.attributes import (
-    MAX_CONFIDENCE,
-    MIN_CONFIDENCE,
     MIN_TOLERABLE_RATE,
     Evaluation,
 )
@@ -43,15 +41,7 @@ class TestSheetEvaluationRequest(StrictSchema):
 
     __test__ = False  # not a pytest test class
 
-    confidence = Rate(
-        load_default=0.95,
-        metadata={
-            "minimum": MIN_CONFIDENCE,
-            "maximum": MAX_CONFIDENCE,
-            "description": "Confidence, one minus the risk of overreliance, as a fraction.",
-            "example": 0.95,
-        },
-    )
+    confidence = confidence_field()
     tolerable_rates = _Rates(
         keys=StrictString(validate=validate.Length(min=1, max=MAX_ATTRIBUTE_LENGTH)),
         values=Rate(metadata={"minimum": MIN_TOLERABLE_RATE}),

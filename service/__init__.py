@@ -4,7 +4,8 @@
 strict JSON, request ids, security headers and JSON log lines
 (:mod:`service.context`), Prometheus metrics (:mod:`service.metrics`), optional API
 keys (:mod:`service.access`), CORS when configured (:mod:`service.cors`), the
-problem-details error handler, and one blueprint per resource. The sampling
+problem-details error handler, one blueprint per resource, and the web page and API
+reference (:mod:`service.webpage`). The sampling
 mathematics lives in :mod:`service.sampling` and knows nothing of HTTP.
 """
 
@@ -26,7 +27,7 @@ def create_app(settings: Settings | None = None) -> Flask:
     # imported (the client picks single- or multiprocess values at import).
     from flask import Flask
 
-    from service import access, context, cors, metrics, problems
+    from service import access, context, cors, metrics, problems, webpage
     from service.http import RESOURCES, meta
     from service.openapi import build_yaml
     from service.settings import Settings
@@ -47,6 +48,7 @@ def create_app(settings: Settings | None = None) -> Flask:
     cors.register(app, settings.cors_origins)
     problems.register(app)
     app.register_blueprint(meta.bp)
+    app.register_blueprint(webpage.bp)
     for module in RESOURCES:
         app.register_blueprint(module.bp)
     app.config["READY"] = True

@@ -10,7 +10,8 @@ The presented key's digest is compared with every configured digest by
 which digest, or how much of one, matched. A missing, malformed or unknown key gets the
 same 401 problem details and ``WWW-Authenticate`` challenge whichever it was, and an
 unknown path answers 401 before 404, so nothing tells a caller without a key which keys
-or paths exist.
+or paths exist. The web page, the API reference and their files (``/``, ``/docs``,
+``/ui/…``) are open: they hold no data, and the page asks for the key itself.
 """
 
 from __future__ import annotations
@@ -21,9 +22,11 @@ import hmac
 from flask import Flask, request
 
 from service.problems import Problem
+from service.webpage import is_page_path
 
-#: Health, readiness and the contract stay open, for load balancers and client generators.
-OPEN_PATHS = frozenset({"/v1/health", "/v1/ready", "/openapi.yaml"})
+#: Health, readiness and the contract stay open, for load balancers and client generators;
+#: so do the web page and the reference (they hold no data, and ask for the key themselves).
+OPEN_PATHS = frozenset({"/v1/health", "/v1/ready", "/openapi.yaml", "/openapi.json"})
 UNAUTHORIZED = "/problems/unauthorized"
 REALM = "attribute-sampling"
 
@@ -65,7 +68,11 @@ def register(app: Flask, digests: frozenset[bytes]) -> None:
 
     @app.before_request
     def _require_key() -> None:
-        if request.path in OPEN_PATHS or request.method == "OPTIONS":
+        if (
+            request.path in OPEN_PATHS
+            or is_page_path(request.path)
+            or request.method == "OPTIONS"
+        ):
             return
         key = _presented_key()
         if key is None:

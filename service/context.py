@@ -9,8 +9,12 @@ response header, in every problem details body (``request_id``) and in the log l
 ``Referrer-Policy: no-referrer`` and a Content Security Policy: ``default-src 'none';
 frame-ancestors 'none'``, and for SVG charts ``default-src 'none'; style-src
 'unsafe-inline'; frame-ancestors 'none'`` (the chart's styles are inline; it loads
-nothing). Results and errors are ``Cache-Control: no-store``; the OpenAPI document is
-``no-cache``. No CORS headers are sent: browsers on other origins cannot read answers.
+nothing). The web page, the API reference and their files (:mod:`service.webpage`) get
+:data:`PAGE_CSP`: scripts, styles, fonts and requests from the service itself only, images
+also from ``data:`` and ``blob:`` URLs (the charts the page fetches and shows), no inline
+script or style, no frames, forms or base URL. Results and errors are ``Cache-Control:
+no-store``; the OpenAPI document and the page's files are ``no-cache``. No CORS headers
+are sent: browsers on other origins cannot read answers.
 
 **Logs.** Logger ``service`` writes one JSON object per line to standard error: ``time``
 (UTC, ISO 8601), ``level``, ``message``, and for requests ``request_id``, ``method``,
@@ -31,12 +35,19 @@ from datetime import UTC, datetime
 
 from flask import Flask, Response, g, has_request_context, request
 
+from service.webpage import is_page_path
+
 REQUEST_ID_HEADER = "X-Request-ID"
 REQUEST_ID_PATTERN = re.compile(r"[A-Za-z0-9._:-]{1,128}")
 CSP = "default-src 'none'; frame-ancestors 'none'"
 SVG_CSP = "default-src 'none'; style-src 'unsafe-inline'; frame-ancestors 'none'"
+PAGE_CSP = (
+    "default-src 'none'; script-src 'self'; style-src 'self'; img-src 'self' data: blob:; "
+    "font-src 'self'; connect-src 'self'; form-action 'none'; base-uri 'none'; "
+    "frame-ancestors 'none'"
+)
 # Paths whose answers may be stored by caches (and revalidated).
-_CACHEABLE = frozenset({"/openapi.yaml"})
+_CACHEABLE = frozenset({"/openapi.yaml", "/openapi.json"})
 # The fields of a log line, in order, beyond time, level and message.
 REQUEST_FIELDS = ("request_id", "method", "path", "status", "duration_ms")
 
@@ -112,8 +123,15 @@ def _finish(response: Response) -> Response:
     headers[REQUEST_ID_HEADER] = current
     headers["X-Content-Type-Options"] = "nosniff"
     headers["Referrer-Policy"] = "no-referrer"
-    headers["Content-Security-Policy"] = SVG_CSP if response.mimetype == "image/svg+xml" else CSP
-    headers["Cache-Control"] = "no-cache" if request.path in _CACHEABLE else "no-store"
+    page = is_page_path(request.path)
+    if page:
+        headers["Content-Security-Policy"] = PAGE_CSP
+    elif response.mimetype == "image/svg+xml":
+        headers["Content-Security-Policy"] = SVG_CSP
+    else:
+        headers["Content-Security-Policy"] = CSP
+    cacheable = page or request.path in _CACHEABLE
+    headers["Cache-Control"] = "no-cache" if cacheable else "no-store"
     started = g.get("started")
     duration = None if started is None else round((time.perf_counter() - started) * 1000, 3)
     access_logger.info(

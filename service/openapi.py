@@ -233,6 +233,9 @@ def build_spec() -> APISpec:
     _service_get(spec, "/openapi.yaml", "openapi", "This document", {
         "200": _answer("The OpenAPI 3.1 document.", "application/yaml"),
     })
+    _service_get(spec, "/openapi.json", "openapi-json", "This document as JSON", {
+        "200": _answer("The same OpenAPI 3.1 document, as JSON.", "application/json"),
+    })
     return spec
 
 

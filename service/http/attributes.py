@@ -20,6 +20,8 @@ from schemas.plans import (
     SeveralAttributesPlanSchema,
     count_attributes,
 )
+from schemas.sequential import StrataEvaluationSchema
+from schemas.strata import count_strata
 from schemas.test_sheets import (
     TestSheetEvaluation,
     TestSheetEvaluationRequest,
@@ -40,6 +42,7 @@ from service.sampling.plans.multiple import (
     size_several,
 )
 from service.sampling.plans.two_risks import size_two_risks
+from service.sampling.sequential.strata import StratifiedEvaluation, evaluate_strata
 from service.sampling.test_sheets.reading import read_test_sheet
 from service.sampling.test_sheets.results import evaluate_tally, tally_test_sheet
 from service.settings import Settings
@@ -66,7 +69,15 @@ def _size(inputs: dict[str, Any], settings: Settings) -> SampleSizePlan | Severa
 
 def _evaluate(
     inputs: dict[str, Any], settings: Settings
-) -> Evaluation | SeveralAttributesEvaluation:
+) -> Evaluation | SeveralAttributesEvaluation | StratifiedEvaluation:
+    strata = inputs.pop("strata", None)
+    if strata is not None:
+        return evaluate_strata(
+            strata,
+            confidence=inputs["confidence"],
+            tolerable_rate=inputs.get("tolerable_rate"),
+            expected_rate=inputs.get("expected_rate") or 0.0,
+        )
     several = inputs.pop("attributes", None)
     if several is not None:
         return evaluate_several(attributes=several, **inputs)
@@ -104,6 +115,23 @@ def model_method(document: Mapping[str, Any]) -> str:
     """The model of a plan or evaluation and its reference, in one line."""
     model = MODELS[document["method"]]
     return f"{model.name} model; {model.reference}"
+
+
+def strata_method(document: Mapping[str, Any]) -> str:
+    """The method of an evaluation in strata and its reference, in one line."""
+    return (
+        "sum of exact hypergeometric limits per stratum with a Bonferroni split of the risk "
+        "(Wright 1991; Boole's inequality)"
+    )
+
+
+def _evaluation_method(document: Mapping[str, Any]) -> str:
+    return model_method(document) if "method" in document else strata_method(document)
+
+
+def _count_lists(payload: Any, settings: Settings) -> None:
+    count_attributes(payload, settings)
+    count_strata(payload, settings)
 
 
 OPERATIONS = [
@@ -151,7 +179,10 @@ OPERATIONS = [
             "Sample deviation rate, exact upper deviation limit, allowance for sampling risk, "
             "two-sided interval and, when tolerable_rate is given, the conclusion. With "
             "attributes, each attribute of one sample is evaluated on its own: the answer is "
-            "then a SeveralAttributesEvaluation."
+            "then a SeveralAttributesEvaluation. With strata, a population sampled in "
+            "strata: the answer is then a StrataEvaluation, each stratum's own evaluation and "
+            "one upper deviation limit for the whole population with guaranteed coverage, "
+            "the same answer as POST /v1/evaluation/strata."
         ),
         request=EvaluationRequest,
         response=EvaluationSchema,
@@ -182,22 +213,28 @@ OPERATIONS = [
                 method=model_method,
             ),
         ),
-        variants={SeveralAttributesEvaluation: SeveralAttributesEvaluationSchema},
-        precheck=count_attributes,
+        variants={
+            SeveralAttributesEvaluation: SeveralAttributesEvaluationSchema,
+            StratifiedEvaluation: StrataEvaluationSchema,
+        },
+        precheck=_count_lists,
         ticket=TicketLayout(
             answer=(
                 "attributes",
+                "strata",
                 "sample_deviation_rate",
+                "estimated_deviation_rate",
                 "upper_deviation_limit",
                 "allowance_for_sampling_risk",
                 "confidence_interval",
                 "risk_at_tolerable_rate",
                 "conclusion",
+                "guarantee",
                 "posterior_probability",
                 "posterior_upper_limit",
                 "prior",
             ),
-            method=model_method,
+            method=_evaluation_method,
         ),
     ),
 ]

@@ -1,7 +1,8 @@
-"""Service endpoints: ``GET /v1/health``, ``GET /v1/ready`` and ``GET /openapi.yaml``."""
+"""Service endpoints: ``GET /v1/health``, ``GET /v1/ready``, ``GET /openapi.yaml`` and ``.json``."""
 
 from __future__ import annotations
 
+import yaml
 from flask import Blueprint, Response, current_app
 
 from service import jsonio
@@ -36,3 +37,16 @@ def openapi_document() -> Response:
     return current_app.response_class(
         current_app.config["OPENAPI_YAML"], mimetype="application/yaml"
     )
+
+
+@bp.get("/openapi.json")
+def openapi_json() -> Response:
+    """The same OpenAPI 3.1 contract as JSON, for browsers and tools that do not read YAML.
+
+    Made from the YAML on the first request and kept: parsing it costs more than building
+    the application, and most processes (and tests) never ask for it.
+    """
+    config = current_app.config
+    if "OPENAPI_JSON" not in config:
+        config["OPENAPI_JSON"] = jsonio.dumps(yaml.safe_load(config["OPENAPI_YAML"]))
+    return current_app.response_class(config["OPENAPI_JSON"], mimetype="application/json")

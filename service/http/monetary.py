@@ -12,21 +12,40 @@ from typing import Any
 from schemas.monetary import (
     MonetaryEvaluationRequest,
     MonetaryEvaluationSchema,
+    MonetaryFileSelectionRequest,
     MonetaryPlanSchema,
     MonetarySampleSizeRequest,
     MonetarySelectionRequest,
     MonetarySelectionSchema,
     SelectionAnswer,
 )
+from schemas.monetary_test_sheets import (
+    MonetarySheetEvaluationRequest,
+    MonetarySheetEvaluationSchema,
+)
 from service.http.markdown import TicketLayout
 from service.http.operations import Operation, blueprint
+from service.http.populations import read_limits, uploaded
 from service.http.selection import CSV, csv_cell
 from service.render.margin_chart import MarginBar, render_margin_svg
-from service.sampling.errors import ComputationTooLarge
+from service.render.monetary_test_sheet import (
+    render_evaluated_monetary_sheet,
+    render_monetary_test_sheet,
+)
+from service.render.selection_report import RESERVED
+from service.render.xlsx import XLSX
+from service.sampling.errors import ComputationTooLarge, InvalidInput
 from service.sampling.monetary.amounts import to_units
 from service.sampling.monetary.evaluation import Misstatement, evaluate_monetary_sample
+from service.sampling.monetary.files import select_units_from_file
 from service.sampling.monetary.selection import select_units
 from service.sampling.monetary.sizing import MonetaryPlan, size_monetary_sample
+from service.sampling.populations.reading import open_population
+from service.sampling.test_sheets.monetary_reading import read_monetary_test_sheet
+from service.sampling.test_sheets.monetary_results import (
+    MonetarySheetEvaluation,
+    evaluate_monetary_test_sheet,
+)
 from service.sampling.wording import CAUTION
 from service.settings import Settings
 
@@ -78,6 +97,20 @@ def _select(inputs: dict[str, Any], settings: Settings) -> SelectionAnswer:
     return SelectionAnswer(chosen, seed_generated=seed is None)
 
 
+def _select_from_file(inputs: dict[str, Any], settings: Settings) -> SelectionAnswer:
+    seed = inputs.get("seed")
+    with open_population(uploaded(inputs), inputs["population"], read_limits(settings)) as table:
+        chosen = select_units_from_file(
+            table,
+            inputs["sample_size"],
+            seed,
+            inputs["method"],
+            scale=inputs["currency_decimals"],
+            max_items=settings.max_items,
+        )
+    return SelectionAnswer(chosen.selection, seed_generated=seed is None, file=chosen)
+
+
 def _evaluate(inputs: dict[str, Any], settings: Settings) -> Any:
     scale = inputs["currency_decimals"]
     found = [
@@ -105,6 +138,20 @@ def _evaluate(inputs: dict[str, Any], settings: Settings) -> Any:
         ),
         scale=scale,
         max_sample_size=settings.max_items,
+    )
+
+
+def _evaluate_sheet(inputs: dict[str, Any], settings: Settings) -> MonetarySheetEvaluation:
+    upload = inputs["upload"]
+    if upload is None:  # the JSON form is its own operation; kept for a direct call
+        raise InvalidInput("file", "send the completed test sheet as the file part")
+    sheet = read_monetary_test_sheet(upload)
+    scale = sheet.recorded.scale
+    return evaluate_monetary_test_sheet(
+        sheet,
+        inputs["confidence"],
+        _units(inputs.get("tolerable_misstatement"), "tolerable_misstatement", scale),
+        inputs.get("not_tested"),
     )
 
 
@@ -139,21 +186,38 @@ def render_selection_csv(document: dict[str, Any], result: Any) -> str:
     """The selection as a test sheet in CSV (RFC 4180, UTF-8 with a byte order mark, CRLF).
 
     Columns: ``selection`` (``sampled`` or ``individually significant``), ``item``,
-    ``book_amount``, ``hits``, ``units`` (space-separated, 1-based) and an empty
-    ``audited_amount`` for the auditor to fill in. Identifiers that a spreadsheet would
-    read as a formula are guarded as in the selection endpoint's CSV.
+    ``book_amount``, ``hits``, ``units`` (space-separated, 1-based); for a file population,
+    ``where in the file`` and the record's own columns (a column named like one of these
+    shown as ``file: <name>``); then an empty ``audited_amount`` for the auditor to fill in.
+    Texts that a spreadsheet would read as a formula are guarded as in the selection
+    endpoint's CSV.
     """
     out = io.StringIO()
     out.write("\ufeff")
     writer = csv.writer(out, lineterminator="\r\n")
-    writer.writerow(("selection", "item", "book_amount", "hits", "units", "audited_amount"))
+    names = document.get("columns") or []
+    own = ["where in the file", *names] if names else []
+    heading = ("selection", "item", "book_amount", "hits", "units", "audited_amount")
+    shown = [f"file: {c}" if c in (*heading, *RESERVED) else c for c in names]
+    writer.writerow([*heading[:5], *([own[0], *shown] if names else []), heading[5]])
+
+    def record(item: dict[str, Any]) -> list[int | str]:
+        if not names:
+            return []
+        values = item.get("record") or {}
+        return [csv_cell(item.get("where", "")), *(csv_cell(values.get(c, "")) for c in names)]
+
     for item in document["individually_significant"]:
         writer.writerow(
-            ("individually significant", csv_cell(item["id"]), item["amount"], "", "", "")
+            ["individually significant", csv_cell(item["id"]), item["amount"], "", "",
+             *record(item), ""]
         )
     for item in document["items"]:
         units = " ".join(str(unit) for unit in item["units"])
-        writer.writerow(("sampled", csv_cell(item["id"]), item["amount"], item["hits"], units, ""))
+        writer.writerow(
+            ["sampled", csv_cell(item["id"]), item["amount"], item["hits"], units,
+             *record(item), ""]
+        )
     return out.getvalue()
 
 
@@ -185,6 +249,31 @@ def _evaluation_method(document: Mapping[str, Any]) -> str:
         f"{document['overstatement']['recommended']} for overstatements"
     )
 
+
+_SHEET_TEXT = (
+    "With Accept: application/vnd.openxmlformats-officedocument.spreadsheetml.sheet it is a "
+    "test sheet (XLSX): the items to test with their book amount, hits and units, an "
+    "audited amount column restricted to decimal numbers and a notes column, a sheet of the "
+    "inputs, seed, fingerprints, algorithm and caution, and the selection recorded for the "
+    "service to read back; completed, it is sent to /v1/monetary/evaluation. Every text is "
+    "a string cell, never a formula."
+)
+
+_SELECTION_TICKET = TicketLayout(
+    answer=(
+        "sample_size",
+        "units_drawn",
+        "sampling_interval",
+        "items",
+        "individually_significant",
+        "excluded_count",
+        "excluded_total",
+        "seed",
+        "population_fingerprint",
+        "selection_fingerprint",
+    ),
+    method=_selection_method,
+)
 
 OPERATIONS = [
     Operation(
@@ -230,27 +319,38 @@ OPERATIONS = [
             "reported. The units depend only on the items, sample size, seed, method and "
             "algorithm version, all reported with the fingerprints, so anyone can re-perform "
             "the selection. With Accept: text/csv the answer is a test sheet with an empty "
-            "audited_amount column."
+            "audited_amount column. " + _SHEET_TEXT
         ),
         request=MonetarySelectionRequest,
         response=MonetarySelectionSchema,
         run=_select,
         tag="monetary-unit sampling",
-        renderers={CSV: render_selection_csv},
-        ticket=TicketLayout(
-            answer=(
-                "sample_size",
-                "units_drawn",
-                "sampling_interval",
-                "items",
-                "individually_significant",
-                "excluded_count",
-                "excluded_total",
-                "seed",
-                "population_fingerprint",
-                "selection_fingerprint",
+        renderers={CSV: render_selection_csv, XLSX: render_monetary_test_sheet},
+        ticket=_SELECTION_TICKET,
+        file_form=Operation(
+            name="monetary-selection-from-file",
+            path="/v1/monetary/selection",
+            accepts_file=True,
+            summary="Select currency units from a population file",
+            description=(
+                "A multipart/form-data body with the population file (CSV, XLSX or Parquet) "
+                "as the file part and MonetaryFileSelectionRequest as the request part, the "
+                "file described as population.file with id_column and amount_column. Each "
+                "record kept by the filters and exclusions is the item {id, amount}, its "
+                "amount read exactly in the declared style and with at most "
+                "currency_decimals places, so the selection and both fingerprints are those "
+                "of the same items sent as a JSON list, whatever the file's format or row "
+                "order. Each selected or individually significant item adds where its "
+                "record is in the file and the record with all its columns; records with a "
+                "zero or negative amount are listed apart. CSV and XLSX answers as for the "
+                "JSON form, with the records' columns."
             ),
-            method=_selection_method,
+            request=MonetaryFileSelectionRequest,
+            response=MonetarySelectionSchema,
+            run=_select_from_file,
+            tag="monetary-unit sampling",
+            renderers={CSV: render_selection_csv, XLSX: render_monetary_test_sheet},
+            ticket=_SELECTION_TICKET,
         ),
     ),
     Operation(
@@ -274,6 +374,44 @@ OPERATIONS = [
         run=_evaluate,
         tag="monetary-unit sampling",
         renderers={SVG: render_margin},
+        file_form=Operation(
+            name="monetary-evaluation-of-test-sheet",
+            path="/v1/monetary/evaluation",
+            accepts_file=True,
+            summary="Evaluate a completed monetary-unit test sheet",
+            description=(
+                "A multipart/form-data body with the completed monetary-unit test sheet "
+                "(XLSX, from /v1/monetary/selection) as the file part and "
+                "MonetarySheetEvaluationRequest as the request part. The sheet's rows must be "
+                "exactly the selection's recorded items (a missing, added or changed row is "
+                "refused with 422, listing them). Each item's audited amount is read as a "
+                "decimal of at most the currency's places; a blank one means not tested and "
+                "is refused unless not_tested says how to treat it. The items whose audited "
+                "amount differs from the book amount are evaluated exactly as the JSON form "
+                "evaluates the same misstatements, over the value sampled by units, the units "
+                "drawn and the recorded selection method. With Accept: application/vnd."
+                "openxmlformats-officedocument.spreadsheetml.sheet, the same workbook comes "
+                "back with an Evaluation sheet added."
+            ),
+            request=MonetarySheetEvaluationRequest,
+            response=MonetarySheetEvaluationSchema,
+            run=_evaluate_sheet,
+            tag="monetary-unit sampling",
+            renderers={XLSX: render_evaluated_monetary_sheet},
+            ticket=TicketLayout(
+                answer=(
+                    "selection_fingerprint",
+                    "items_tested",
+                    "items_not_tested",
+                    "overstatement",
+                    "understatement",
+                    "net_most_likely_misstatement",
+                    "conclusion",
+                    "limits",
+                ),
+                method=_evaluation_method,
+            ),
+        ),
         ticket=TicketLayout(
             answer=(
                 "sample_size",

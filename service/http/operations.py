@@ -109,7 +109,13 @@ class Operation:
             return jsonio.dumps(document)
         if media_type in self.renderers:
             return self.renderers[media_type](document, result)
-        fields = tuple(self.request_schema.fields)
+        # A field required unless a list is given has no default: when it is left out, the
+        # list took its place and the answer's value of that name is a total, not an input.
+        fields = tuple(
+            name
+            for name, declared in self.request_schema.fields.items()
+            if not declared.metadata.get("required_unless")
+        )
         return markdown.render(self.summary, self.ticket, payload, document, fields)
 
 

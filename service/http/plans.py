@@ -117,7 +117,10 @@ OPERATIONS = [
             "overreliance at tolerable_rate and the risk of underreliance at expected_rate "
             "when they are given. The curve_request of a sample size plan is a ready body. "
             "With Accept: image/svg+xml the answer is the curve as an SVG chart, drawn "
-            "through the grid and through the marked rates."
+            "through the grid and through the marked rates. A staged plan's curve is "
+            "POST /v1/plans/staged/curve: its points carry the expected sample size as well, "
+            "and each costs a convolution over the stages, so its grid has its own default "
+            "and limit."
         ),
         request=CurveRequest,
         response=CurveSchema,

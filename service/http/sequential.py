@@ -7,6 +7,7 @@ from collections.abc import Mapping
 from typing import Any
 
 from schemas.sequential import (
+    STAGED_CURVE_PATH,
     SequenceRequest,
     SequenceSchema,
     StagedCurveRequest,
@@ -18,9 +19,11 @@ from schemas.sequential import (
     StrataEvaluationRequest,
     StrataEvaluationSchema,
 )
-from service.http.attributes import model_method
+from schemas.strata import count_strata
+from service.http.attributes import model_method, strata_method
 from service.http.markdown import TicketLayout
 from service.http.operations import Operation, blueprint
+from service.render.staged_chart import StagedChartPoint, render_staged_curve_svg
 from service.sampling.errors import InvalidInput
 from service.sampling.sequential.anytime import (
     MAX_RESULTS,
@@ -35,8 +38,12 @@ from service.sampling.sequential.staged import (
     evaluate_staged,
     plan_staged,
 )
-from service.sampling.sequential.strata import MAX_STRATA, StratifiedEvaluation, evaluate_strata
+from service.sampling.sequential.strata import StratifiedEvaluation, evaluate_strata
+from service.sampling.sequential.wording import staged_curve_summary
+from service.sampling.wording import CAUTION, percent
 from service.settings import Settings
+
+SVG = "image/svg+xml"
 
 
 def _plan(inputs: dict[str, Any], settings: Settings) -> StagedPlan:
@@ -51,15 +58,59 @@ def _curve(inputs: dict[str, Any], settings: Settings) -> StagedCurve:
     return staged_curve(**inputs)
 
 
+def _staged_caption(curve: StagedCurve) -> str:
+    """The plan in one short sentence, then the caution sentence."""
+    parts = [f"{len(curve.stages)} stages", f"{curve.method} model"]
+    if curve.population_size is not None:
+        parts.append(f"population {curve.population_size:,}")
+    if curve.tolerable_rate is not None:
+        parts.append(f"tolerable {percent(curve.tolerable_rate)}")
+    if curve.expected_rate is not None:
+        parts.append(f"expected {percent(curve.expected_rate)}")
+        if curve.expected_sample_size_at_expected_rate is not None:
+            parts.append(
+                f"{curve.expected_sample_size_at_expected_rate:,.1f} items expected there"
+            )
+    return f"Staged plan: {', '.join(parts)}. {CAUTION}"
+
+
+def _staged_chart_points(curve: StagedCurve) -> list[StagedChartPoint]:
+    """The grid, plus the curve at the marked rates so that the lines meet the marks."""
+    points = {
+        point.rate: StagedChartPoint(
+            point.rate, point.acceptance_probability, point.expected_sample_size
+        )
+        for point in curve.points
+    }
+    marked = (
+        (curve.tolerable_rate, curve.risk_of_overreliance,
+         curve.expected_sample_size_at_tolerable_rate),
+        (curve.expected_rate,
+         None if curve.risk_of_underreliance is None else 1.0 - curve.risk_of_underreliance,
+         curve.expected_sample_size_at_expected_rate),
+    )
+    for rate, acceptance, size in marked:
+        if rate is not None and acceptance is not None and size is not None:
+            points.setdefault(rate, StagedChartPoint(rate, acceptance, size))
+    return [points[rate] for rate in sorted(points)]
+
+
+def _staged_svg(document: dict[str, Any], curve: StagedCurve) -> str:
+    return render_staged_curve_svg(
+        _staged_chart_points(curve),
+        stages=[(s.cumulative_sample_size, s.accept_if_at_most, s.fail_if_at_least)
+                for s in curve.stages],
+        tolerable_rate=curve.tolerable_rate,
+        expected_rate=curve.expected_rate,
+        risk_of_overreliance=curve.risk_of_overreliance,
+        risk_of_underreliance=curve.risk_of_underreliance,
+        caption=_staged_caption(curve),
+        description=staged_curve_summary(curve).removesuffix(CAUTION).strip(),
+    )
+
+
 def _strata(inputs: dict[str, Any], settings: Settings) -> StratifiedEvaluation:
     return evaluate_strata(**inputs)
-
-
-def _count_strata(payload: Any, settings: Settings) -> None:
-    """Refuse an over-long strata list before each stratum is validated."""
-    strata = payload.get("strata") if isinstance(payload, dict) else None
-    if isinstance(strata, list) and len(strata) > MAX_STRATA:
-        raise InvalidInput("strata", f"strata holds {len(strata):,} strata; at most {MAX_STRATA}")
 
 
 def _sequence(inputs: dict[str, Any], settings: Settings) -> ConfidenceSequence:
@@ -151,19 +202,21 @@ OPERATIONS = [
 OPERATIONS.append(
     Operation(
         name="staged-curve",
-        path="/v1/plans/staged/curve",
+        path=STAGED_CURVE_PATH,
         summary="Operating characteristic of a staged plan",
         description=(
             "For a staged plan, at evenly spaced true deviation rates from 0: the exact "
             "probability that the plan accepts and the expected number of items it tests; "
             "with the risks and expected sizes at tolerable_rate and expected_rate when they "
-            "are given."
+            "are given. With Accept: image/svg+xml the answer is a chart of both against the "
+            "rate, in two panels, with the tolerable and expected rates marked."
         ),
         request=StagedCurveRequest,
         response=StagedCurveSchema,
         run=_curve,
         tag="tests of controls",
         precheck=_count_stages,
+        renderers={SVG: _staged_svg},
         ticket=TicketLayout(
             answer=("risk_of_overreliance", "risk_of_underreliance",
                     "expected_sample_size_at_expected_rate", "points"),
@@ -181,18 +234,18 @@ OPERATIONS.append(
             "Each stratum's own evaluation (hypergeometric) and one upper deviation limit for "
             "the whole population: the sum of exact per-stratum limits at risks that add up "
             "to 1 − confidence, the split fixed from the design before the results. Its "
-            "coverage is guaranteed (Boole's inequality) and conservative."
+            "coverage is guaranteed (Boole's inequality) and conservative. The same answer "
+            "as POST /v1/evaluation with strata; this path takes only strata."
         ),
         request=StrataEvaluationRequest,
         response=StrataEvaluationSchema,
         run=_strata,
         tag="tests of controls",
-        precheck=_count_strata,
+        precheck=count_strata,
         ticket=TicketLayout(
             answer=("estimated_deviation_rate", "upper_deviation_limit",
                     "upper_deviation_count", "conclusion", "guarantee"),
-            method=lambda document: "sum of exact hypergeometric limits per stratum with a "
-            "Bonferroni split of the risk (Wright 1991; Boole's inequality)",
+            method=strata_method,
         ),
     )
 )

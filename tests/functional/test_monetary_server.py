@@ -69,3 +69,60 @@ def test_bad_amount_is_a_problem_naming_the_field(url: str) -> None:
     assert answer.status_code == 422
     assert answer.headers["Content-Type"] == "application/problem+json"
     assert "misstatements[0].book_amount" in answer.json()["errors"]
+
+
+def test_a_ledger_file_and_its_test_sheet_through_the_client_and_command(
+    url: str, tmp_path: Path
+) -> None:
+    import subprocess
+
+    import openpyxl
+
+    from sampling_client import SamplingClient
+    from sampling_client.api import XLSX
+
+    ledger = EXAMPLES / "kestrel-receivables-ledger.csv"
+    request = {"population": {"file": {"id_column": "invoice", "amount_column": "balance"}},
+               "sample_size": 8, "seed": "kestrel-valley-ar-2026-12"}
+    with SamplingClient(url) as client:
+        chosen = client.monetary_selection_from_file(ledger, request)
+        # The README's published test vector, from the same items as a JSON list.
+        assert chosen["selection_fingerprint"] == (
+            "d1cd7d4483dd7f385157708c6d5eb64bb3592b430d5b9d9e471b8f882bbd6654")
+        blank = tmp_path / "sheet.xlsx"
+        blank.write_bytes(client.monetary_selection_from_file_as(XLSX, ledger, request))
+        book = openpyxl.load_workbook(blank)
+        tests = book["Tests"]
+        at = {cell.value: cell.column for cell in tests[1]}
+        for row in range(2, tests.max_row + 1):
+            tests.cell(row, at["audited amount"], tests.cell(row, at["book amount"]).value)
+        tests.cell(2, at["audited amount"], 55700.00)  # line 1: KV-0009, short by 500.00
+        completed = tmp_path / "completed.xlsx"
+        book.save(completed)
+        evaluated = client.monetary_sheet_evaluation(completed, tolerable_misstatement="20000")
+        assert evaluated["overstatement"]["known_misstatement"] == "500.00"
+        assert evaluated["selection_fingerprint"] == chosen["selection_fingerprint"]
+
+    command = [sys.executable, "-m", "sampling_client"]
+    out = tmp_path / "by-command.xlsx"
+    made = subprocess.run(
+        [*command, "monetary-selection", "--url", url, "--file", str(ledger),
+         "--id-column", "invoice", "--amount-column", "balance", "--sample-size", "8",
+         "--seed", "kestrel-valley-ar-2026-12", "--xlsx", "--output", str(out)],
+        cwd=ROOT, capture_output=True, timeout=60, check=False,
+    )
+    assert made.returncode == 0, made.stderr
+    assert openpyxl.load_workbook(out)["Tests"].max_row == 9
+    judged = subprocess.run(
+        [*command, "monetary-evaluation", "--url", url, "--test-sheet", str(completed),
+         "--tolerable-misstatement", "20000", "--json"],
+        cwd=ROOT, capture_output=True, timeout=60, check=False,
+    )
+    assert judged.returncode == 0, judged.stderr
+    assert json.loads(judged.stdout) == evaluated
+    refused = subprocess.run(
+        [*command, "monetary-evaluation", "--url", url, "--test-sheet", str(ledger)],
+        cwd=ROOT, capture_output=True, timeout=60, check=False,
+    )
+    assert refused.returncode == 3
+    assert b"not an XLSX workbook" in refused.stderr

@@ -75,7 +75,10 @@ class AppAdapter(requests.adapters.BaseAdapter):
         self.sent.append(request)
         self.timeouts.append(timeout)
         parts = urlsplit(request.url or "")
-        answer = self.client.open(parts.path, method=request.method, data=request.body,
+        body = request.body
+        if body is not None and not isinstance(body, bytes | str):
+            body = b"".join(body)  # a streamed upload, read as the server would
+        answer = self.client.open(parts.path, method=request.method, data=body,
                                   headers=dict(request.headers))
         response = make_response(answer.status_code, answer.data, dict(answer.headers),
                                  request.url or "")

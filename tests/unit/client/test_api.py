@@ -86,6 +86,24 @@ def test_every_endpoint_method_goes_to_its_path() -> None:
                      "/v1/batch"]
 
 
+def test_the_staged_strata_and_sequence_methods_go_to_their_paths() -> None:
+    client, session, _ = client_with(*[(200, {}, None)] * 6,
+                                     (200, b"<svg/>", {"Content-Type": "image/svg+xml"}))
+    stages = [{"cumulative_sample_size": 59, "accept_if_at_most": 0, "fail_if_at_least": 1}]
+    client.staged_plan(tolerable_rate=0.05)
+    client.staged_evaluation(stages=stages, stage_reached=1, deviations=0)
+    client.staged_curve(stages=stages)
+    client.strata_evaluation(strata=[])
+    client.evaluation(strata=[])
+    client.sequence_evaluation(results=[False])
+    assert client.staged_curve_svg(stages=stages) == "<svg/>"
+    paths = [call["url"].removeprefix(URL) for call in session.calls]
+    assert paths == ["/v1/plans/staged", "/v1/plans/staged/evaluation", "/v1/plans/staged/curve",
+                     "/v1/evaluation/strata", "/v1/evaluation", "/v1/evaluation/sequence",
+                     "/v1/plans/staged/curve"]
+    assert session.calls[-1]["headers"]["Accept"] == "image/svg+xml"
+
+
 def test_the_request_argument_and_keyword_fields_are_merged() -> None:
     client, session, _ = client_with((200, {}, None))
     client.evaluation({"sample_size": 60, "deviations": 2}, deviations=1)

@@ -627,3 +627,55 @@ def test_monetary_commands_from_a_csv_ledger(through_app: requests.Session,
     status, out, _ = run(capsys, "monetary-evaluation", "--book-value", "600000.00",
                          "--sample-size", "60", "--json")
     assert status == 0 and json.loads(out)["overstatement"]["projected_misstatement"] == "0.00"
+
+
+STAGES_JSON = ('[{"cumulative_sample_size": 66, "accept_if_at_most": 0, "fail_if_at_least": 2},'
+               ' {"cumulative_sample_size": 135, "accept_if_at_most": 2, "fail_if_at_least": 3}]')
+
+
+def test_the_staged_curve_chart_is_written_exactly(
+    through_app: requests.Session, adapter: AppAdapter, capsys: pytest.CaptureFixture[bytes]
+) -> None:
+    status, out, _ = run(capsys, "staged-curve", "--stages", STAGES_JSON, "--tolerable-rate",
+                         "0.05", "--expected-rate", "0.01", "--svg")
+    assert status == 0
+    direct = adapter.client.post("/v1/plans/staged/curve", headers={"Accept": "image/svg+xml"},
+                                 json={"stages": json.loads(STAGES_JSON),
+                                       "tolerable_rate": 0.05, "expected_rate": 0.01})
+    assert out.encode("utf-8") == direct.data
+    assert 'id="expected-size-curve"' in out
+
+
+def test_a_staged_plan_table_shows_expected_sizes_as_items(
+    through_app: requests.Session, capsys: pytest.CaptureFixture[bytes]
+) -> None:
+    status, out, _ = run(capsys, "staged-plan", "--tolerable-rate", "0.05", "--expected-rate",
+                         "0.01")
+    assert status == 0
+    line = re.search(r"^Expected sample size at expected rate +(\S+)$", out, re.MULTILINE)
+    assert line is not None
+    assert not line.group(1).endswith("%")
+    assert float(line.group(1)) < 93  # fewer than the fixed-size plan's items, on average
+    assert re.search(r"^Risk of overreliance +4\.[0-9]+%$", out, re.MULTILINE)
+
+
+def test_evaluation_with_a_strata_file(
+    through_app: requests.Session, adapter: AppAdapter, capsys: pytest.CaptureFixture[bytes],
+    tmp_path: Path,
+) -> None:
+    strata = tmp_path / "strata.csv"
+    with strata.open("w", newline="", encoding="utf-8") as handle:
+        writer = csv.writer(handle)
+        writer.writerow(["label", "population_size", "sample_size", "deviations"])
+        writer.writerow(["Harbour Lane, Leeds", 1200, 45, 0])
+        writer.writerow(["Harbour Lane, Lyon", 800, 40, 1])
+    status, out, _ = run(capsys, "evaluation", "--strata-file", str(strata),
+                         "--tolerable-rate", "0.1")
+    assert status == 0, out
+    (sent,) = adapter.sent
+    assert json.loads(sent.body or b"")["strata"][1] == {
+        "label": "Harbour Lane, Lyon", "population_size": 800, "sample_size": 40,
+        "deviations": 1}
+    assert re.search(r"^Upper deviation count +211$", out, re.MULTILINE)
+    assert "Harbour Lane, Leeds" in out
+    assert " ".join(out.split()).endswith(CAUTION)

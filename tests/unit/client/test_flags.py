@@ -46,7 +46,7 @@ def test_sample_size_fields_become_flags_with_their_descriptions() -> None:
     assert specs["tolerable_rate"].kind == flags.NUMBER
     # Required unless attributes is given (always, in a controls file).
     assert not specs["tolerable_rate"].required
-    assert specs["tolerable_rate"].required_unless == "attributes"
+    assert specs["tolerable_rate"].required_unless == ("attributes",)
     assert specs["tolerable_rate"].description.startswith(
         "Tolerable deviation rate, as a fraction.")
     assert specs["attributes"].kind == flags.RECORDS  # JSON text, or a CSV file of them
@@ -219,7 +219,9 @@ def test_the_help_shows_description_default_and_requirement(
     with pytest.raises(SystemExit):
         parse("evaluation", "--help")
     text = " ".join(capsys.readouterr().out.split())
-    assert "--sample-size SAMPLE_SIZE Items tested. Required." in text
+    assert ("--sample-size SAMPLE_SIZE Items tested. Required unless strata is given. "
+            "Required unless --strata is given.") in text
+    assert "Required unless --attributes or --strata is given." in text
     assert "Service default: 0.95." in text
     assert "Required when population is given." in text
     assert "exit status:" in text
@@ -319,6 +321,10 @@ def test_the_staged_endpoints_reach_the_command_line() -> None:
     assert body("strata-evaluation", "--strata", strata, "--confidence", "0.9") == {
         "strata": [{"label": "A", "population_size": 100, "sample_size": 20, "deviations": 0}],
         "confidence": 0.9}
+    # The same strata reach POST /v1/evaluation, as a CSV file of strata or JSON text.
+    assert body("evaluation", "--strata", strata, "--tolerable-rate", "0.1") == {
+        "strata": [{"label": "A", "population_size": 100, "sample_size": 20, "deviations": 0}],
+        "tolerable_rate": 0.1}
     # A list of true/false flags is read as JSON text.
     assert body("sequence-evaluation", "--results", "[false, true, 0]")["results"] == [
         False, True, 0]

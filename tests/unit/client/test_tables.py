@@ -252,3 +252,18 @@ def test_interval_fields_read_under_either_name(interval: str, sampling: str) ->
     assert any(line.startswith(label) and line.split()[-1] == "70.0167"
                for line in text.splitlines())
     assert f"{tables.label(sampling + '_exact')}" in text
+
+
+def test_every_probability_of_the_plans_reads_as_a_percentage_and_sizes_as_items() -> None:
+    assert tables.value_text("sizes.confidence_against_1_deviant", 0.25) == "25%"
+    assert tables.value_text("sizes.upper_deviation_limit_if_none_found", 0.2063) == "20.63%"
+    assert tables.value_text("sizes.achieved_confidence_at_tolerable", 0.5) == "50%"
+    assert tables.value_text("posterior_upper_limit", 0.0487) == "4.87%"
+    assert tables.value_text("underreliance_risk", 0.1) == "10%"
+    assert tables.value_text("plan_risk_of_overreliance", 0.0496855) == "4.96855%"
+    assert tables.value_text("points.fixed_size_upper_deviation_limit", 0.05) == "5%"
+    # An expected sample size at a rate is a number of items.
+    assert tables.value_text("expected_sample_size_at_expected_rate", 89.69630740149498) == (
+        "89.6963")
+    assert tables.value_text("points.expected_sample_size", 66.0) == "66"
+    assert tables.value_text("prior.strength", 50.0) == "50"

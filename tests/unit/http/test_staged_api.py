@@ -6,6 +6,8 @@ Risks are recomputed here by enumerating every stage outcome with scipy.stats.bi
 from __future__ import annotations
 
 import math
+import re
+import xml.etree.ElementTree as ET
 from typing import Any
 
 import pytest
@@ -152,3 +154,88 @@ def test_bad_staged_curve_requests_name_the_field(client: Any, change: dict, fie
     response = client.post("/v1/plans/staged/curve", json=body)
     assert response.status_code == 422, response.get_json()
     assert field in response.get_json()["errors"]
+
+
+SVG_TYPE = "image/svg+xml"
+SVG = "{http://www.w3.org/2000/svg}"
+CURVE_STAGES = [
+    {"cumulative_sample_size": 66, "accept_if_at_most": 0, "fail_if_at_least": 2},
+    {"cumulative_sample_size": 135, "accept_if_at_most": 2, "fail_if_at_least": 3},
+]
+
+
+def _svg_ids(root: ET.Element) -> dict[str, ET.Element]:
+    return {element.get("id", ""): element for element in root.iter() if element.get("id")}
+
+
+def _svg_text(element: ET.Element) -> str:
+    return " ".join("".join(node.itertext()).strip() for node in element.iter(f"{SVG}text"))
+
+
+def test_staged_curve_as_svg_carries_the_plans_values(client: Any) -> None:
+    body = {"stages": CURVE_STAGES, "tolerable_rate": 0.05, "expected_rate": 0.01,
+            "points": 21, "population": {"size": 4200}}
+    document = client.post("/v1/plans/staged/curve", json=body).get_json()
+    response = client.post("/v1/plans/staged/curve", json=body,
+                           headers={"Accept": SVG_TYPE})
+    assert response.status_code == 200
+    assert response.mimetype == SVG_TYPE
+    assert "Accept" in response.headers["Vary"]
+    root = ET.fromstring(response.get_data(as_text=True))  # noqa: S314 - our own answer
+    assert root.tag == f"{SVG}svg"
+    assert root[0].tag == f"{SVG}title"
+    assert root[0].text == (
+        "Staged plan of 2 stages, at most 135 items; stage 1: 66 items, accept ≤ 0, "
+        "fail ≥ 2; stage 2: 135 items, accept ≤ 2, fail ≥ 3")
+    # The description is the JSON answer's summary, without the caution (which the caption
+    # carries).
+    assert root[1].tag == f"{SVG}desc"
+    assert root[1].text == document["summary"].removesuffix(CAUTION).strip()
+    ids = _svg_ids(root)
+    risk_over = f"{document['risk_of_overreliance'] * 100:.2f}".rstrip("0").rstrip(".")
+    risk_under = f"{document['risk_of_underreliance'] * 100:.2f}".rstrip("0").rstrip(".")
+    assert _svg_text(ids["label-tolerable"]) == (
+        f"Tolerable rate 5%, risk of overreliance {risk_over}%")
+    assert _svg_text(ids["label-expected"]) == (
+        f"Expected rate 1%, risk of underreliance {risk_under}%")
+    caption = _svg_text(ids["caption"])
+    assert "hypergeometric model" in caption and "population 4,200" in caption
+    assert f"{document['expected_sample_size_at_expected_rate']:,.1f} items" in caption
+    assert caption.endswith(CAUTION)
+    # One vertex per grid point, plus the two marked rates when they are off the grid.
+    grid = {point["rate"] for point in document["points"]}
+    extra = len({0.05, 0.01} - grid)
+    for gid in ("acceptance-curve", "expected-size-curve"):
+        d = next(ids[gid].iter(f"{SVG}path")).get("d", "")
+        assert len(re.findall(r"[ML] ", d)) == len(document["points"]) + extra
+
+
+def test_staged_curve_markdown_is_still_served(client: Any) -> None:
+    response = client.post("/v1/plans/staged/curve", json={"stages": CURVE_STAGES},
+                           headers={"Accept": "text/markdown"})
+    assert response.status_code == 200
+    assert response.get_data(as_text=True).rstrip().endswith(CAUTION)
+
+
+def test_bad_staged_curve_with_svg_accepted_is_still_problem_json(client: Any) -> None:
+    response = client.post("/v1/plans/staged/curve", json={"stages": [], "points": 1},
+                           headers={"Accept": SVG_TYPE})
+    assert response.status_code == 422
+    assert response.mimetype == "application/problem+json"
+    assert {"stages", "points"} <= set(response.get_json()["errors"])
+
+
+def test_staged_plans_curve_request_posted_back_gives_the_plans_risks(client: Any) -> None:
+    plan = client.post(PLAN, json={"tolerable_rate": 0.05, "expected_rate": 0.01,
+                                   "population": {"size": 4200}}).get_json()
+    assert plan["links"] == {"curve": "/v1/plans/staged/curve"}
+    assert plan["curve_request"]["stages"] == plan["stages"]
+    curve = client.post(plan["links"]["curve"], json=plan["curve_request"]).get_json()
+    assert curve["method"] == plan["method"] == "hypergeometric"
+    assert curve["population_size"] == 4200
+    assert curve["risk_of_overreliance"] == pytest.approx(plan["risk_of_overreliance"],
+                                                          rel=1e-12)
+    assert curve["risk_of_underreliance"] == pytest.approx(plan["risk_of_underreliance"],
+                                                           rel=1e-12)
+    assert curve["expected_sample_size_at_expected_rate"] == pytest.approx(
+        plan["expected_sample_size_at_expected_rate"], rel=1e-12)
