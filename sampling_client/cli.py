@@ -311,8 +311,8 @@ def build_parser(with_operations: bool = True) -> argparse.ArgumentParser:
     serve.add_argument("--host", help="address to listen on (default: $HOST, else 127.0.0.1)")
     serve.add_argument("--port", type=_port, help="port (default: $PORT, else 8000)")
     serve.add_argument("--workers", type=_port, metavar="N",
-                       help="worker processes (default: $WEB_CONCURRENCY, else 2 × cores + "
-                       "1, at most 8)")
+                       help="worker processes (default: $WEB_CONCURRENCY, else one per core, "
+                       "at most 8)")
     for name, what in (("health", "liveness and version"), ("ready", "readiness")):
         sub = subparsers.add_parser(name, help=f"ask a running service its {what}",
                                     parents=[common], allow_abbrev=False, epilog=EPILOG,

@@ -8,7 +8,7 @@ variable                 default                  meaning
 ======================== ======================== =============================================
 HOST                     127.0.0.1                address to listen on (the image sets 0.0.0.0)
 PORT                     8000                     port to listen on
-WEB_CONCURRENCY          2 × cores + 1, at most 8 worker processes
+WEB_CONCURRENCY          cores, at most 8         worker processes (see below)
 GUNICORN_THREADS         1                        threads per worker (the work is CPU-bound)
 GUNICORN_TIMEOUT         30                       seconds before a silent worker is restarted
 GUNICORN_GRACEFUL_TIMEOUT 30                      seconds in-flight requests get after SIGTERM
@@ -19,6 +19,11 @@ GUNICORN_ACCESS_LOG      unset                    1 adds gunicorn's own access l
                                                   app's one JSON line per request
 PROMETHEUS_MULTIPROC_DIR a new temporary folder   where workers keep their metric files
 ======================== ======================== =============================================
+
+Workers: one per core. The work is CPU-bound and each sync worker answers one request at
+a time, so more workers than cores only add context switches and cache misses: on a
+2-core machine, 2 × cores + 1 workers cost more server CPU per request than 2 workers for
+the same throughput (``bench/echo_compare.py``, figures in BENCHMARKS.md).
 
 Metrics: with several worker processes each keeps its own counters, so the Prometheus
 client runs in multiprocess mode. The folder is emptied when the server starts, and a
@@ -70,7 +75,7 @@ def _metrics_dir() -> str:
 
 
 bind = f"{os.environ.get('HOST', '127.0.0.1')}:{_int('PORT', 8000)}"
-workers = _int("WEB_CONCURRENCY", min(2 * multiprocessing.cpu_count() + 1, 8))
+workers = _int("WEB_CONCURRENCY", min(multiprocessing.cpu_count(), 8))
 threads = _int("GUNICORN_THREADS", 1)
 timeout = _int("GUNICORN_TIMEOUT", 30)
 graceful_timeout = _int("GUNICORN_GRACEFUL_TIMEOUT", 30)

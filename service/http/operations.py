@@ -173,6 +173,10 @@ def _read_body() -> bytes:
 def negotiate(operation: Operation) -> str:
     """The media type to answer with, from the Accept header (406 when none is acceptable)."""
     offered = operation.media_types
+    # The usual header names one offered type alone: no need to parse and rank it.
+    sent = request.headers.get("Accept", "")
+    if sent in offered:
+        return sent
     if not request.accept_mimetypes:
         return JSON
     best = request.accept_mimetypes.best_match(offered)

@@ -35,17 +35,24 @@ Garwood, F. (1936). Fiducial limits for the Poisson distribution.
 
 from __future__ import annotations
 
+import math
 from collections.abc import Callable
 from dataclasses import dataclass
 from fractions import Fraction
-from functools import partial
+from functools import lru_cache, partial
 from typing import Any
 
 import numpy as np
 from scipy import special, stats
 
+try:
+    # the quantile scipy.stats.beta.ppf calls, without its generic argument handling
+    from scipy.special._ufuncs import _beta_ppf
+except ImportError:  # pragma: no cover - a scipy that moved it
+    _beta_ppf = stats.beta.ppf
+
 from service.sampling import hypergeometric
-from service.sampling.distributions import Model, deviant_items, resolve_model
+from service.sampling.distributions import MODELS, Model, deviant_items, resolve_model
 from service.sampling.errors import ComputationTooLarge, InvalidInput, NoFeasiblePlan
 from service.sampling.rates import ceil_product, exact_rate, floor_quotient
 from service.sampling.ties import at_most, at_most_each, hypergeometric_above
@@ -194,6 +201,73 @@ def _smallest_satisfying(holds: Callable[[int], bool], lo: int, hi: int) -> int:
     return lo
 
 
+def _smallest_satisfying_below(
+    holds: Callable[[int], bool], lo: int, hi: int, first_step: int = 1
+) -> int:
+    """Smallest n in [lo, hi] with ``holds(n)``, for ``holds`` monotone and true at ``hi``.
+
+    Searched downwards from ``hi`` by doubling steps, the first of ``first_step``, then
+    by bisection: when ``hi`` is a close upper bound of the answer (the binomial plan for
+    a hypergeometric one) and ``first_step`` about the distance to it, a few evaluations
+    settle it.
+    """
+    step = max(1, first_step)
+    while hi - step >= lo and holds(hi - step):
+        hi -= step
+        step *= 2
+    lo = max(lo, hi - step + 1)
+    while lo < hi:
+        mid = (lo + hi) // 2
+        if holds(mid):
+            hi = mid
+        else:
+            lo = mid + 1
+    return lo
+
+
+def _largest_qualifying(qualifies: Callable[[int], bool], lo: int, hi: int, guess: int) -> int:
+    """Largest m in [lo, hi] with ``qualifies(m)``, for ``qualifies`` true at ``lo`` and
+    monotone (true, then false).
+
+    The search starts at ``guess`` and moves away from it by doubling steps until the
+    answer is bracketed, then bisects; a guess within a few units of the answer settles
+    it in a few evaluations, and any guess gives the same answer.
+    """
+    probe = min(max(guess, lo), hi)
+    if probe > lo:
+        step = 1
+        if qualifies(probe):
+            lo = probe
+            while lo + step <= hi:
+                if not qualifies(lo + step):
+                    hi = lo + step - 1
+                    break
+                lo += step
+                step *= 2
+        else:
+            hi = probe - 1
+            while hi - step + 1 > lo:
+                below = hi - step + 1
+                if qualifies(below):
+                    lo = below
+                    break
+                hi = below - 1
+                step *= 2
+    while lo < hi:
+        mid = (lo + hi + 1) // 2
+        if qualifies(mid):
+            lo = mid
+        else:
+            hi = mid - 1
+    return lo
+
+
+def _smallest_qualifying(qualifies: Callable[[int], bool], lo: int, hi: int, guess: int) -> int:
+    """Smallest m in [lo, hi] with ``qualifies(m)``, for ``qualifies`` true at ``hi`` and
+    monotone (false, then true); searched from ``guess`` as :func:`_largest_qualifying`."""
+    return -_largest_qualifying(lambda m: qualifies(-m), -hi, -lo, -guess)
+
+
 def _tail_within(model: Model, rate: Fraction, population_size: int | None, risk: Fraction,
                  k: int, n: int) -> bool:
     return at_most(model.name, k, n, rate, population_size, risk).holds
@@ -228,6 +302,12 @@ def _plan_search(
         return model.lower_tail(k, n, tolerable, population_size)
 
     within = partial(_tail_within, model, tolerable, population_size, alpha)
+    if model.needs_population and population_size is not None:
+        found = _plan_below_binomial(
+            within, tolerable, expected, alpha, population_size, max_n, max_deviations, tail
+        )
+        if found is not None:
+            return found
     if expected == 0:
         if not within(0, max_n):
             return None
@@ -260,6 +340,96 @@ def _plan_search(
             return _smallest_satisfying(partial(within, k), block_low[i], block_high[i]), k
         first_k += chunk
         chunk = min(4 * chunk, 4096)
+
+
+def _binomial_plan_guess(
+    rate: float, expected: Fraction, alpha: float, max_n: int, max_deviations: int
+) -> tuple[int, int] | None:
+    """The binomial plan at ``rate``, decided in doubles (no exact decision near a tie):
+    a starting point for the exact hypergeometric search, not an answer. None when it
+    would allow more than ``max_deviations`` deviations or need more than ``max_n`` items.
+    """
+
+    def holds(k: int, n: int) -> bool:
+        return bool(k < n and special.betaincc(k + 1, n - k, rate) <= alpha)
+
+    if expected == 0:
+        if not holds(0, max_n):
+            return None
+        return _smallest_satisfying(partial(holds, 0), 1, max_n), 0
+    # Blocks of n allowing k deviations, tested at their largest n, in growing chunks.
+    first, chunk = 1, 8
+    while first <= max_deviations:
+        ks = range(first, min(first + chunk, max_deviations + 1))
+        lows = [floor_quotient(k - 1, expected) + 1 for k in ks]
+        highs = [min(floor_quotient(k, expected), max_n) for k in ks]
+        k_arr, high_arr = np.array(ks, dtype=np.int64), np.array(highs, dtype=np.int64)
+        inside = (np.array(lows, dtype=np.int64) <= high_arr) & (k_arr < high_arr)
+        tails = special.betaincc(k_arr + 1, np.where(inside, high_arr - k_arr, 1), rate)
+        hits = np.flatnonzero(inside & (tails <= alpha))
+        if hits.size:
+            i = int(hits[0])
+            return _smallest_satisfying(partial(holds, ks[i]), lows[i], highs[i]), ks[i]
+        if lows[-1] > max_n:
+            return None
+        first += chunk
+        chunk = min(4 * chunk, 4096)
+    return None
+
+
+def _plan_below_binomial(
+    within: Callable[[int, int], bool],
+    tolerable: Fraction,
+    expected: Fraction,
+    alpha: Fraction,
+    population_size: int,
+    max_n: int,
+    max_deviations: int,
+    tail: Callable[[Any, Any], Any],
+) -> tuple[int, int] | None:
+    """The hypergeometric plan, searched downwards from the binomial one; None when the
+    binomial plan is not an upper bound here (the full search then decides).
+
+    The binomial plan at the population's deviation rate ``ceil(t N) / N`` usually
+    satisfies the hypergeometric condition too (sampling without replacement is less
+    dispersed), so it bounds the answer from above; this is checked, not assumed, and
+    the binomial plan is found in doubles alone (:func:`_binomial_plan_guess`): a wrong
+    guess costs time, never the answer. With ``n_b`` allowing ``k_b`` deviations,
+    blocks allowing fewer deviations are tested at their largest ``n`` (one vectorised
+    evaluation); the answer is the smallest ``n``
+    of the first of them that holds there, or else of block ``k_b`` up to ``n_b``, found
+    downwards. It is the one :func:`_plan_search` finds by scanning up from one deviation.
+    """
+    rate = deviant_items(tolerable, population_size) / population_size
+    bound = _binomial_plan_guess(rate, expected, float(alpha), max_n, max_deviations)
+    if bound is None:
+        return None
+    n_b, k_b = bound
+    if not within(k_b, n_b):
+        return None
+    # Sampling without replacement shrinks the variance by about (N − n) / N, and the
+    # sample needed roughly with it: the first step down is that much of n_b.
+    first_step = n_b * n_b // population_size
+    if expected == 0:
+        return _smallest_satisfying_below(partial(within, 0), 1, n_b, first_step), 0
+    if k_b > 1:
+        ks = np.arange(1, k_b, dtype=np.int64)
+        block_low = np.array([floor_quotient(k - 1, expected) + 1 for k in range(1, k_b)],
+                             dtype=np.int64)
+        block_high = np.array([floor_quotient(k, expected) for k in range(1, k_b)],
+                              dtype=np.int64)
+        ns = np.maximum(block_high, ks)
+        feasible = (block_low <= block_high) & at_most_each(
+            "hypergeometric", ks, ns, tail(ks, ns), tolerable, population_size, alpha
+        )
+        hits = np.flatnonzero(feasible)
+        if hits.size:
+            # The first block that holds at its largest n holds the answer, as in the scan.
+            i = int(hits[0])
+            holds = partial(within, int(ks[i]))
+            return _smallest_satisfying_below(holds, int(block_low[i]), int(ns[i])), int(ks[i])
+    low = floor_quotient(k_b - 1, expected) + 1
+    return _smallest_satisfying_below(partial(within, k_b), low, n_b, first_step), k_b
 
 
 def size_sample(
@@ -340,13 +510,13 @@ def size_sample(
             raise _too_large(estimate, expected_rate, tolerable_rate, max_sample_size)
 
     try:
-        found = _plan_search(model, tolerable, expected, alpha, population_size, max_n)
+        planned = _planned(model.name, tolerable, expected, alpha, population_size, max_n)
     except _TooManyDeviations:
         raise _over_the_cap(
             model, tolerable, expected, alpha, population_size, max_n, expected_rate,
             tolerable_rate, confidence,
         ) from None
-    if found is None:
+    if planned is None:
         if max_n == max_sample_size:
             raise ComputationTooLarge(
                 "tolerable_rate",
@@ -361,8 +531,60 @@ def size_sample(
             f"reach the {deviant_items(tolerable, max_n)} deviant items the population "
             f"holds at tolerable_rate {tolerable_rate!r}",
         )
-    n, k = found
+    return SampleSizePlan(
+        method=model.name,
+        tolerable_rate=tolerable_rate,
+        expected_rate=expected_rate,
+        confidence=confidence,
+        population_size=population_size,
+        population_label=population_label,
+        sample_size=planned.sample_size,
+        allowed_deviations=planned.allowed_deviations,
+        achieved_confidence=1.0 - planned.risk_of_overreliance,
+        risk_of_overreliance=planned.risk_of_overreliance,
+        risk_of_underreliance=planned.risk_of_underreliance,
+        warnings=planned.warnings,
+        tolerable_deviant_items=(
+            None if population_size is None else deviant_items(tolerable, population_size)
+        ),
+    )
 
+
+@dataclass(frozen=True)
+class _Planned:
+    """What a plan's exact inputs determine: the plan, its two risks and its warnings."""
+
+    sample_size: int
+    allowed_deviations: int
+    risk_of_overreliance: float
+    risk_of_underreliance: float
+    warnings: tuple[str, ...]
+
+
+#: Plans kept per process, keyed by their exact inputs: month-end requests repeat a
+#: firm's standard parameters. A plan is a few hundred bytes.
+PLAN_MEMO_SIZE = 1024
+
+
+@lru_cache(maxsize=PLAN_MEMO_SIZE)
+def _planned(
+    method: str,
+    tolerable: Fraction,
+    expected: Fraction,
+    alpha: Fraction,
+    population_size: int | None,
+    max_n: int,
+) -> _Planned | None:
+    """The plan for exact rates, or None when no sample of at most ``max_n`` items holds.
+
+    A pure function of its arguments (the written rates, not their doubles), so its
+    answers are kept in a bounded memo; refusals raise and are not kept.
+    """
+    model = MODELS[method]
+    found = _plan_search(model, tolerable, expected, alpha, population_size, max_n)
+    if found is None:
+        return None
+    n, k = found
     risk_over = at_most(model.name, k, n, tolerable, population_size, alpha).value
     risk_under = 0.0 if expected == 0 else float(model.upper_tail(k, n, expected, population_size))
     # With no deviations expected the plan is its own zero-deviation plan.
@@ -371,23 +593,7 @@ def size_sample(
     if 0 < expected * n < _TINY_EXPECTED_COUNT:
         warnings += (_tiny_expected_warning(model, expected, n, k, tolerable, alpha,
                                             population_size, max_n),)
-    return SampleSizePlan(
-        method=model.name,
-        tolerable_rate=tolerable_rate,
-        expected_rate=expected_rate,
-        confidence=confidence,
-        population_size=population_size,
-        population_label=population_label,
-        sample_size=n,
-        allowed_deviations=k,
-        achieved_confidence=1.0 - risk_over,
-        risk_of_overreliance=risk_over,
-        risk_of_underreliance=risk_under,
-        warnings=warnings,
-        tolerable_deviant_items=(
-            None if population_size is None else deviant_items(tolerable, population_size)
-        ),
-    )
+    return _Planned(n, k, risk_over, risk_under, warnings)
 
 
 def _tiny_expected_warning(
@@ -480,9 +686,17 @@ def _plan_warnings(
                 "The sample is more than 10% of the population; the hypergeometric method "
                 "would give a smaller sample (common practice threshold)."
             )
+    # The zero-deviation plan's size z is the smallest n with P(X = 0) ≤ risk, a tail
+    # that falls as n grows; so n > 3 z exactly when the condition holds at
+    # m = floor((n − 1) / 3). One tail decides, and z itself is searched for only when
+    # the warning is given, to be named in it.
     if zero_size is None:
-        zero_plan = _plan_search(model, tolerable, Fraction(0), alpha, population_size, max_n)
-        zero_size = None if zero_plan is None else zero_plan[0]
+        largest_small = (n - 1) // _LARGE_PLAN_FACTOR
+        if largest_small >= 1 and _tail_within(model, tolerable, population_size, alpha, 0,
+                                               largest_small):
+            zero_plan = _plan_search(model, tolerable, Fraction(0), alpha, population_size,
+                                     largest_small)
+            zero_size = None if zero_plan is None else zero_plan[0]
     if zero_size is not None and n > _LARGE_PLAN_FACTOR * zero_size:
         warnings.append(
             f"The expected rate is close to the tolerable rate: the sample of {n:,} is more "
@@ -504,14 +718,15 @@ def _binomial_upper(d: int, n: int, alpha: float) -> float:
     """Clopper–Pearson one-sided upper bound with risk ``alpha``."""
     if d == n:
         return 1.0
-    return float(stats.beta.isf(alpha, d + 1, n - d))
+    # the inverse scipy.stats.beta.isf calls, without its generic argument handling
+    return float(special.betainccinv(d + 1, n - d, alpha))
 
 
 def _binomial_lower(d: int, n: int, alpha: float) -> float:
     """Clopper–Pearson one-sided lower bound with risk ``alpha``."""
     if d == 0:
         return 0.0
-    return float(stats.beta.ppf(alpha, d, n - d + 1))
+    return float(_beta_ppf(alpha, d, n - d + 1))
 
 
 def _poisson_upper(d: int, n: int, alpha: float) -> float:
@@ -527,26 +742,26 @@ def _poisson_lower(d: int, n: int, alpha: float) -> float:
 
 
 def _hypergeometric_upper_count(d: int, n: int, size: int, alpha: Fraction) -> int:
-    """Largest deviant count M with P(X ≤ d | M) > alpha (exact, by bisection)."""
+    """Largest deviant count M with P(X ≤ d | M) > alpha (exact).
+
+    Searched from the Clopper–Pearson bound ``p_U N``, which sampling without
+    replacement rarely exceeds by much: the bracket grows from there by doubling steps
+    and is then bisected, so the answer is the one a bisection over ``[d, N − n + d]``
+    gives, in a few evaluations instead of ``log2 N``.
+    """
     lo, hi = d, size - (n - d)  # P(X ≤ d | M = d) = 1, so lo always qualifies
 
     def qualifies(m: int) -> bool:
         value = float(hypergeometric.cdf(d, size, m, n))
         return hypergeometric_above(d, size, m, n, alpha, value, upper=False)
 
-    if qualifies(hi):
-        return hi
-    while hi - lo > 1:
-        mid = (lo + hi) // 2
-        if qualifies(mid):
-            lo = mid
-        else:
-            hi = mid
-    return lo
+    guess = math.floor(_binomial_upper(d, n, float(alpha)) * size)
+    return _largest_qualifying(qualifies, lo, hi, guess)
 
 
 def _hypergeometric_lower_count(d: int, n: int, size: int, alpha: Fraction) -> int:
-    """Smallest deviant count M with P(X ≥ d | M) > alpha (exact, by bisection)."""
+    """Smallest deviant count M with P(X ≥ d | M) > alpha (exact), searched from the
+    Clopper–Pearson lower bound as :func:`_hypergeometric_upper_count` is."""
     if d == 0:
         return 0
     lo, hi = d, size - (n - d)  # P(X ≥ d | M = hi) = 1, so hi always qualifies
@@ -555,7 +770,8 @@ def _hypergeometric_lower_count(d: int, n: int, size: int, alpha: Fraction) -> i
         value = float(hypergeometric.sf(d - 1, size, m, n))
         return hypergeometric_above(d - 1, size, m, n, alpha, value, upper=True)
 
-    return _smallest_satisfying(qualifies, lo, hi)
+    guess = math.ceil(_binomial_lower(d, n, float(alpha)) * size)
+    return _smallest_qualifying(qualifies, lo, hi, guess)
 
 
 @dataclass(frozen=True)
@@ -565,8 +781,7 @@ class _Limits:
     interval: Interval
 
 
-def _binomial_limits(d: int, n: int, confidence: float, size: int | None) -> _Limits:
-    alpha = 1 - exact_rate(confidence)
+def _binomial_limits(d: int, n: int, alpha: Fraction, size: int | None) -> _Limits:
     half = float(alpha / 2)
     return _Limits(
         _binomial_upper(d, n, float(alpha)),
@@ -575,8 +790,7 @@ def _binomial_limits(d: int, n: int, confidence: float, size: int | None) -> _Li
     )
 
 
-def _poisson_limits(d: int, n: int, confidence: float, size: int | None) -> _Limits:
-    alpha = 1 - exact_rate(confidence)
+def _poisson_limits(d: int, n: int, alpha: Fraction, size: int | None) -> _Limits:
     half = float(alpha / 2)
     return _Limits(
         _poisson_upper(d, n, float(alpha)),
@@ -585,21 +799,36 @@ def _poisson_limits(d: int, n: int, confidence: float, size: int | None) -> _Lim
     )
 
 
-def _hypergeometric_limits(d: int, n: int, confidence: float, size: int | None) -> _Limits:
+def _hypergeometric_limits(d: int, n: int, alpha: Fraction, size: int | None) -> _Limits:
     if size is None:
         raise InvalidInput("population.size", "the hypergeometric method needs a population size")
-    alpha = 1 - exact_rate(confidence)
     upper = _hypergeometric_upper_count(d, n, size, alpha)
     low = _hypergeometric_lower_count(d, n, size, alpha / 2)
     high = _hypergeometric_upper_count(d, n, size, alpha / 2)
     return _Limits(upper / size, upper, Interval(low / size, high / size))
 
 
-_LIMITS: dict[str, Callable[[int, int, float, int | None], _Limits]] = {
+_LIMITS: dict[str, Callable[[int, int, Fraction, int | None], _Limits]] = {
     "binomial": _binomial_limits,
     "hypergeometric": _hypergeometric_limits,
     "poisson": _poisson_limits,
 }
+
+
+@lru_cache(maxsize=PLAN_MEMO_SIZE)
+def _limits(method: str, d: int, n: int, alpha: Fraction, size: int | None) -> _Limits:
+    """The limits of ``d`` deviations in ``n`` items at risk ``alpha``: a pure function of
+    its arguments, kept in a bounded memo as the plans are."""
+    return _LIMITS[method](d, n, alpha, size)
+
+
+@lru_cache(maxsize=PLAN_MEMO_SIZE)
+def _reliance(method: str, d: int, n: int, tolerable: Fraction, size: int | None,
+              alpha: Fraction) -> tuple[float, bool]:
+    """The risk at the tolerable rate, ``P(X ≤ d)``, and whether it is at most ``alpha``
+    (decided exactly near a tie); kept in a bounded memo as the limits are."""
+    decision = at_most(method, d, n, tolerable, size, alpha)
+    return decision.value, decision.holds
 
 
 def evaluate_sample(
@@ -697,7 +926,8 @@ def evaluate_sample(
         count = deviations if model.needs_population else None
         limits = _Limits(exact, count, Interval(exact, exact))
     else:
-        limits = _LIMITS[model.name](deviations, sample_size, confidence, population_size)
+        limits = _limits(model.name, deviations, sample_size, 1 - exact_rate(confidence),
+                         population_size)
     upper = (
         Fraction(limits.upper_count, population_size)
         if limits.upper_count is not None and population_size is not None
@@ -716,11 +946,10 @@ def evaluate_sample(
             risk = 1.0 if deviations >= tolerable_count else 0.0
             supports = deviations < tolerable_count
         else:
-            decision = at_most(
+            risk, supports = _reliance(
                 model.name, deviations, sample_size, exact_rate(tolerable_rate),
                 population_size, 1 - exact_rate(confidence),
             )
-            risk, supports = decision.value, decision.holds
 
     warnings: list[str] = []
     if whole and not model.needs_population:

@@ -55,10 +55,19 @@ def deviant_items(rate: Fraction, population_size: int) -> int:
     return ceil_product(rate, population_size)
 
 
+def _both_integers(k: Counts, n: Counts) -> bool:
+    return isinstance(k, int | np.integer) and isinstance(n, int | np.integer)
+
+
 def _binomial_lower(k: Counts, n: Counts, rate: Fraction, population_size: int | None) -> Any:
     # P(X ≤ k) = 1 − I_p(k + 1, n − k), the regularised incomplete beta function (Johnson,
     # Kemp & Kotz 2005, §3.7), called directly: scipy.stats' generic machinery costs
-    # about 100 times as much per scalar call as the function itself.
+    # about 100 times as much per scalar call as the function itself. Integer arguments
+    # skip the arrays: building them costs more than the function.
+    if _both_integers(k, n):
+        if 0 <= k < n:
+            return special.betaincc(k + 1, n - k, float(rate))
+        return np.float64(0.0 if k < 0 else 1.0)
     k, n = np.asarray(k), np.asarray(n)
     inside = (k >= 0) & (k < n)
     value = special.betaincc(np.where(inside, k + 1, 1), np.where(inside, n - k, 1), float(rate))
@@ -66,6 +75,10 @@ def _binomial_lower(k: Counts, n: Counts, rate: Fraction, population_size: int |
 
 
 def _binomial_upper(k: Counts, n: Counts, rate: Fraction, population_size: int | None) -> Any:
+    if _both_integers(k, n):
+        if 0 <= k < n:
+            return special.betainc(k + 1, n - k, float(rate))
+        return np.float64(1.0 if k < 0 else 0.0)
     k, n = np.asarray(k), np.asarray(n)
     inside = (k >= 0) & (k < n)
     value = special.betainc(np.where(inside, k + 1, 1), np.where(inside, n - k, 1), float(rate))
@@ -98,6 +111,10 @@ def _hypergeometric_upper(
 
 def _poisson_lower(k: Counts, n: Counts, rate: Fraction, population_size: int | None) -> Any:
     # P(Y ≤ k) = Q(k + 1, λ), the regularised upper incomplete gamma function.
+    if _both_integers(k, n):
+        if k >= 0:
+            return special.gammaincc(k + 1, np.multiply(n, float(rate)))
+        return np.float64(0.0)
     k, mean = np.asarray(k), np.multiply(n, float(rate))
     inside = k >= 0
     value = special.gammaincc(np.where(inside, k + 1, 1), mean)
@@ -105,6 +122,10 @@ def _poisson_lower(k: Counts, n: Counts, rate: Fraction, population_size: int | 
 
 
 def _poisson_upper(k: Counts, n: Counts, rate: Fraction, population_size: int | None) -> Any:
+    if _both_integers(k, n):
+        if k >= 0:
+            return special.gammainc(k + 1, np.multiply(n, float(rate)))
+        return np.float64(1.0)
     k, mean = np.asarray(k), np.multiply(n, float(rate))
     inside = k >= 0
     value = special.gammainc(np.where(inside, k + 1, 1), mean)

@@ -129,8 +129,8 @@ def test_loading_the_settings_imports_neither_flask_nor_the_metrics_client(
 def test_gunicorn_defaults(tmp_path: Path) -> None:
     values = loaded_settings(child_environment(tmp_path))
     assert values["bind"] == "127.0.0.1:8000"
-    # The documented default: 2 × cores + 1 worker processes, at most 8.
-    assert values["workers"] == min(2 * multiprocessing.cpu_count() + 1, 8)
+    # The documented default: one worker process per core, at most 8.
+    assert values["workers"] == min(multiprocessing.cpu_count(), 8)
     assert (values["threads"], values["timeout"], values["graceful_timeout"]) == (1, 30, 30)
     assert (values["max_requests"], values["max_requests_jitter"]) == (2000, 200)
 

@@ -102,11 +102,12 @@ def at_most(
     """
     if value is None:
         value = float(MODELS[model].lower_tail(k, n, rate, population_size))
-    if not near(value, float(risk)):
-        return Decision(bool(value <= float(risk)), value, exact=False)
+    risk_float = float(risk)
+    if not near(value, risk_float):
+        return Decision(value <= risk_float, value, exact=False)
     found = _exact_sign(model, k, n, rate, population_size, risk)
     if found is None:
-        return Decision(bool(value <= float(risk)), value, exact=False)
+        return Decision(value <= risk_float, value, exact=False)
     sign, exact_value = found
     return Decision(sign <= 0, exact_value, exact=True)
 
