@@ -23,8 +23,8 @@ from flask import Blueprint, Response, current_app, request
 from marshmallow import Schema, ValidationError
 from werkzeug.exceptions import RequestEntityTooLarge
 
-from service import jsonio
-from service.http import markdown, uploads
+from service import deadline, jsonio
+from service.http import costs, markdown, uploads
 from service.http.markdown import MARKDOWN, TicketLayout
 from service.problems import (
     MALFORMED_BODY,
@@ -203,12 +203,28 @@ def run(
         raise from_validation_error(exc) from None
     if operation.accepts_file:
         inputs = {**inputs, "upload": upload, "upload_name": upload_name}
+    if upload is None:
+        # A file is bounded by the file limits and the upload deadline instead.
+        costs.check(costs.estimate(operation.name, inputs), settings.max_request_cost)
     try:
         result = operation.run(inputs, settings)
     except SamplingError as exc:
         raise from_sampling_error(exc) from None
     document: dict[str, Any] = operation.schema_for(result).dump(result)
     return document, result
+
+
+def cost(operation: Operation, payload: Any, settings: Settings) -> costs.Cost:
+    """The estimated cost of ``payload``; nothing when it is invalid (it will be refused)."""
+    try:
+        if operation.precheck is not None:
+            operation.precheck(payload, settings)
+        inputs = operation.request_schema.load(payload)
+    except (SamplingError, ValidationError):
+        return costs.Cost(0)
+    if operation.accepts_file:
+        inputs = {**inputs, "upload": None, "upload_name": ""}
+    return costs.estimate(operation.name, inputs)
 
 
 def execute(operation: Operation, payload: Any, settings: Settings) -> dict[str, Any]:
@@ -225,7 +241,7 @@ def _view(declared: Operation) -> Callable[[], Response]:
         media_type = negotiate(operation)
         if operation.accepts_file and uploads.is_multipart():
             # Rendered inside the block: the temporary file lives until the answer is made.
-            with uploads.received(settings) as upload:
+            with deadline.guard(settings.upload_deadline), uploads.received(settings) as upload:
                 document, result = run(
                     operation, upload.payload, settings, upload.path, upload.filename
                 )
@@ -233,9 +249,12 @@ def _view(declared: Operation) -> Callable[[], Response]:
         else:
             if operation.takes_item_lists:
                 request.max_content_length = settings.max_list_body_bytes
-            payload = read_json_body(operation.accepts_file or operation.file_form is not None)
-            document, result = run(operation, payload, settings)
-            body = operation.render(media_type, payload, document, result)
+            with deadline.guard(settings.request_deadline):
+                payload = read_json_body(
+                    operation.accepts_file or operation.file_form is not None
+                )
+                document, result = run(operation, payload, settings)
+                body = operation.render(media_type, payload, document, result)
         response = current_app.response_class(body, status=200, mimetype=media_type)
         response.vary.add("Accept")
         return response
