@@ -16,6 +16,7 @@ from collections.abc import Mapping
 from typing import Any
 
 from schemas.batch import BatchRequest, BatchSchema
+from service import jsonio
 from service.http import costs, markdown
 from service.http.markdown import TicketLayout
 from service.http.operations import Operation, blueprint, cost, execute
@@ -62,7 +63,9 @@ def work_units(request: Any) -> int:
 
 
 def _count_operations(payload: Any, settings: Settings) -> None:
-    """Refuse more operations than allowed before any of them is validated."""
+    """Refuse more operations than allowed before any of them is validated, and text that
+    cannot be written back outside the items' requests (each request is checked by its
+    own operation, so that a bad one fails only its item)."""
     items = payload.get("operations") if isinstance(payload, dict) else None
     if isinstance(items, list) and len(items) > settings.max_batch_operations:
         raise ComputationTooLarge(
@@ -70,6 +73,18 @@ def _count_operations(payload: Any, settings: Settings) -> None:
             f"holds {len(items):,} operations; a batch may hold at most "
             f"{settings.max_batch_operations:,}",
         )
+    envelope = payload
+    if isinstance(items, list):
+        envelope = {
+            **payload,
+            "operations": [
+                {k: v for k, v in item.items() if k != "request"}
+                if isinstance(item, dict) else item
+                for item in items
+            ],
+        }
+    if unencodable := jsonio.lone_surrogates(envelope):
+        raise invalid_input(unencodable)
 
 
 def _check_work(items: list[dict[str, Any]], settings: Settings) -> None:
@@ -255,6 +270,7 @@ OPERATIONS = [
         response=BatchSchema,
         run=_run,
         precheck=_count_operations,
+        carries_requests=True,
         tag="batch",
         renderers={markdown.MARKDOWN: render_markdown},
         ticket=TicketLayout(

@@ -32,6 +32,7 @@ from service.problems import (
     Problem,
     from_sampling_error,
     from_validation_error,
+    invalid_input,
 )
 from service.sampling.errors import SamplingError
 from service.settings import Settings
@@ -77,6 +78,9 @@ class Operation:
     # Other answers the operation gives: a core result of one of these types is dumped with
     # its schema instead of ``response`` (the spec lists them all as ``oneOf``).
     variants: Mapping[type, type[Schema]] = field(default_factory=dict)
+    # The payload carries other operations' requests (a batch): the text check for lone
+    # surrogates is left to the precheck and to each carried operation.
+    carries_requests: bool = False
 
     @cached_property
     def request_schema(self) -> Schema:
@@ -197,6 +201,8 @@ def run(
             operation.precheck(payload, settings)
         except SamplingError as exc:
             raise from_sampling_error(exc) from None
+    if not operation.carries_requests and (unencodable := jsonio.lone_surrogates(payload)):
+        raise invalid_input(unencodable)
     try:
         inputs = operation.request_schema.load(payload)
     except ValidationError as exc:
@@ -232,9 +238,27 @@ def execute(operation: Operation, payload: Any, settings: Settings) -> dict[str,
     return run(operation, payload, settings)[0]
 
 
+def refuse_content_encoding() -> None:
+    """Refuse (415) a body sent with a content coding: bodies are read as sent, and a
+    compressed body would otherwise be refused as malformed, or, with a coding named
+    but not applied, read as if the label were absent."""
+    coding = request.headers.get("Content-Encoding", "").strip().lower()
+    if coding not in ("", "identity"):
+        raise Problem(
+            415,
+            "Unsupported Media Type",
+            f"send the body without a content coding (got Content-Encoding: {coding[:40]}); "
+            "this service reads bodies as sent",
+            UNSUPPORTED_MEDIA_TYPE,
+            errors={"Content-Encoding": ["must be absent or identity"]},
+            headers={"Accept-Encoding": "identity"},
+        )
+
+
 def _view(declared: Operation) -> Callable[[], Response]:
     def view() -> Response:
         settings: Settings = current_app.config["SETTINGS"]
+        refuse_content_encoding()
         operation = declared
         if declared.file_form is not None and uploads.is_multipart():
             operation = declared.file_form
