@@ -152,6 +152,13 @@ def register(app: Flask) -> None:
     def _http(exc: HTTPException) -> Response:
         return problem_response(_from_http_exception(exc))
 
+    @app.errorhandler(TimeoutError)
+    def _slow_body(exc: TimeoutError) -> Response:
+        # The socket's read timeout passed while the body was read (see gunicorn_worker).
+        return problem_response(
+            Problem(408, "Request Timeout", "the request body stopped arriving; send it whole")
+        )
+
     @app.errorhandler(Exception)
     def _unexpected(exc: Exception) -> Response:
         logger.exception("unhandled error on %s %s", request.method, request.path)
