@@ -160,7 +160,7 @@ def _check_cost(
         raise costs.too_large(
             costs.Cost(total, ("operations",)),
             settings.max_request_cost,
-            f"the batch's {len(items):,} operations together (the largest: {largest})",
+            f"the batch's {len(items):,} operations (the largest: {largest})",
         )
 
 

@@ -155,7 +155,12 @@ def estimation(inputs: Mapping[str, Any]) -> Cost:
         population = _population_size(inputs)
         per_size = 5.0 if population is None else 60.0
         units += int(per_size * _finite(normal, population))
-    return Cost(units, ("margin", "confidence", "anticipated_rate", "population.size"))
+    drivers = ["margin", "confidence"]
+    if _get(inputs, "anticipated_rate") is not None:
+        drivers.append("anticipated_rate")
+    if _population_size(inputs) is not None:
+        drivers.append("population.size")
+    return Cost(units, tuple(drivers))
 
 
 def staged_plan(inputs: Mapping[str, Any]) -> Cost:
@@ -257,17 +262,21 @@ def estimate(name: str, inputs: Mapping[str, Any]) -> Cost:
     return ESTIMATORS[name](inputs)
 
 
-def too_large(cost: Cost, budget: int, what: str = "this request") -> Problem:
-    """The 422 refusing ``cost`` above ``budget``, one message per driving field."""
-    message = (
-        f"{what} is estimated at {cost.units:,} cost units, above the budget of {budget:,} "
-        "(about a microsecond each); ask for less work, or split it across requests"
+def too_large(cost: Cost, budget: int, what: str = "the request") -> Problem:
+    """The 422 refusing ``cost`` above ``budget``: the detail gives the figures, and
+    ``errors`` names each field that drives the cost."""
+    fields = cost.drivers or ("body",)
+    detail = (
+        f"{what} would cost an estimated {cost.units:,} units (about a microsecond each), "
+        f"above the budget of {budget:,}; the cost grows with {', '.join(fields)}: ask for "
+        "less work, or split it across requests"
     )
-    problem = invalid_input({field: [message] for field in cost.drivers or ("body",)})
-    problem.title, problem.type = "Too much work", TOO_MUCH_WORK
+    message = f"drives the estimated cost, {cost.units:,} units, above the budget of {budget:,}"
+    problem = invalid_input({field: [message] for field in fields})
+    problem.title, problem.type, problem.detail = "Too much work", TOO_MUCH_WORK, detail
     return problem
 
 
-def check(cost: Cost, budget: int, what: str = "this request") -> None:
+def check(cost: Cost, budget: int, what: str = "the request") -> None:
     if cost.units > budget:
         raise too_large(cost, budget, what)
