@@ -3,7 +3,8 @@
 Malformed request lines, an over-long request line, too many header fields and a head
 that stops arriving are answered before the app sees them; each answer is RFC 9457 problem
 details with the documented security headers. With gunicorn's own access line on, a path
-carrying control characters still gives one JSON line per line of log.
+carrying control characters still gives one JSON line per line of log. A request still
+computing at its deadline is stopped in its worker thread and answered 503.
 """
 
 from __future__ import annotations
@@ -24,7 +25,8 @@ HEADER_TIMEOUT = 1
 
 @pytest.fixture(scope="module")
 def server(tmp_path_factory: pytest.TempPathFactory) -> Iterator[Server]:
-    env = {"GUNICORN_HEADER_TIMEOUT": str(HEADER_TIMEOUT), "GUNICORN_ACCESS_LOG": "1"}
+    env = {"GUNICORN_HEADER_TIMEOUT": str(HEADER_TIMEOUT), "GUNICORN_ACCESS_LOG": "1",
+           "SAMPLING_REQUEST_DEADLINE": "0.05"}
     with running_server(tmp_path_factory.mktemp("server-errors"), env, workers=1) as running:
         yield running
 
@@ -102,3 +104,14 @@ def test_server_answers_are_counted_in_the_metrics(server: Server) -> None:
     counted = re.search(r'sampling_server_answers_total\{status="400"\} ([0-9.]+)', text)
     assert counted is not None and float(counted.group(1)) >= 1
 
+
+
+def test_a_request_past_its_deadline_is_answered_503_by_a_live_worker(server: Server) -> None:
+    body = {"margin": 0.003, "confidence": 0.95, "methods": ["exact"]}
+    answer = requests.post(f"{server.url}/v1/estimation/sample-size", json=body, timeout=30)
+    assert answer.status_code == 503
+    assert answer.headers["Content-Type"] == "application/problem+json"
+    assert answer.headers["Retry-After"] == "5"
+    assert answer.json()["type"] == "/problems/deadline-exceeded"
+    assert requests.get(f"{server.url}/v1/health", timeout=5).status_code == 200
+    assert "Worker exiting" not in server.log() and "WORKER TIMEOUT" not in server.log()
