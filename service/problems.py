@@ -16,7 +16,7 @@ from typing import Any
 
 from flask import Flask, Response, request
 from marshmallow import ValidationError
-from werkzeug.exceptions import HTTPException
+from werkzeug.exceptions import ClientDisconnected, HTTPException
 
 from service import jsonio
 from service.context import request_id
@@ -141,6 +141,13 @@ def _body_limit() -> str:
     return "limit" if limit is None else f"{limit:,} bytes"
 
 
+# The socket's read timeout passed while the body was read (service.gunicorn_worker); werkzeug
+# reports it as a client disconnection, or it surfaces as the timeout itself.
+_SLOW_BODY = Problem(
+    408, "Request Timeout", "the request body stopped arriving; send it whole, without pauses"
+)
+
+
 def register(app: Flask) -> None:
     """Install the one error handler for every error."""
 
@@ -150,14 +157,13 @@ def register(app: Flask) -> None:
 
     @app.errorhandler(HTTPException)
     def _http(exc: HTTPException) -> Response:
+        if isinstance(exc, ClientDisconnected) and isinstance(exc.__context__, TimeoutError):
+            return problem_response(_SLOW_BODY)
         return problem_response(_from_http_exception(exc))
 
     @app.errorhandler(TimeoutError)
     def _slow_body(exc: TimeoutError) -> Response:
-        # The socket's read timeout passed while the body was read (see gunicorn_worker).
-        return problem_response(
-            Problem(408, "Request Timeout", "the request body stopped arriving; send it whole")
-        )
+        return problem_response(_SLOW_BODY)
 
     @app.errorhandler(Exception)
     def _unexpected(exc: Exception) -> Response:
