@@ -14,8 +14,8 @@ Each estimator returns a :class:`Cost`: the units and the input fields that driv
 operation                       cost grows with
 =============================== ============================================================
 sample-size, plan-periodic      the approximate sample size (normal approximation from the
-                                rates and confidence), per attribute, three times with an
-                                underreliance risk (two searches)
+                                rates and confidence), per attribute, ten times more without
+                                replacement, and more with an underreliance risk
 evaluation, plan-curve          the curve's points, and the allowed deviations when
                                 sampling without replacement
 estimation-sample-size          for ``exact``: the normal-approximation size (sizes searched
@@ -44,6 +44,8 @@ from service.problems import Problem, invalid_input
 
 #: Every operation: parsing, validation, dumping and the log line.
 BASE = 1_000
+#: Approximate sizes beyond this are refused by the core's own caps before any search.
+SIZE_CEILING = 1_000_000
 TOO_MUCH_WORK = "/problems/too-much-work"
 
 
@@ -105,29 +107,36 @@ def _finite(size: float, population: int | None) -> float:
 
 
 def sample_size(inputs: Mapping[str, Any]) -> Cost:
+    """The sizing search is fast with replacement (a tenth of a unit per item of the
+    approximate size) and about one unit per item without; the core refuses plans beyond
+    its sample-size cap at once, so sizes are counted up to :data:`SIZE_CEILING`."""
     confidence = _float(_get(inputs, "confidence"), 0.95)
     attributes = _get(inputs, "attributes") or [inputs]
     total = 0.0
     for attribute in attributes:
-        total += _attribute_size(
+        total += min(SIZE_CEILING, _attribute_size(
             _float(_get(attribute, "tolerable_rate"), 0.05),
             _float(_get(attribute, "expected_rate"), 0.0),
             confidence,
-        )
-    factor = 6 if _get(inputs, "underreliance_risk") is not None else 2
-    drivers: tuple[str, ...] = ("tolerable_rate", "expected_rate", "confidence")
+        ))
+    per_item = 1.0 if _get(inputs, "method") == "hypergeometric" else 0.1
+    if _get(inputs, "underreliance_risk") is not None:
+        # Two risks: a search over sizes and allowed deviations, about two units an item.
+        per_item = max(3 * per_item, 2.0)
+    drivers: tuple[str, ...] = ("tolerable_rate", "expected_rate", "confidence", "method")
     if _get(inputs, "attributes"):
-        drivers = ("attributes", "confidence")
-    return Cost(BASE + int(factor * total) + 100 * len(attributes), drivers)
+        drivers = ("attributes", "confidence", "method")
+    return Cost(BASE + int(per_item * total) + 100 * len(attributes), drivers)
 
 
 def periodic(inputs: Mapping[str, Any]) -> Cost:
-    size = _attribute_size(
+    """Sized without replacement from the occurrences: as :func:`sample_size`."""
+    size = min(SIZE_CEILING, _attribute_size(
         _float(_get(inputs, "tolerable_rate"), 0.05),
         _float(_get(inputs, "expected_rate"), 0.0),
         _float(_get(inputs, "confidence"), 0.95),
-    )
-    return Cost(BASE + int(2 * size), ("tolerable_rate", "expected_rate", "confidence"))
+    ))
+    return Cost(BASE + int(size), ("tolerable_rate", "expected_rate", "confidence"))
 
 
 def evaluation(inputs: Mapping[str, Any]) -> Cost:
@@ -258,8 +267,11 @@ ESTIMATORS: dict[str, Callable[[Mapping[str, Any]], Cost]] = {
 
 
 def estimate(name: str, inputs: Mapping[str, Any]) -> Cost:
-    """The cost of operation ``name`` on its validated ``inputs``."""
-    return ESTIMATORS[name](inputs)
+    """The cost of operation ``name`` on its validated ``inputs`` (:data:`BASE` for an
+    operation without an estimator: every operation of the service has one, which a test
+    checks)."""
+    estimator = ESTIMATORS.get(name)
+    return Cost(BASE) if estimator is None else estimator(inputs)
 
 
 def too_large(cost: Cost, budget: int, what: str = "the request") -> Problem:
