@@ -100,6 +100,9 @@ def write_problem(sock: Any, status_int: int, reason: str, mesg: str) -> None:
 
 util.write_error = write_problem
 
+#: Set in the WSGI environ by the app when the connection must close after its answer.
+CLOSE_AFTER = "service.close_connection"
+
 
 class ServiceWorker(ThreadWorker):
     """``gthread`` with a deadline on reading a request's head and a read timeout."""
@@ -111,6 +114,24 @@ class ServiceWorker(ThreadWorker):
         self._read_timeout = _setting("GUNICORN_READ_TIMEOUT", 30)
         threading.Thread(target=self._watch_heads, name="header-deadline", daemon=True).start()
         super().init_process()
+
+    def load_wsgi(self) -> None:
+        super().load_wsgi()
+        app = self.wsgi
+
+        def closing(environ: dict[str, Any], start_response: Any) -> Any:
+            """The app, closing the connection after an answer that left the body unread.
+
+            gunicorn ignores a ``Connection: close`` header from the app, and would keep
+            the connection alive, drain the unread body and sometimes close it anyway,
+            under a client about to reuse it; the app sets :data:`CLOSE_AFTER` instead.
+            """
+            result = app(environ, start_response)
+            if environ.get(CLOSE_AFTER):
+                start_response.__self__.force_close()
+            return result
+
+        self.wsgi = closing
 
     def handle(self, conn: Any) -> Any:
         thread = threading.get_ident()

@@ -112,7 +112,14 @@ def from_sampling_error(exc: SamplingError) -> Problem:
     return invalid_input({exc.field: [exc.message]})
 
 
+#: Set in the WSGI environ to close the connection after the answer (read by the server's
+#: worker, service.gunicorn_worker): a body refused unread leaves bytes on it.
+CLOSE_AFTER = "service.close_connection"
+
+
 def problem_response(problem: Problem) -> Response:
+    if problem.status in (408, 413):
+        request.environ[CLOSE_AFTER] = True
     response = Response(
         jsonio.dumps(problem.body(request.path if request else None)),
         status=problem.status,
