@@ -10,7 +10,9 @@ computing at its deadline is stopped in its worker thread and answered 503.
 from __future__ import annotations
 
 import json
+import os
 import re
+import signal
 import socket
 import time
 from collections.abc import Iterator
@@ -18,7 +20,7 @@ from collections.abc import Iterator
 import pytest
 import requests
 
-from tests.functional.servers import Server, running_server
+from tests.functional.servers import Server, running_server, wait_until_healthy, worker_pids
 
 HEADER_TIMEOUT = 1
 
@@ -115,3 +117,17 @@ def test_a_request_past_its_deadline_is_answered_503_by_a_live_worker(server: Se
     assert answer.json()["type"] == "/problems/deadline-exceeded"
     assert requests.get(f"{server.url}/v1/health", timeout=5).status_code == 200
     assert "Worker exiting" not in server.log() and "WORKER TIMEOUT" not in server.log()
+
+
+def test_an_aborted_worker_is_counted_in_the_metrics(server: Server) -> None:
+    # SIGABRT is what the master sends a worker that missed its timeout.
+    (worker,) = worker_pids(server.process.pid)
+    os.kill(worker, signal.SIGABRT)
+    deadline = time.monotonic() + 20
+    while worker in worker_pids(server.process.pid) or not worker_pids(server.process.pid):
+        assert time.monotonic() < deadline, "the aborted worker was not replaced"
+        time.sleep(0.1)
+    wait_until_healthy(server)
+    text = requests.get(f"{server.url}/metrics", timeout=5).text
+    counted = re.search(r"^sampling_worker_aborts_total ([0-9.]+)$", text, re.MULTILINE)
+    assert counted is not None and float(counted.group(1)) >= 1, text[-2000:]
