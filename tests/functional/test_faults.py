@@ -107,7 +107,7 @@ def _sizing_client(url: str, until: float, outcomes: list[Outcome], lock: thread
                 outcomes.append(Outcome(started, time.monotonic(), ok, detail))
 
 
-def test_a_worker_killed_mid_load_costs_at_most_its_one_request(tmp_path: Path) -> None:
+def test_a_worker_killed_mid_load_costs_at_most_the_requests_it_held(tmp_path: Path) -> None:
     # Recycling after max_requests would also bring new pids; push it out of the way so
     # that the only worker that changes is the one killed.
     env = {"GUNICORN_MAX_REQUESTS": "1000000"}
@@ -142,11 +142,11 @@ def test_a_worker_killed_mid_load_costs_at_most_its_one_request(tmp_path: Path) 
     # Load was running on both sides of the kill, and was answered before it.
     assert any(o.ok and o.finished < killed_at for o in outcomes)
     assert started_after
-    # Sync workers with one thread: a worker accepts one connection, answers it and closes
-    # it (no keep-alive) before it accepts the next, and waiting connections sit in the
-    # listening socket's queue, which the master owns and the other workers keep
-    # accepting from. So a killed worker takes down only the one request it was holding.
-    assert len(failed) <= 1, [o.detail for o in failed]
+    # Threaded workers keep connections alive: a killed worker takes down the requests in
+    # flight on the connections it held, at most one per client; connections not yet
+    # accepted sit in the listening socket's queue, which the master owns and the other
+    # worker keeps accepting from.
+    assert len(failed) <= CLIENTS, [o.detail for o in failed]
     # Once the killed worker is gone every request is answered, and answered right.
     assert all(o.ok for o in started_after), [o.detail for o in started_after if not o.ok]
     assert victim not in after and after - before, (before, after)
