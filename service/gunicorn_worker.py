@@ -98,8 +98,6 @@ def write_problem(sock: Any, status_int: int, reason: str, mesg: str) -> None:
     util.write_nonblock(sock, problem_bytes(status_int, reason))
 
 
-util.write_error = write_problem
-
 #: Set in the WSGI environ by the app when the connection must close after its answer.
 CLOSE_AFTER = "service.close_connection"
 
@@ -108,6 +106,8 @@ class ServiceWorker(ThreadWorker):
     """``gthread`` with a deadline on reading a request's head and a read timeout."""
 
     def init_process(self) -> None:
+        # In the worker process only: importing this module changes nothing.
+        util.write_error = write_problem
         self._reading: dict[int, tuple[float, socket.socket]] = {}
         self._reading_lock = threading.Lock()
         self._header_timeout = _setting("GUNICORN_HEADER_TIMEOUT", 10)
