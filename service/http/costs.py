@@ -43,7 +43,7 @@ from typing import Any
 from service.problems import Problem, invalid_input
 
 #: Every operation: parsing, validation, dumping and the log line.
-BASE = 1_000
+BASE = 2_000
 #: Approximate sizes beyond this are refused by the core's own caps before any search.
 SIZE_CEILING = 1_000_000
 TOO_MUCH_WORK = "/problems/too-much-work"
@@ -140,7 +140,7 @@ def periodic(inputs: Mapping[str, Any]) -> Cost:
 
 
 def evaluation(inputs: Mapping[str, Any]) -> Cost:
-    return Cost(10_000 + 1_000 * len(_get(inputs, "attributes") or ()), ("attributes",))
+    return Cost(30_000 + 1_000 * len(_get(inputs, "attributes") or ()), ("attributes",))
 
 
 def curve(inputs: Mapping[str, Any]) -> Cost:
