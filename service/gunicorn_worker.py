@@ -39,6 +39,8 @@ from gunicorn import util
 from gunicorn.glogging import Logger
 from gunicorn.workers.gthread import ThreadWorker
 
+from service.problems import CLOSE_AFTER
+
 PROBLEM_MEDIA_TYPE = "application/problem+json"
 SECURITY_HEADERS = (
     ("X-Content-Type-Options", "nosniff"),
@@ -96,10 +98,6 @@ def write_problem(sock: Any, status_int: int, reason: str, mesg: str) -> None:
     """Replacement of gunicorn's ``util.write_error``, same arguments."""
     _count(status_int)
     util.write_nonblock(sock, problem_bytes(status_int, reason))
-
-
-#: Set in the WSGI environ by the app when the connection must close after its answer.
-CLOSE_AFTER = "service.close_connection"
 
 
 class ServiceWorker(ThreadWorker):
@@ -166,7 +164,8 @@ class ServiceWorker(ThreadWorker):
             for _, sock in late:
                 _count(408)
                 try:
-                    sock.sendall(problem_bytes(408, "Request Timeout"))
+                    # Without blocking: a client that reads nothing cannot hold this thread.
+                    sock.send(problem_bytes(408, "Request Timeout"), socket.MSG_DONTWAIT)
                     # The blocked read in the request thread returns at once with no data,
                     # and gunicorn closes the connection as the client's disconnection.
                     sock.shutdown(socket.SHUT_RDWR)
