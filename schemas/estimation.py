@@ -19,8 +19,14 @@ from schemas.common import (
     flatten_population,
     summary_field,
 )
-from schemas.fields import Rate, StrictFloat, StrictString, confidence_field
-from service.sampling.estimation import MAX_CONFIDENCE, METHODS, MIN_CONFIDENCE, MIN_MARGIN
+from schemas.fields import Rate, StrictFloat, StrictInteger, StrictString, confidence_field
+from service.sampling.estimation import (
+    MAX_CONFIDENCE,
+    MAX_POPULATION_SIZE,
+    METHODS,
+    MIN_CONFIDENCE,
+    MIN_MARGIN,
+)
 from service.sampling.wording import CAUTION, percent
 
 GUARANTEES = ["exact", "approximate", "distribution_free_bound"]
@@ -83,6 +89,20 @@ def _no_repeats(names: list[str]) -> None:
         raise ValidationError(errors)
 
 
+class EstimationPopulationSchema(PopulationSchema):
+    """The population, up to the largest size the exact computation supports."""
+
+    size = StrictInteger(
+        required=True,
+        validate=validate.Range(
+            min=1,
+            max=MAX_POPULATION_SIZE,
+            error="must be from {min} to {max} (the largest supported population)",
+        ),
+        metadata={"description": "Number of items in the population.", "example": 4200},
+    )
+
+
 class EstimationRequest(StrictSchema):
     """Sample sizes to estimate a deviation rate within a margin."""
 
@@ -110,7 +130,7 @@ class EstimationRequest(StrictSchema):
         },
     )
     population = fields.Nested(
-        PopulationSchema,
+        EstimationPopulationSchema,
         metadata={
             "description": "Absent for a population large enough to ignore its size; given, "
             "the sample is drawn without replacement and no size exceeds population.size."

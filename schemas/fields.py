@@ -150,7 +150,16 @@ class StrictInteger(fields.Integer):
     }
 
     def __init__(self, **kwargs: Any) -> None:
-        metadata = {"maximum": MAX_EXACT_INTEGER, **kwargs.pop("metadata", {})}
+        # The documented maximum is the field's own bound when it has one below 2**53 - 1.
+        validators = kwargs.get("validate") or ()
+        if callable(validators):
+            validators = (validators,)
+        bounds = [
+            v.max for v in validators
+            if isinstance(v, validate.Range) and isinstance(v.max, int) and v.max_inclusive
+        ]
+        maximum = min([MAX_EXACT_INTEGER, *bounds])
+        metadata = {"maximum": maximum, **kwargs.pop("metadata", {})}
         super().__init__(strict=False, metadata=metadata, **kwargs)
 
     def _deserialize(self, value: Any, attr: str | None, data: Any, **kwargs: Any) -> int:

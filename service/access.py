@@ -10,8 +10,10 @@ The presented key's digest is compared with every configured digest by
 which digest, or how much of one, matched. A missing, malformed or unknown key gets the
 same 401 problem details and ``WWW-Authenticate`` challenge whichever it was, and an
 unknown path answers 401 before 404, so nothing tells a caller without a key which keys
-or paths exist. The web page, the API reference and their files (``/``, ``/docs``,
-``/ui/…``) are open: they hold no data, and the page asks for the key itself.
+or paths exist. For the same reason a preflight without a key gets the same empty 204 on
+every path, existing or not, and any other ``OPTIONS`` without a key gets the 401. The web
+page, the API reference and their files (``/``, ``/docs``, ``/ui/…``) are open: they hold no
+data, and the page asks for the key itself.
 """
 
 from __future__ import annotations
@@ -19,7 +21,7 @@ from __future__ import annotations
 import hashlib
 import hmac
 
-from flask import Flask, request
+from flask import Flask, Response, request
 
 from service.problems import Problem
 from service.webpage import is_page_path
@@ -36,6 +38,10 @@ def _challenge(error: str | None) -> dict[str, str]:
     if error is not None:
         value += f', error="{error}"'
     return {"WWW-Authenticate": value}
+
+
+def _is_preflight() -> bool:
+    return "Origin" in request.headers and "Access-Control-Request-Method" in request.headers
 
 
 def _presented_key() -> str | None:
@@ -67,14 +73,15 @@ def register(app: Flask, digests: frozenset[bytes]) -> None:
         return
 
     @app.before_request
-    def _require_key() -> None:
-        if (
-            request.path in OPEN_PATHS
-            or is_page_path(request.path)
-            or request.method == "OPTIONS"
-        ):
-            return
+    def _require_key() -> Response | None:
+        if request.path in OPEN_PATHS or is_page_path(request.path):
+            return None
         key = _presented_key()
+        if request.method == "OPTIONS" and key is None and _is_preflight():
+            # Browsers send preflights without credentials. The answer is the same for
+            # every path, so that it does not tell which exist; CORS headers are added
+            # afterwards for the configured origins only.
+            return Response(status=204)
         if key is None:
             raise Problem(
                 401, "Unauthorized",
@@ -86,3 +93,4 @@ def register(app: Flask, digests: frozenset[bytes]) -> None:
                 401, "Unauthorized", "the API key sent is not accepted by this service",
                 UNAUTHORIZED, headers=_challenge("invalid_token"),
             )
+        return None

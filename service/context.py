@@ -86,7 +86,9 @@ class JsonFormatter(logging.Formatter):
         if record.exc_info and record.exc_info[0] is not None:
             line["exception"] = record.exc_info[0].__name__
             line["stack"] = "".join(traceback.format_tb(record.exc_info[2])).rstrip()
-        return json.dumps(line, ensure_ascii=False, default=str)
+        # ASCII only: every control character (C0, DEL, C1, U+2028, U+2029) and anything
+        # else outside ASCII is escaped, so a value can neither split nor forge a line.
+        return json.dumps(line, ensure_ascii=True, default=str)
 
 
 class _StderrHandler(logging.Handler):

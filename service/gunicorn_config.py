@@ -9,8 +9,11 @@ variable                 default                  meaning
 HOST                     127.0.0.1                address to listen on (the image sets 0.0.0.0)
 PORT                     8000                     port to listen on
 WEB_CONCURRENCY          cores, at most 8         worker processes (see below)
-GUNICORN_THREADS         1                        threads per worker (the work is CPU-bound)
+GUNICORN_THREADS         128                      threads per worker: each request, and each
+                                                  slow client, holds one thread, not a worker
 GUNICORN_TIMEOUT         30                       seconds before a silent worker is restarted
+GUNICORN_HEADER_TIMEOUT  10                       seconds to receive a request's head (408)
+GUNICORN_READ_TIMEOUT    30                       seconds a body may pause between bytes
 GUNICORN_GRACEFUL_TIMEOUT 30                      seconds in-flight requests get after SIGTERM
 GUNICORN_MAX_REQUESTS    2000                     requests before a worker is recycled (+10 %
                                                   random jitter, so workers do not all restart
@@ -20,10 +23,18 @@ GUNICORN_ACCESS_LOG      unset                    1 adds gunicorn's own access l
 PROMETHEUS_MULTIPROC_DIR a new temporary folder   where workers keep their metric files
 ======================== ======================== =============================================
 
-Workers: one per core. The work is CPU-bound and each sync worker answers one request at
-a time, so more workers than cores only add context switches and cache misses: on a
-2-core machine, 2 × cores + 1 workers cost more server CPU per request than 2 workers for
-the same throughput (``bench/echo_compare.py``, figures in BENCHMARKS.md).
+Workers: one per core. The work is CPU-bound and holds the interpreter lock, so more
+workers than cores only add context switches and cache misses: on a 2-core machine,
+2 × cores + 1 workers cost more server CPU per request than 2 workers for the same
+throughput (``bench/echo_compare.py``, figures in BENCHMARKS.md).
+
+Worker model: the threaded worker of :mod:`service.gunicorn_worker` (gunicorn's
+``gthread`` with a deadline on reading a request's head and problem+json for the errors
+gunicorn answers itself). Connections wait in the worker's poller; a slow or stalled
+client holds one of the worker's threads for at most the header timeout, and the other
+threads keep answering. Threads add no throughput: they are there for waiting clients.
+Work is bounded per request by the cost budget and the request deadline
+(:mod:`service.settings`), which is below the worker timeout.
 
 Metrics: with several worker processes each keeps its own counters, so the Prometheus
 client runs in multiprocess mode. The folder is emptied when the server starts, and a
@@ -46,8 +57,9 @@ from service.settings import whole_number
 __all__ = [
     "access_log_format", "accesslog", "bind", "child_exit", "control_socket_disable",
     "errorlog", "graceful_timeout", "keepalive", "limit_request_fields",
-    "limit_request_line", "max_requests", "max_requests_jitter", "on_starting",
-    "preload_app", "threads", "timeout", "workers",
+    "limit_request_line", "logger_class", "max_requests", "max_requests_jitter",
+    "on_starting", "preload_app", "threads", "timeout", "worker_abort", "worker_class",
+    "worker_connections", "workers",
 ]
 
 METRICS_DIR_VARIABLE = "PROMETHEUS_MULTIPROC_DIR"
@@ -76,7 +88,10 @@ def _metrics_dir() -> str:
 
 bind = f"{os.environ.get('HOST', '127.0.0.1')}:{_int('PORT', 8000)}"
 workers = _int("WEB_CONCURRENCY", min(multiprocessing.cpu_count(), 8))
-threads = _int("GUNICORN_THREADS", 1)
+worker_class = "service.gunicorn_worker.ServiceWorker"
+threads = _int("GUNICORN_THREADS", 128)
+# Connections one worker holds open, idle or not (gunicorn's default).
+worker_connections = 1000
 timeout = _int("GUNICORN_TIMEOUT", 30)
 graceful_timeout = _int("GUNICORN_GRACEFUL_TIMEOUT", 30)
 keepalive = 5
@@ -87,6 +102,7 @@ limit_request_line = 8190
 limit_request_fields = 100
 # The app writes one JSON line per request (service.context); gunicorn's own access line,
 # in the layout below, is added only when GUNICORN_ACCESS_LOG=1.
+logger_class = "service.gunicorn_worker.ServiceLogger"
 accesslog = "-" if os.environ.get("GUNICORN_ACCESS_LOG") == "1" else None
 errorlog = "-"
 access_log_format = (
@@ -114,3 +130,14 @@ def child_exit(server: Any, worker: Any) -> None:
     from prometheus_client import multiprocess
 
     multiprocess.mark_process_dead(worker.pid)
+
+
+def worker_abort(worker: Any) -> None:
+    """Count a worker the master stops for not answering within the timeout.
+
+    Runs in the worker, on the master's SIGABRT; its counter file outlives it, so
+    ``/metrics`` keeps the count. Its requests in flight get no answer.
+    """
+    from service.metrics import worker_aborts
+
+    worker_aborts().inc()

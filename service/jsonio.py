@@ -18,6 +18,7 @@ from __future__ import annotations
 
 import json
 import math
+import re
 from typing import Any
 
 from service.sampling.rates import WrittenDecimal
@@ -81,3 +82,45 @@ def loads(data: bytes) -> Any:
 def dumps(obj: Any, **kwargs: Any) -> str:
     """Serialise ``obj`` as JSON; NaN and Infinity raise instead of being written."""
     return json.dumps(obj, allow_nan=False, ensure_ascii=False, **kwargs)
+
+
+_LONE_SURROGATE = re.compile("[\ud800-\udfff]")
+#: Lone surrogates named in one answer; a list of many is not repeated back whole.
+_NAMED_SURROGATES = 20
+
+
+def lone_surrogates(value: Any, path: str = "") -> dict[str, list[str]]:
+    """The paths (``population.label``, ``attributes[0].name``) of strings, and of objects
+    whose member names, holding a lone surrogate (``\\ud800``): JSON escapes can spell one,
+    but it is not a character and cannot be written as UTF-8, so an answer or a log line
+    that repeated it would fail.
+
+    >>> sorted(lone_surrogates({"a": ["ok", "x\\ud800"], "b\\udfff": 1}))
+    ['a[1]', 'body']
+    >>> print(lone_surrogates({"a": "\\ud800"})["a"][0][:31])
+    holds a lone surrogate (\ud800)
+    """
+    found: dict[str, list[str]] = {}
+    stack: list[tuple[str, Any]] = [(path, value)]
+    while stack and len(found) < _NAMED_SURROGATES:
+        where, item = stack.pop()
+        if isinstance(item, str):
+            match = _LONE_SURROGATE.search(item)
+            if match is not None:
+                shown = match.group().encode("unicode_escape").decode("ascii")
+                found[where or "body"] = [
+                    f"holds a lone surrogate ({shown}), which cannot be encoded as UTF-8; "
+                    "send valid Unicode text"
+                ]
+        elif isinstance(item, dict):
+            for key, member in reversed(item.items()):
+                if _LONE_SURROGATE.search(key):
+                    found.setdefault(where or "body", []).append(
+                        "a member name holds a lone surrogate, which cannot be encoded as "
+                        "UTF-8; send valid Unicode text"
+                    )
+                    continue
+                stack.append((f"{where}.{key}" if where else key, member))
+        elif isinstance(item, list):
+            stack.extend((f"{where}[{i}]", member) for i, member in reversed(list(enumerate(item))))
+    return found

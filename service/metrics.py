@@ -6,6 +6,10 @@ metric                                   type      labels
 sampling_http_requests_total             counter   endpoint, method, status
 sampling_http_request_duration_seconds   histogram endpoint, method
 sampling_http_requests_in_flight         gauge     (none): requests being answered now
+sampling_server_answers_total            counter   status: answers gunicorn wrote itself
+                                                   (malformed requests, 408, 414, 431, 500)
+sampling_worker_aborts_total             counter   (none): workers stopped by the master
+                                                   for not answering within its timeout
 ======================================== ========= ======================================
 
 ``endpoint`` is the route's path as declared (``/v1/sample-size``), or ``unmatched`` for
@@ -51,6 +55,20 @@ BUCKETS = (0.001, 0.0025, 0.005, 0.01, 0.025, 0.05, 0.1, 0.25, 0.5, 1.0, 2.5, 5.
 # of this service's figures, and multiprocess mode cannot sum them.
 disable_created_metrics()  # type: ignore[no-untyped-call]
 
+
+
+@cache
+def server_answers() -> Counter:
+    """Answers the HTTP server wrote itself, outside the app (:mod:`service.gunicorn_worker`)."""
+    return Counter(
+        "sampling_server_answers", "Answers written by the HTTP server itself.", ["status"]
+    )
+
+
+@cache
+def worker_aborts() -> Counter:
+    """Workers the master stopped after its timeout; their requests in flight got no answer."""
+    return Counter("sampling_worker_aborts", "Workers stopped by the master's timeout.")
 
 
 @dataclass(frozen=True)
@@ -159,6 +177,8 @@ def register(app: Flask) -> None:
     """Count every request of ``app`` and serve ``/metrics``."""
     check_multiprocess_directory()
     instruments()
+    server_answers()
+    worker_aborts()
     app.before_request(_start)
     app.after_request(_record)
     app.teardown_request(_finish)

@@ -57,13 +57,24 @@ _UNAUTHORIZED_HEADERS = {
     }
 }
 
+_RETRY_AFTER_HEADERS = {
+    "Retry-After": {
+        "description": "Seconds to wait before trying again.",
+        "schema": {"type": "integer"},
+    }
+}
+
 _PROBLEM_STATUSES = {
     "401": UNAUTHORIZED_DESCRIPTION,
     "400": "Malformed body: not UTF-8, not strict JSON, or duplicate keys.",
     "406": "None of the media types this endpoint answers is acceptable.",
     "413": "Body larger than the configured limit.",
-    "415": "Body not sent as application/json.",
-    "422": "Invalid input; `errors` names each field and what is wrong with it.",
+    "415": "Body not sent as application/json, or sent with a Content-Encoding.",
+    "422": "Invalid input; `errors` names each field and what is wrong with it. Type "
+    "/problems/too-much-work: the estimated work is above SAMPLING_MAX_REQUEST_COST; "
+    "`errors` names the inputs that make it large.",
+    "503": "The request was still computing at its deadline (SAMPLING_REQUEST_DEADLINE) "
+    "and was stopped (type /problems/deadline-exceeded); try again after Retry-After.",
 }
 
 DESCRIPTION = (
@@ -79,7 +90,9 @@ DESCRIPTION = (
 METRICS_DESCRIPTION = (
     "Requests by endpoint, method and status (sampling_http_requests_total), latency "
     "(sampling_http_request_duration_seconds, a histogram) and requests in flight "
-    "(sampling_http_requests_in_flight), in the Prometheus text format 0.0.4, or "
+    "(sampling_http_requests_in_flight), answers the HTTP server wrote itself by status "
+    "(sampling_server_answers_total) and workers stopped by the master's timeout "
+    "(sampling_worker_aborts_total), in the Prometheus text format 0.0.4, or "
     "OpenMetrics when Accept asks for application/openmetrics-text."
 )
 
@@ -104,7 +117,10 @@ _UPLOAD_STATUSES = {
     "multipart body, or a request part that is not strict JSON.",
     "413": "Body larger than the configured limit, or an uploaded file larger than "
     "SAMPLING_MAX_FILE_BYTES.",
-    "415": "Body sent neither as application/json nor as multipart/form-data.",
+    "415": "Body sent neither as application/json nor as multipart/form-data, or sent "
+    "with a Content-Encoding.",
+    "503": "The request was still computing at its deadline (SAMPLING_UPLOAD_DEADLINE with "
+    "a file) and was stopped; try again after Retry-After.",
     "507": "The service has no room to store the uploaded file for this request.",
 }
 
@@ -202,6 +218,8 @@ def _problem_response(description: str, status: str = "") -> dict[str, Any]:
     }
     if status == "401":
         response["headers"] = _UNAUTHORIZED_HEADERS
+    if status == "503":
+        response["headers"] = _RETRY_AFTER_HEADERS
     return response
 
 

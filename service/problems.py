@@ -16,7 +16,7 @@ from typing import Any
 
 from flask import Flask, Response, request
 from marshmallow import ValidationError
-from werkzeug.exceptions import HTTPException
+from werkzeug.exceptions import ClientDisconnected, HTTPException
 
 from service import jsonio
 from service.context import request_id
@@ -112,7 +112,14 @@ def from_sampling_error(exc: SamplingError) -> Problem:
     return invalid_input({exc.field: [exc.message]})
 
 
+#: Set in the WSGI environ to close the connection after the answer (read by the server's
+#: worker, service.gunicorn_worker): a body refused unread leaves bytes on it.
+CLOSE_AFTER = "service.close_connection"
+
+
 def problem_response(problem: Problem) -> Response:
+    if problem.status in (408, 413):
+        request.environ[CLOSE_AFTER] = True
     response = Response(
         jsonio.dumps(problem.body(request.path if request else None)),
         status=problem.status,
@@ -141,6 +148,13 @@ def _body_limit() -> str:
     return "limit" if limit is None else f"{limit:,} bytes"
 
 
+# The socket's read timeout passed while the body was read (service.gunicorn_worker); werkzeug
+# reports it as a client disconnection, or it surfaces as the timeout itself.
+_SLOW_BODY = Problem(
+    408, "Request Timeout", "the request body stopped arriving; send it whole, without pauses"
+)
+
+
 def register(app: Flask) -> None:
     """Install the one error handler for every error."""
 
@@ -150,7 +164,13 @@ def register(app: Flask) -> None:
 
     @app.errorhandler(HTTPException)
     def _http(exc: HTTPException) -> Response:
+        if isinstance(exc, ClientDisconnected) and isinstance(exc.__context__, TimeoutError):
+            return problem_response(_SLOW_BODY)
         return problem_response(_from_http_exception(exc))
+
+    @app.errorhandler(TimeoutError)
+    def _slow_body(exc: TimeoutError) -> Response:
+        return problem_response(_SLOW_BODY)
 
     @app.errorhandler(Exception)
     def _unexpected(exc: Exception) -> Response:

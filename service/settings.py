@@ -11,6 +11,9 @@ SAMPLING_MAX_BATCH_OPERATIONS 1000       most operations one batch may hold
 SAMPLING_MAX_BATCH_WORK       1000000    most work units one batch may hold (see below)
 SAMPLING_MAX_FILE_BYTES       2147483648 largest uploaded population file (413 beyond)
 SAMPLING_MAX_FILE_LINE_BYTES  1048576    longest line of an uploaded CSV file
+SAMPLING_MAX_REQUEST_COST     2000000    most cost units one request (or batch) may need
+SAMPLING_REQUEST_DEADLINE     10         seconds a request may compute before a 503
+SAMPLING_UPLOAD_DEADLINE      300        the same for a request with an uploaded file
 SAMPLING_API_KEYS             (unset)    accepted API keys, as digests (see below)
 SAMPLING_API_KEYS_FILE        (unset)    a file of further digests, one per line
 SAMPLING_CORS_ORIGINS         (unset)    origins whose browser pages may read answers
@@ -20,6 +23,18 @@ A batch's work units are, summed over its operations, the elements of every JSON
 in the request (listed items, ranges, exclusions, methods) plus its ``sample_size`` when
 that is a whole number: so a batch can list, or draw, no more in total than one
 selection may.
+
+**Cost and deadline.** Before it computes, every operation estimates its work from its
+validated inputs in cost units, each about a microsecond of one core's time on the
+reference machine (:mod:`service.http.costs`); a request, or a batch (the sum of its
+operations), whose estimate is above ``SAMPLING_MAX_REQUEST_COST`` is refused at once
+with a 422 naming the inputs that make it large. The default, 2,000,000, is about two
+seconds of work. Whatever still computes ``SAMPLING_REQUEST_DEADLINE`` seconds after the
+request began is stopped and answered with a 503 and ``Retry-After``
+(:mod:`service.deadline`); the deadline may be a decimal (``2.5``). A request carrying a
+population file is bounded by ``SAMPLING_MAX_FILE_BYTES`` and
+``SAMPLING_UPLOAD_DEADLINE`` instead of the cost budget: reading ten million records
+legitimately takes tens of seconds.
 
 **Uploaded files.** A ``multipart/form-data`` request's file part is streamed to a
 temporary file, never held whole in memory, and the file is removed once the answer is
@@ -74,6 +89,16 @@ def whole_number(raw: str) -> int:
     value = int(raw.strip().replace("_", ""))
     if value < 1:
         raise ValueError(f"{raw[:40]!r}: must be at least 1")
+    return value
+
+
+def seconds(raw: str) -> float:
+    """A positive number of seconds: digits with an optional decimal part, at most 3600."""
+    if not re.fullmatch(r"[0-9]{1,4}(?:\.[0-9]{1,3})?", raw.strip()):
+        raise ValueError(f"{raw[:40]!r}: must be a number of seconds such as 10 or 2.5")
+    value = float(raw.strip())
+    if not 0 < value <= 3600:
+        raise ValueError(f"{raw[:40]!r}: must be above 0 and at most 3600")
     return value
 
 
@@ -138,6 +163,9 @@ class Settings:
     max_batch_work: int = field(default=1_000_000, metadata={"parse": whole_number})
     max_file_bytes: int = field(default=2_147_483_648, metadata={"parse": whole_number})
     max_file_line_bytes: int = field(default=1_048_576, metadata={"parse": whole_number})
+    max_request_cost: int = field(default=2_000_000, metadata={"parse": whole_number})
+    request_deadline: float = field(default=10.0, metadata={"parse": seconds})
+    upload_deadline: float = field(default=300.0, metadata={"parse": seconds})
     api_keys: frozenset[bytes] = field(default=frozenset(), metadata={"parse": _key_list})
     api_keys_file: frozenset[bytes] = field(default=frozenset(), metadata={"parse": _key_file})
     cors_origins: tuple[str, ...] = field(default=(), metadata={"parse": _origins})

@@ -16,9 +16,10 @@ from collections.abc import Mapping
 from typing import Any
 
 from schemas.batch import BatchRequest, BatchSchema
-from service.http import markdown
+from service import jsonio
+from service.http import costs, markdown
 from service.http.markdown import TicketLayout
-from service.http.operations import Operation, blueprint, execute
+from service.http.operations import Operation, blueprint, cost, execute
 from service.problems import Problem, invalid_input
 from service.sampling.errors import ComputationTooLarge
 from service.sampling.wording import CAUTION
@@ -62,7 +63,9 @@ def work_units(request: Any) -> int:
 
 
 def _count_operations(payload: Any, settings: Settings) -> None:
-    """Refuse more operations than allowed before any of them is validated."""
+    """Refuse more operations than allowed before any of them is validated, and text that
+    cannot be written back outside the items' requests (each request is checked by its
+    own operation, so that a bad one fails only its item)."""
     items = payload.get("operations") if isinstance(payload, dict) else None
     if isinstance(items, list) and len(items) > settings.max_batch_operations:
         raise ComputationTooLarge(
@@ -70,6 +73,18 @@ def _count_operations(payload: Any, settings: Settings) -> None:
             f"holds {len(items):,} operations; a batch may hold at most "
             f"{settings.max_batch_operations:,}",
         )
+    envelope = payload
+    if isinstance(items, list):
+        envelope = {
+            **payload,
+            "operations": [
+                {k: v for k, v in item.items() if k != "request"}
+                if isinstance(item, dict) else item
+                for item in items
+            ],
+        }
+    if unencodable := jsonio.lone_surrogates(envelope):
+        raise invalid_input(unencodable)
 
 
 def _check_work(items: list[dict[str, Any]], settings: Settings) -> None:
@@ -124,10 +139,36 @@ def _answer(
     return {"id": item_id, "status": 200, "result": document}
 
 
+def _check_cost(
+    items: list[dict[str, Any]], operations: Mapping[str, Operation], settings: Settings
+) -> None:
+    """Refuse the batch when its operations together cost more than one request may.
+
+    Items that are invalid cost nothing here: they are refused on their own.
+    """
+    each: list[tuple[int, int]] = []
+    for index, item in enumerate(items):
+        name = item["operation"]
+        operation = operations.get(name) if isinstance(name, str) else None
+        if operation is not None:
+            each.append((cost(operation, item["request"], settings).units, index))
+    total = sum(units for units, _ in each)
+    if total > settings.max_request_cost:
+        largest = ", ".join(
+            f"operations[{index}] {units:,}" for units, index in sorted(each, reverse=True)[:3]
+        )
+        raise costs.too_large(
+            costs.Cost(total, ("operations",)),
+            settings.max_request_cost,
+            f"the batch's {len(items):,} operations (the largest: {largest})",
+        )
+
+
 def _run(inputs: dict[str, Any], settings: Settings) -> dict[str, Any]:
     items: list[dict[str, Any]] = inputs["operations"]
     _check_work(items, settings)
     operations = single_operations()
+    _check_cost(items, operations, settings)
     return {
         "results": [_answer(i, item, operations, settings) for i, item in enumerate(items)],
         # Not part of the JSON answer: the Markdown answer shows each item's inputs.
@@ -229,6 +270,7 @@ OPERATIONS = [
         response=BatchSchema,
         run=_run,
         precheck=_count_operations,
+        carries_requests=True,
         tag="batch",
         renderers={markdown.MARKDOWN: render_markdown},
         ticket=TicketLayout(

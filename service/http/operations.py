@@ -23,8 +23,8 @@ from flask import Blueprint, Response, current_app, request
 from marshmallow import Schema, ValidationError
 from werkzeug.exceptions import RequestEntityTooLarge
 
-from service import jsonio
-from service.http import markdown, uploads
+from service import deadline, jsonio
+from service.http import costs, markdown, uploads
 from service.http.markdown import MARKDOWN, TicketLayout
 from service.problems import (
     MALFORMED_BODY,
@@ -32,6 +32,7 @@ from service.problems import (
     Problem,
     from_sampling_error,
     from_validation_error,
+    invalid_input,
 )
 from service.sampling.errors import SamplingError
 from service.settings import Settings
@@ -77,6 +78,9 @@ class Operation:
     # Other answers the operation gives: a core result of one of these types is dumped with
     # its schema instead of ``response`` (the spec lists them all as ``oneOf``).
     variants: Mapping[type, type[Schema]] = field(default_factory=dict)
+    # The payload carries other operations' requests (a batch): the text check for lone
+    # surrogates is left to the precheck and to each carried operation.
+    carries_requests: bool = False
 
     @cached_property
     def request_schema(self) -> Schema:
@@ -207,12 +211,17 @@ def run(
             operation.precheck(payload, settings)
         except SamplingError as exc:
             raise from_sampling_error(exc) from None
+    if not operation.carries_requests and (unencodable := jsonio.lone_surrogates(payload)):
+        raise invalid_input(unencodable)
     try:
         inputs = operation.request_schema.load(payload)
     except ValidationError as exc:
         raise from_validation_error(exc) from None
     if operation.accepts_file:
         inputs = {**inputs, "upload": upload, "upload_name": upload_name}
+    if upload is None:
+        # A file is bounded by the file limits and the upload deadline instead.
+        costs.check(costs.estimate(operation.name, inputs), settings.max_request_cost)
     try:
         result = operation.run(inputs, settings)
     except SamplingError as exc:
@@ -221,21 +230,52 @@ def run(
     return document, result
 
 
+def cost(operation: Operation, payload: Any, settings: Settings) -> costs.Cost:
+    """The estimated cost of ``payload``; nothing when it is invalid (it will be refused)."""
+    try:
+        if operation.precheck is not None:
+            operation.precheck(payload, settings)
+        inputs = operation.request_schema.load(payload)
+    except (SamplingError, ValidationError):
+        return costs.Cost(0)
+    if operation.accepts_file:
+        inputs = {**inputs, "upload": None, "upload_name": ""}
+    return costs.estimate(operation.name, inputs)
+
+
 def execute(operation: Operation, payload: Any, settings: Settings) -> dict[str, Any]:
     """Validate ``payload``, run the operation and return the response document."""
     return run(operation, payload, settings)[0]
 
 
+def refuse_content_encoding() -> None:
+    """Refuse (415) a body sent with a content coding: bodies are read as sent, and a
+    compressed body would otherwise be refused as malformed, or, with a coding named
+    but not applied, read as if the label were absent."""
+    coding = request.headers.get("Content-Encoding", "").strip().lower()
+    if coding not in ("", "identity"):
+        raise Problem(
+            415,
+            "Unsupported Media Type",
+            f"send the body without a content coding (got Content-Encoding: {coding[:40]}); "
+            "this service reads bodies as sent",
+            UNSUPPORTED_MEDIA_TYPE,
+            errors={"Content-Encoding": ["must be absent or identity"]},
+            headers={"Accept-Encoding": "identity"},
+        )
+
+
 def _view(declared: Operation) -> Callable[[], Response]:
     def view() -> Response:
         settings: Settings = current_app.config["SETTINGS"]
+        refuse_content_encoding()
         operation = declared
         if declared.file_form is not None and uploads.is_multipart():
             operation = declared.file_form
         media_type = negotiate(operation)
         if operation.accepts_file and uploads.is_multipart():
             # Rendered inside the block: the temporary file lives until the answer is made.
-            with uploads.received(settings) as upload:
+            with deadline.guard(settings.upload_deadline), uploads.received(settings) as upload:
                 document, result = run(
                     operation, upload.payload, settings, upload.path, upload.filename
                 )
@@ -243,9 +283,12 @@ def _view(declared: Operation) -> Callable[[], Response]:
         else:
             if operation.takes_item_lists:
                 request.max_content_length = settings.max_list_body_bytes
-            payload = read_json_body(operation.accepts_file or operation.file_form is not None)
-            document, result = run(operation, payload, settings)
-            body = operation.render(media_type, payload, document, result)
+            with deadline.guard(settings.request_deadline):
+                payload = read_json_body(
+                    operation.accepts_file or operation.file_form is not None
+                )
+                document, result = run(operation, payload, settings)
+                body = operation.render(media_type, payload, document, result)
         response = current_app.response_class(body, status=200, mimetype=media_type)
         response.vary.add("Accept")
         return response

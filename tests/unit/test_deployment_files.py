@@ -56,7 +56,7 @@ spec = importlib.util.spec_from_file_location("gunicorn_settings", sys.argv[1])
 module = importlib.util.module_from_spec(spec)
 spec.loader.exec_module(module)
 names = ("bind", "workers", "threads", "timeout", "graceful_timeout", "max_requests",
-         "max_requests_jitter", "preload_app", "metrics_dir")
+         "max_requests_jitter", "preload_app", "metrics_dir", "worker_class", "logger_class")
 values = {name: getattr(module, name) for name in names}
 values["exported_metrics_dir"] = os.environ.get("PROMETHEUS_MULTIPROC_DIR")
 print(json.dumps(values))
@@ -131,7 +131,9 @@ def test_gunicorn_defaults(tmp_path: Path) -> None:
     assert values["bind"] == "127.0.0.1:8000"
     # The documented default: one worker process per core, at most 8.
     assert values["workers"] == min(multiprocessing.cpu_count(), 8)
-    assert (values["threads"], values["timeout"], values["graceful_timeout"]) == (1, 30, 30)
+    assert (values["threads"], values["timeout"], values["graceful_timeout"]) == (128, 30, 30)
+    assert values["worker_class"] == "service.gunicorn_worker.ServiceWorker"
+    assert values["logger_class"] == "service.gunicorn_worker.ServiceLogger"
     assert (values["max_requests"], values["max_requests_jitter"]) == (2000, 200)
 
 

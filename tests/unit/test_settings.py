@@ -17,6 +17,7 @@ def test_defaults_when_nothing_is_set() -> None:
 
 
 LIMITS = [spec for spec in dataclasses.fields(Settings) if spec.type == "int"]
+DURATIONS = [spec for spec in dataclasses.fields(Settings) if spec.type == "float"]
 DIGEST_ABC = "sha256:" + hashlib.sha256(b"abc").hexdigest()
 DIGEST_XYZ = "sha256:" + hashlib.sha256(b"xyz").hexdigest()
 
@@ -36,9 +37,25 @@ def test_the_table_lists_every_setting_with_its_default() -> None:
     doc = settings_module.__doc__ or ""
     for spec in dataclasses.fields(Settings):
         row = next(line for line in doc.splitlines() if line.startswith(variable(spec.name) + " "))
-        expected = str(spec.default) if spec in LIMITS else "(unset)"
+        expected = "(unset)"
+        if spec in LIMITS:
+            expected = str(spec.default)
+        elif spec in DURATIONS:
+            expected = f"{spec.default:g}"
         assert row.split()[1] == expected
-        assert spec in LIMITS or not spec.default
+        assert spec in LIMITS or spec in DURATIONS or not spec.default
+
+
+@pytest.mark.parametrize(("raw", "seconds"), [("10", 10.0), ("2.5", 2.5), (" 0.25 ", 0.25)])
+def test_deadlines_are_read_in_seconds(raw: str, seconds: float) -> None:
+    loaded = Settings.from_environ({"SAMPLING_REQUEST_DEADLINE": raw})
+    assert loaded.request_deadline == seconds
+
+
+@pytest.mark.parametrize("raw", ["0", "0.0", "-1", "1e3", "ten", "3601", "1.2345", ""])
+def test_a_bad_deadline_is_refused(raw: str) -> None:
+    with pytest.raises(SettingsError, match="SAMPLING_REQUEST_DEADLINE"):
+        Settings.from_environ({"SAMPLING_REQUEST_DEADLINE": raw})
 
 
 @pytest.mark.parametrize(
