@@ -361,7 +361,9 @@ def _binomial_plan_guess(
     first, chunk = 1, 8
     while first <= max_deviations:
         ks = range(first, min(first + chunk, max_deviations + 1))
-        lows = [floor_quotient(k - 1, expected) + 1 for k in ks]
+        # Capped at max_n + 1 (a block beyond the cap), so that a tiny expected rate
+        # (5e-324) does not give a block start too large for an int64.
+        lows = [min(floor_quotient(k - 1, expected) + 1, max_n + 1) for k in ks]
         highs = [min(floor_quotient(k, expected), max_n) for k in ks]
         k_arr, high_arr = np.array(ks, dtype=np.int64), np.array(highs, dtype=np.int64)
         inside = (np.array(lows, dtype=np.int64) <= high_arr) & (k_arr < high_arr)

@@ -68,6 +68,20 @@ def test_the_plan_is_the_first_sample_size_that_holds(
     assert scanned == (plan.sample_size, plan.allowed_deviations)
 
 
+def test_a_tiny_expected_rate_plans_as_the_scan_does() -> None:
+    # 5e-324, the smallest double, once overflowed the int64 block bounds of the
+    # binomial starting plan (a 500 found by the contract fuzzer).
+    for size in (12, 400, 5000):
+        try:
+            plan = size_sample(0.0025, 5e-324, 0.8426578944317743, size)
+        except SamplingError:
+            found = None
+        else:
+            found = (plan.sample_size, plan.allowed_deviations)
+        assert _scanned_plan("hypergeometric", 0.0025, 5e-324, 0.8426578944317743, size,
+                             size) == found
+
+
 @GRID
 @given(tolerable, expected, confidence, population)
 def test_the_large_plan_warning_follows_the_scanned_zero_deviation_plan(
