@@ -56,7 +56,12 @@ class _Watchdog:
             token = self._next_token
             heapq.heappush(self._heap, (expiry, token, threading.get_ident()))
             self._live.add(token)
-            self._wake.notify()
+            # The watchdog sleeps until the earliest expiry in the heap (or for ever when it
+            # is empty); it needs waking only when this one is now the earliest. Withdrawn
+            # entries stay in the heap until their time, so a steady stream of requests
+            # does not wake it once per request.
+            if self._heap[0][1] == token:
+                self._wake.notify()
             return token
 
     def disarm(self, token: int) -> bool:
