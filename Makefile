@@ -53,7 +53,7 @@ fuzz: $(VENV)/.installed
 
 # Also writes sampling_client/openapi.json, the copy the command reads its flags from.
 spec: $(VENV)/.installed
-	$(BIN)/python -m service.openapi > openapi.yaml
+	$(BIN)/python -m service.web.openapi > openapi.yaml
 
 bench: $(VENV)/.installed
 	$(BIN)/python bench/bench_sizing.py

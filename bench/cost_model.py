@@ -74,7 +74,7 @@ def main(argv: list[str]) -> int:
     parser.add_argument("--repeats", type=int, default=2)
     options = parser.parse_args(argv)
     client = create_app(Settings(max_request_cost=10**12, request_deadline=120)).test_client()
-    logging.getLogger("service.access").disabled = True
+    logging.getLogger("service.web.access").disabled = True
     operations = {op.name: op for op in all_operations()}
     print(f"load average: {' / '.join(f'{v:.2f}' for v in os.getloadavg())}")
     print("| operation | request | estimate (units) | measured (ms) | units per µs |")

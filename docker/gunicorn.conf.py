@@ -1,3 +1,3 @@
-"""gunicorn configuration of the container and of ``make run``: see service/gunicorn_config.py."""
+"""gunicorn settings of the container and of ``make run``: see service/web/gunicorn_config.py."""
 
-from service.gunicorn_config import *  # noqa: F403
+from service.web.gunicorn_config import *  # noqa: F403

@@ -302,7 +302,7 @@ def build_parser(with_operations: bool = True) -> argparse.ArgumentParser:
 
     serve = subparsers.add_parser(
         "serve", help="run the service here under gunicorn", allow_abbrev=False,
-        description="Run the service under gunicorn with service.gunicorn_config, as the "
+        description="Run the service under gunicorn with service.web.gunicorn_config, as the "
         "container does. The flags set HOST, PORT and WEB_CONCURRENCY, which that "
         "configuration reads; the other variables it reads (GUNICORN_*, SAMPLING_*) pass "
         "through from the environment. The exit status is gunicorn's.",
@@ -662,7 +662,7 @@ def _serve(args: argparse.Namespace) -> NoReturn:
         if value is not None:
             os.environ[variable] = str(value)
     gunicorn = Path(sys.executable).parent / "gunicorn"
-    argv = [str(gunicorn), "--config", "python:service.gunicorn_config", "service.wsgi:app"]
+    argv = [str(gunicorn), "--config", "python:service.web.gunicorn_config", "service.wsgi:app"]
     try:
         # A fixed program beside this Python, its arguments fixed too, and no shell.
         os.execv(gunicorn, argv)  # noqa: S606  # nosec B606

@@ -1,7 +1,7 @@
 """The service's contract as the command line needs it, read from its OpenAPI document.
 
 The document is the one the service serves (``GET /openapi.json``); this package ships a
-copy as ``openapi.json``, generated beside ``openapi.yaml`` by ``python -m service.openapi``,
+copy as ``openapi.json``, generated beside ``openapi.yaml`` by ``python -m service.web.openapi``,
 so the command knows the operations without importing the service. From it come:
 
 - the operations (:func:`operations`): operationId, path, summary, description, the media
@@ -17,7 +17,7 @@ so the command knows the operations without importing the service. From it come:
 - the caution sentence (:func:`caution`) and the CSV formula guard (:func:`formula_guard`).
 
 What OpenAPI has no keyword for is in the document's vendor extensions, described in the
-service's generator (``service/openapi.py``): ``x-caution``, ``x-csv-formula-guard``,
+service's generator (``service/web/openapi.py``): ``x-caution``, ``x-csv-formula-guard``,
 ``x-required-unless``, ``x-accepts-text`` (an exact amount, which takes the number written
 as text), ``x-file-required``, ``x-answers`` and ``x-file-form``.
 """

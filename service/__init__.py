@@ -2,8 +2,8 @@
 
 ``create_app()`` builds the Flask application: settings from the environment,
 strict JSON, request ids, security headers and JSON log lines
-(:mod:`service.context`), Prometheus metrics (:mod:`service.metrics`), optional API
-keys (:mod:`service.access`), CORS when configured (:mod:`service.cors`), the
+(:mod:`service.web.context`), Prometheus metrics (:mod:`service.web.metrics`), optional API
+keys (:mod:`service.web.access`), CORS when configured (:mod:`service.web.cors`), the
 problem-details error handler, one blueprint per resource, and the web page and API
 reference (:mod:`service.webpage`). The sampling
 mathematics lives in :mod:`service.sampling` and knows nothing of HTTP.
@@ -22,15 +22,16 @@ if TYPE_CHECKING:
 def create_app(settings: Settings | None = None) -> Flask:
     """Build the application; ``settings`` defaults to those read from the environment."""
     # Imported here, not at the top: importing the package must stay free of side
-    # effects, because gunicorn loads ``service.gunicorn_config`` before the app, and that
+    # effects, because gunicorn loads ``service.web.gunicorn_config`` before the app, and that
     # module must export PROMETHEUS_MULTIPROC_DIR before the Prometheus client is first
     # imported (the client picks single- or multiprocess values at import).
     from flask import Flask
 
-    from service import access, context, cors, metrics, problems, webpage
+    from service import webpage
     from service.http import RESOURCES, meta
-    from service.openapi import build_yaml
     from service.settings import Settings
+    from service.web import access, context, cors, metrics, problems
+    from service.web.openapi import build_yaml
 
     settings = settings or Settings.from_environ()
     app = Flask(__name__)

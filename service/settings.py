@@ -31,7 +31,7 @@ operations), whose estimate is above ``SAMPLING_MAX_REQUEST_COST`` is refused at
 with a 422 naming the inputs that make it large. The default, 2,000,000, is about two
 seconds of work. Whatever still computes ``SAMPLING_REQUEST_DEADLINE`` seconds after the
 request began is stopped and answered with a 503 and ``Retry-After``
-(:mod:`service.deadline`); the deadline may be a decimal (``2.5``). A request carrying a
+(:mod:`service.web.deadline`); the deadline may be a decimal (``2.5``). A request carrying a
 population file is bounded by ``SAMPLING_MAX_FILE_BYTES`` and
 ``SAMPLING_UPLOAD_DEADLINE`` instead of the cost budget: reading ten million records
 legitimately takes tens of seconds.
@@ -44,10 +44,10 @@ request) is limited like any other body, by ``SAMPLING_MAX_BODY_BYTES``.
 **API keys.** Keys are never configured in clear: each accepted key is given by its
 digest, ``sha256:`` and the 64 hex digits of SHA-256 of the key's UTF-8 bytes, separated
 by commas in ``SAMPLING_API_KEYS`` or one per line in ``SAMPLING_API_KEYS_FILE`` (blank
-lines and lines starting with ``#`` are skipped). ``python -m service.access_keys new``
+lines and lines starting with ``#`` are skipped). ``python -m service.web.access_keys new``
 prints a new key and its digest. When any digest is set, every endpoint except health,
 readiness and the OpenAPI document requires ``Authorization: Bearer <key>``
-(:mod:`service.access`).
+(:mod:`service.web.access`).
 
 **CORS.** ``SAMPLING_CORS_ORIGINS`` lists, separated by commas, the exact origins
 (``https://audit.example.com``, scheme, host and optional port) whose pages may read
@@ -110,7 +110,7 @@ def _digests(entries: list[str], where: str) -> frozenset[bytes]:
             # The entry itself is not repeated: it may be a key pasted by mistake.
             raise ValueError(
                 f"{where} {number} is not of the form sha256:<64 hex digits> "
-                "(give each key's digest, never the key; see python -m service.access_keys)"
+                "(give each key's digest, never the key; see python -m service.web.access_keys)"
             )
         found.add(bytes.fromhex(match.group(1)))
     return frozenset(found)

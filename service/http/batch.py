@@ -16,14 +16,14 @@ from collections.abc import Mapping
 from typing import Any
 
 from schemas.batch import BatchRequest, BatchSchema
-from service import jsonio
 from service.http import costs, markdown
 from service.http.markdown import TicketLayout
 from service.http.operations import Operation, blueprint, cost, execute
-from service.problems import Problem, invalid_input
 from service.sampling.errors import ComputationTooLarge
 from service.sampling.wording import CAUTION
 from service.settings import Settings
+from service.web import jsonio
+from service.web.problems import Problem, invalid_input
 
 NAME = "batch"
 PATH = "/v1/batch"

@@ -40,7 +40,7 @@ from dataclasses import dataclass
 from statistics import NormalDist
 from typing import Any
 
-from service.problems import Problem, invalid_input
+from service.web.problems import Problem, invalid_input
 
 #: Every operation: parsing, validation, dumping and the log line.
 BASE = 2_000

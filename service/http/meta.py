@@ -5,8 +5,8 @@ from __future__ import annotations
 import yaml
 from flask import Blueprint, Response, current_app
 
-from service import jsonio
 from service.version import VERSION
+from service.web import jsonio
 
 bp = Blueprint("meta", __name__)
 

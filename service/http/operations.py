@@ -7,7 +7,7 @@ read strict JSON, load the request schema, call the core once, dump the
 response schema. An operation that ``accepts_file`` also takes a ``multipart/form-data``
 upload (:mod:`service.http.uploads`): its ``request`` part is loaded as the body would be,
 and the core call gets the file's temporary path as ``inputs["upload"]``. The OpenAPI
-document (:mod:`service.openapi`) is generated from the same declarations, so the contract
+document (:mod:`service.web.openapi`) is generated from the same declarations, so the contract
 and the behaviour cannot drift.
 """
 
@@ -23,10 +23,12 @@ from flask import Blueprint, Response, current_app, request
 from marshmallow import Schema, ValidationError
 from werkzeug.exceptions import RequestEntityTooLarge
 
-from service import deadline, jsonio
 from service.http import costs, markdown, uploads
 from service.http.markdown import MARKDOWN, TicketLayout
-from service.problems import (
+from service.sampling.errors import SamplingError
+from service.settings import Settings
+from service.web import deadline, jsonio
+from service.web.problems import (
     MALFORMED_BODY,
     UNSUPPORTED_MEDIA_TYPE,
     Problem,
@@ -34,8 +36,6 @@ from service.problems import (
     from_validation_error,
     invalid_input,
 )
-from service.sampling.errors import SamplingError
-from service.settings import Settings
 
 JSON = "application/json"
 

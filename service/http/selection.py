@@ -9,7 +9,6 @@ from schemas.selection import SelectionRequest, SelectionResult, SelectionSchema
 from service.http.markdown import TicketLayout
 from service.http.operations import Operation, blueprint
 from service.http.populations import read_limits, uploaded
-from service.problems import invalid_input
 from service.render import cells
 from service.render.records_csv import render_records_csv
 from service.render.records_xlsx import render_records_xlsx
@@ -22,6 +21,7 @@ from service.sampling.populations.reading import PopulationFile, open_population
 from service.sampling.selection import Selection, select
 from service.sampling.test_sheets.layout import MAX_SHEET_ROWS, RECORD_KEYS
 from service.settings import Settings
+from service.web.problems import invalid_input
 
 CSV = "text/csv"
 

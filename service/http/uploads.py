@@ -9,7 +9,7 @@ whether it succeeded or not (:func:`received` is a context manager).
 Limits: the file part at most ``SAMPLING_MAX_FILE_BYTES`` (413 beyond), the ``request``
 part at most ``SAMPLING_MAX_BODY_BYTES`` (413 beyond). A missing part, a part of another
 name or a part given twice is refused with 422 naming the part; a ``request`` part that is
-not strict JSON (:mod:`service.jsonio`) with 400 naming it.
+not strict JSON (:mod:`service.web.jsonio`) with 400 naming it.
 """
 
 from __future__ import annotations
@@ -28,9 +28,9 @@ from werkzeug.datastructures import FileStorage, MultiDict
 from werkzeug.exceptions import RequestEntityTooLarge
 from werkzeug.formparser import FormDataParser
 
-from service import jsonio
-from service.problems import MALFORMED_BODY, Problem, invalid_input
 from service.settings import Settings
+from service.web import jsonio
+from service.web.problems import MALFORMED_BODY, Problem, invalid_input
 
 MULTIPART = "multipart/form-data"
 FILE_PART = "file"
@@ -63,7 +63,7 @@ def is_multipart() -> bool:
 def received(settings: Settings) -> Iterator[Upload]:
     """Read the current request's parts; the temporary file is removed on leaving.
 
-    Raises :class:`~service.problems.Problem` (400, 413, 422) for a body that is not a
+    Raises :class:`~service.web.problems.Problem` (400, 413, 422) for a body that is not a
     well-formed upload; the temporary folder is removed then too.
     """
     folder = Path(tempfile.mkdtemp(prefix="sampling-upload-"))

@@ -5,8 +5,8 @@ Both are plain files in this package, served as they are: the page (``pages/inde
 reference (``pages/docs.html``, ``static/docs.js``) renders ``/openapi.yaml`` with Swagger
 UI, whose files come from the ``flask-swagger-ui`` package and are served from here too
 (``/ui/reference/…``). Nothing is loaded from another site, no script or style is inline,
-and no build step is needed. :mod:`service.context` gives these paths their Content
-Security Policy and :mod:`service.access` leaves them open: they hold no data, and the
+and no build step is needed. :mod:`service.web.context` gives these paths their Content
+Security Policy and :mod:`service.web.access` leaves them open: they hold no data, and the
 page asks for the API key itself when the service wants one.
 """
 

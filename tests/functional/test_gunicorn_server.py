@@ -14,7 +14,7 @@ import yaml
 from prometheus_client.parser import text_string_to_metric_families
 from scipy import stats
 
-from service.openapi import build_yaml
+from service.web.openapi import build_yaml
 from tests.functional.servers import (
     GUNICORN,
     HOST,

@@ -35,7 +35,7 @@ DOCKER = ROOT / "docker"
 DOCKERFILE = DOCKER / "Dockerfile"
 COMPOSE = DOCKER / "compose.yaml"
 NGINX_CONF = DOCKER / "nginx.conf"
-CONFIG_MODULE = ROOT / "service" / "gunicorn_config.py"
+CONFIG_MODULE = ROOT / "service" / "web" / "gunicorn_config.py"
 GUNICORN = Path(sys.executable).parent / "gunicorn"
 # A hang-guard only: loading the settings takes well under a second, gunicorn's check
 # (which imports the app) a few seconds.
@@ -118,7 +118,7 @@ def test_loading_the_settings_imports_neither_flask_nor_the_metrics_client(
 ) -> None:
     # The settings export PROMETHEUS_MULTIPROC_DIR; the Prometheus client reads it once,
     # when first imported, so nothing may import it before (the package's __init__ too).
-    probe = ("import sys, service.gunicorn_config; "
+    probe = ("import sys, service.web.gunicorn_config; "
              "print(sorted({'flask', 'prometheus_client'} & set(sys.modules)))")
     result = subprocess.run([sys.executable, "-c", probe], cwd=ROOT, capture_output=True,
                             text=True, env=child_environment(tmp_path), timeout=CHILD_SECONDS)
@@ -132,8 +132,8 @@ def test_gunicorn_defaults(tmp_path: Path) -> None:
     # The documented default: one worker process per core, at most 8.
     assert values["workers"] == min(multiprocessing.cpu_count(), 8)
     assert (values["threads"], values["timeout"], values["graceful_timeout"]) == (128, 30, 30)
-    assert values["worker_class"] == "service.gunicorn_worker.ServiceWorker"
-    assert values["logger_class"] == "service.gunicorn_worker.ServiceLogger"
+    assert values["worker_class"] == "service.web.gunicorn_worker.ServiceWorker"
+    assert values["logger_class"] == "service.web.gunicorn_worker.ServiceLogger"
     assert (values["max_requests"], values["max_requests_jitter"]) == (2000, 200)
 
 

@@ -150,8 +150,8 @@ def _load_all_text(text: str) -> list[Resource]:
 
 
 def _gunicorn_variables() -> set[str]:
-    """The variables service/gunicorn_config.py documents in its table."""
-    text = (ROOT / "service" / "gunicorn_config.py").read_text()
+    """The variables service/web/gunicorn_config.py documents in its table."""
+    text = (ROOT / "service" / "web" / "gunicorn_config.py").read_text()
     return set(re.findall(r"^([A-Z][A-Z_]+) +\S", text, flags=re.MULTILINE)) - {"PROMETHEUS"}
 
 

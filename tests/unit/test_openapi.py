@@ -16,7 +16,7 @@ from referencing import Registry, Resource
 from referencing.jsonschema import DRAFT202012
 
 from service.http import all_operations
-from service.openapi import CLIENT_COPY, build_json, build_yaml
+from service.web.openapi import CLIENT_COPY, build_json, build_yaml
 
 ROOT = Path(__file__).resolve().parents[2]
 SPEC_FILE = ROOT / "openapi.yaml"

@@ -405,7 +405,7 @@ def test_serve_runs_gunicorn_with_the_service_config(
         cli.main(["serve", "--port", "9123", "--workers", "3"])
     ((program, argv, env),) = started
     assert program.endswith("/gunicorn")
-    assert argv[1:] == ["--config", "python:service.gunicorn_config", "service.wsgi:app"]
+    assert argv[1:] == ["--config", "python:service.web.gunicorn_config", "service.wsgi:app"]
     assert env == {"HOST": "127.0.0.1", "PORT": "9123", "WEB_CONCURRENCY": "3"}
 
 

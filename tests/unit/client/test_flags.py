@@ -23,7 +23,7 @@ from schemas.fields import Rate, StrictString
 from schemas.monetary import MonetaryEvaluationRequest, MonetarySelectionRequest
 from schemas.selection import SelectionRequest
 from service.http import all_operations
-from service.openapi import build_spec
+from service.web.openapi import build_spec
 
 
 def contract_schema(schema: Schema) -> contract.Schema:

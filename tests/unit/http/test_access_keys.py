@@ -9,8 +9,8 @@ import pytest
 from flask.testing import FlaskClient
 
 from service import create_app
-from service.access_keys import digest, main, new_key
 from service.settings import Settings
+from service.web.access_keys import digest, main, new_key
 
 KEY = "northwind-month-end-7f3a"
 OTHER_KEY = "northwind-ticketing-91c2"

@@ -281,7 +281,7 @@ def test_answer_matches_the_documented_schema(client: FlaskClient) -> None:
     from referencing import Registry, Resource
     from referencing.jsonschema import DRAFT202012
 
-    from service.openapi import build_yaml
+    from service.web.openapi import build_yaml
 
     spec = yaml.safe_load(build_yaml())
     registry: Registry[Any] = Registry().with_resource(

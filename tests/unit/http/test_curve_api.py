@@ -21,7 +21,7 @@ from referencing import Registry, Resource
 from referencing.jsonschema import DRAFT202012
 from scipy import stats
 
-from service.openapi import build_yaml
+from service.web.openapi import build_yaml
 
 PATH = "/v1/plans/curve"
 SIZE = "/v1/sample-size"

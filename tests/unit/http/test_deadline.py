@@ -6,9 +6,10 @@ import time
 
 import pytest
 
-from service import create_app, deadline
-from service.problems import Problem
+from service import create_app
 from service.settings import Settings
+from service.web import deadline
+from service.web.problems import Problem
 
 # Exact sizing that computes for a few tenths of a second and costs well under the budget.
 SLOW_ESTIMATION = {"margin": 0.003, "confidence": 0.95, "methods": ["exact"]}

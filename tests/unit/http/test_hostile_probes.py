@@ -115,7 +115,7 @@ def test_the_identity_coding_is_accepted(client: FlaskClient) -> None:
 
 
 def test_the_estimation_population_cap_is_in_the_schema(client: FlaskClient) -> None:
-    from service.openapi import build_yaml
+    from service.web.openapi import build_yaml
 
     response = client.post("/v1/estimation/sample-size",
                            json={"margin": 0.05, "population": {"size": 10**11 + 1}})

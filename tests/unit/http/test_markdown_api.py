@@ -242,7 +242,7 @@ def test_bad_input_with_markdown_accepted_is_still_problem_json(client: FlaskCli
 def test_spec_documents_markdown_for_every_operation() -> None:
     import yaml
 
-    from service.openapi import build_yaml
+    from service.web.openapi import build_yaml
 
     spec = yaml.safe_load(build_yaml())
     for operation in _operations():

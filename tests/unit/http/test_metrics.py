@@ -13,8 +13,8 @@ from flask.testing import FlaskClient
 from prometheus_client.parser import text_string_to_metric_families
 
 from service import create_app
-from service.metrics import MetricsDirectoryError
 from service.settings import Settings
+from service.web.metrics import MetricsDirectoryError
 
 
 @pytest.fixture(autouse=True)

@@ -14,8 +14,8 @@ from flask import Flask
 from flask.testing import FlaskClient
 
 from service import create_app
-from service.context import JsonFormatter
 from service.settings import Settings
+from service.web.context import JsonFormatter
 
 SIZE = "/v1/sample-size"
 GOOD = {"tolerable_rate": 0.05}
@@ -224,7 +224,7 @@ def test_not_ready_answers_503() -> None:
 def test_ready_is_documented() -> None:
     import yaml
 
-    from service.openapi import build_yaml
+    from service.web.openapi import build_yaml
 
     spec = yaml.safe_load(build_yaml())
     responses = spec["paths"]["/v1/ready"]["get"]["responses"]

@@ -251,7 +251,7 @@ def test_the_spec_offers_the_upload_form_for_operations_that_accept_files(
 ) -> None:
     from openapi_spec_validator import validate
 
-    from service import openapi
+    from service.web import openapi
 
     monkeypatch.setattr(openapi, "all_operations", lambda: [PROBE_OPERATION])
     document = openapi.build_spec().to_dict()

@@ -16,8 +16,8 @@ from flask.testing import FlaskClient
 from werkzeug.test import TestResponse
 
 from service import create_app
-from service.context import CSP, PAGE_CSP
 from service.settings import Settings
+from service.web.context import CSP, PAGE_CSP
 from service.webpage import PAGES
 
 ROOT = PAGES.parents[2]

@@ -28,7 +28,7 @@ workers than cores only add context switches and cache misses: on a 2-core machi
 2 × cores + 1 workers cost more server CPU per request than 2 workers for the same
 throughput (``bench/echo_compare.py``, figures in BENCHMARKS.md).
 
-Worker model: the threaded worker of :mod:`service.gunicorn_worker` (gunicorn's
+Worker model: the threaded worker of :mod:`service.web.gunicorn_worker` (gunicorn's
 ``gthread`` with a deadline on reading a request's head and problem+json for the errors
 gunicorn answers itself). Connections wait in the worker's poller; a slow or stalled
 client holds one of the worker's threads for at most the header timeout, and the other
@@ -88,7 +88,7 @@ def _metrics_dir() -> str:
 
 bind = f"{os.environ.get('HOST', '127.0.0.1')}:{_int('PORT', 8000)}"
 workers = _int("WEB_CONCURRENCY", min(multiprocessing.cpu_count(), 8))
-worker_class = "service.gunicorn_worker.ServiceWorker"
+worker_class = "service.web.gunicorn_worker.ServiceWorker"
 threads = _int("GUNICORN_THREADS", 128)
 # Connections one worker holds open, idle or not (gunicorn's default).
 worker_connections = 1000
@@ -100,9 +100,9 @@ max_requests_jitter = max(1, max_requests // 10)
 # Refuse oversized request lines and headers early; bodies are capped by the app.
 limit_request_line = 8190
 limit_request_fields = 100
-# The app writes one JSON line per request (service.context); gunicorn's own access line,
+# The app writes one JSON line per request (service.web.context); gunicorn's own access line,
 # in the layout below, is added only when GUNICORN_ACCESS_LOG=1.
-logger_class = "service.gunicorn_worker.ServiceLogger"
+logger_class = "service.web.gunicorn_worker.ServiceLogger"
 accesslog = "-" if os.environ.get("GUNICORN_ACCESS_LOG") == "1" else None
 errorlog = "-"
 access_log_format = (
@@ -138,6 +138,6 @@ def worker_abort(worker: Any) -> None:
     Runs in the worker, on the master's SIGABRT; its counter file outlives it, so
     ``/metrics`` keeps the count. Its requests in flight get no answer.
     """
-    from service.metrics import worker_aborts
+    from service.web.metrics import worker_aborts
 
     worker_aborts().inc()

@@ -23,7 +23,7 @@ import hmac
 
 from flask import Flask, Response, request
 
-from service.problems import Problem
+from service.web.problems import Problem
 from service.webpage import is_page_path
 
 #: Health, readiness and the contract stay open, for load balancers and client generators;

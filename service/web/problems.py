@@ -18,9 +18,9 @@ from flask import Flask, Response, request
 from marshmallow import ValidationError
 from werkzeug.exceptions import ClientDisconnected, HTTPException
 
-from service import jsonio
-from service.context import request_id
 from service.sampling.errors import SamplingError
+from service.web import jsonio
+from service.web.context import request_id
 
 PROBLEM_MEDIA_TYPE = "application/problem+json"
 logger = logging.getLogger(__name__)
@@ -113,7 +113,7 @@ def from_sampling_error(exc: SamplingError) -> Problem:
 
 
 #: Set in the WSGI environ to close the connection after the answer (read by the server's
-#: worker, service.gunicorn_worker): a body refused unread leaves bytes on it.
+#: worker, service.web.gunicorn_worker): a body refused unread leaves bytes on it.
 CLOSE_AFTER = "service.close_connection"
 
 
@@ -148,7 +148,7 @@ def _body_limit() -> str:
     return "limit" if limit is None else f"{limit:,} bytes"
 
 
-# The socket's read timeout passed while the body was read (service.gunicorn_worker); werkzeug
+# The socket's read timeout passed while the body was read (service.web.gunicorn_worker); werkzeug
 # reports it as a client disconnection, or it surfaces as the timeout itself.
 _SLOW_BODY = Problem(
     408, "Request Timeout", "the request body stopped arriving; send it whole, without pauses"

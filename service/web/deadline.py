@@ -24,7 +24,7 @@ import time
 from collections.abc import Iterator
 from contextlib import contextmanager
 
-from service.problems import Problem
+from service.web.problems import Problem
 
 DEADLINE_EXCEEDED = "/problems/deadline-exceeded"
 #: Seconds a client is asked to wait before trying again.

@@ -13,7 +13,7 @@ from __future__ import annotations
 
 from flask import Flask, Response, request
 
-from service.context import REQUEST_ID_HEADER
+from service.web.context import REQUEST_ID_HEADER
 
 ALLOWED_METHODS = "GET, POST"
 ALLOWED_HEADERS = f"Accept, Authorization, Content-Type, {REQUEST_ID_HEADER}"

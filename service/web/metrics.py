@@ -16,7 +16,7 @@ sampling_worker_aborts_total             counter   (none): workers stopped by th
 a path the service does not have, so a scan of random paths cannot create new series.
 
 Under gunicorn every worker is its own process; the official client's multiprocess mode
-(``PROMETHEUS_MULTIPROC_DIR``, set up by :mod:`service.gunicorn_config`) keeps each
+(``PROMETHEUS_MULTIPROC_DIR``, set up by :mod:`service.web.gunicorn_config`) keeps each
 worker's values in a file of that folder, and ``/metrics`` adds them up, whichever
 worker answers the scrape. Without the variable (a single process, as in the tests) the
 values are the process's own.
@@ -59,7 +59,8 @@ disable_created_metrics()  # type: ignore[no-untyped-call]
 
 @cache
 def server_answers() -> Counter:
-    """Answers the HTTP server wrote itself, outside the app (:mod:`service.gunicorn_worker`)."""
+    """Answers the HTTP server wrote itself, outside the app
+    (:mod:`service.web.gunicorn_worker`)."""
     return Counter(
         "sampling_server_answers", "Answers written by the HTTP server itself.", ["status"]
     )
@@ -129,7 +130,7 @@ def check_multiprocess_directory() -> None:
     if values.ValueClass is values.MutexValue:
         raise MetricsDirectoryError(
             f"{MULTIPROCESS_VARIABLE} was set after the Prometheus client was imported; "
-            "set it before the application is imported (service.gunicorn_config does)"
+            "set it before the application is imported (service.web.gunicorn_config does)"
         )
 
 

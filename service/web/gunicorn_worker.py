@@ -39,7 +39,7 @@ from gunicorn import util
 from gunicorn.glogging import Logger
 from gunicorn.workers.gthread import ThreadWorker
 
-from service.problems import CLOSE_AFTER
+from service.web.problems import CLOSE_AFTER
 
 PROBLEM_MEDIA_TYPE = "application/problem+json"
 SECURITY_HEADERS = (
@@ -87,7 +87,7 @@ def problem_bytes(status: int, reason: str, detail: str | None = None) -> bytes:
 
 def _count(status: int) -> None:
     try:
-        from service.metrics import server_answers
+        from service.web.metrics import server_answers
 
         server_answers().labels(status=str(status)).inc()
     except Exception:  # counting must never stop the answer

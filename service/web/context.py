@@ -51,7 +51,7 @@ _CACHEABLE = frozenset({"/openapi.yaml", "/openapi.json"})
 # The fields of a log line, in order, beyond time, level and message.
 REQUEST_FIELDS = ("request_id", "method", "path", "status", "duration_ms")
 
-access_logger = logging.getLogger("service.access")
+access_logger = logging.getLogger("service.web.access")
 
 
 def request_id() -> str | None:

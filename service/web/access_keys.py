@@ -5,8 +5,8 @@ bytes. Keys made here are 256 random bits (``secrets.token_urlsafe(32)``), so an
 unsalted digest is enough: a key cannot be guessed from its digest, and the service never
 needs the key itself.
 
-``python -m service.access_keys new`` prints a new key and its digest;
-``python -m service.access_keys digest`` reads keys from standard input, one per line,
+``python -m service.web.access_keys new`` prints a new key and its digest;
+``python -m service.web.access_keys digest`` reads keys from standard input, one per line,
 and prints each one's digest.
 """
 
@@ -43,7 +43,7 @@ def main(argv: list[str]) -> int:
             if line.strip():
                 print(digest(line.strip()))
         return 0
-    print("usage: python -m service.access_keys new | digest < keys.txt", file=sys.stderr)
+    print("usage: python -m service.web.access_keys new | digest < keys.txt", file=sys.stderr)
     return 2
 
 

@@ -1,6 +1,6 @@
 """Generate the OpenAPI 3.1 document from the operations and their schemas.
 
-``python -m service.openapi`` prints it and writes the same document as JSON to
+``python -m service.web.openapi`` prints it and writes the same document as JSON to
 ``sampling_client/openapi.json``, the copy the client and its command ship as package data
 and read their operations, flags and texts from; ``make spec`` writes the printed text to
 ``openapi.yaml``, and a test fails when either committed file differs.
@@ -40,7 +40,7 @@ from service.sampling.wording import CAUTION
 from service.version import VERSION
 
 #: The copy of the document the client ships (see the module's docstring).
-CLIENT_COPY = Path(__file__).resolve().parents[1] / "sampling_client" / "openapi.json"
+CLIENT_COPY = Path(__file__).resolve().parents[2] / "sampling_client" / "openapi.json"
 
 OPENAPI_VERSION = "3.1.0"
 
@@ -380,7 +380,7 @@ def write_client_copy(path: Path = CLIENT_COPY) -> None:
         if not path.exists() or path.read_text(encoding="utf-8") != text:
             path.write_text(text, encoding="utf-8")
     except OSError as exc:  # an installed copy in a read-only folder: the print still stands
-        print(f"service.openapi: {path} not written: {exc.strerror}", file=sys.stderr)
+        print(f"service.web.openapi: {path} not written: {exc.strerror}", file=sys.stderr)
 
 
 if __name__ == "__main__":

@@ -1,0 +1,1 @@
+"""The web plumbing every endpoint shares; see README.md in this folder."""
