@@ -38,6 +38,7 @@ from service.sampling.selection import (
     generate_seed,
     select,
 )
+from service.sampling.selection import order as selection_order
 
 # --------------------------------------------------------------------------- reference
 # A straightforward re-implementation of the written specification (Notes of ``select``),
@@ -898,7 +899,7 @@ def test_list_order_without_packing(monkeypatch: pytest.MonkeyPatch) -> None:
     # Words are packed with a rank and an index into 64 bits while at least _LEAST_ROOM bits
     # remain for the word, which holds below about 16 million ties; past that the tied
     # identifiers are sorted by pairs instead. Requiring more room than 64 bits forces that way.
-    monkeypatch.setattr(selection_module, "_LEAST_ROOM", 65)
+    monkeypatch.setattr(selection_order, "_LEAST_ROOM", 65)
     for items in islice(_awkward_lists(), 0, None, 4):
         expected = sorted(items, key=lambda s: s.encode("utf-8"))
         assert _canonical_by_positions(items) == expected, items
