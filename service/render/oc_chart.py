@@ -16,7 +16,7 @@ from __future__ import annotations
 
 from collections.abc import Sequence
 
-from service.render.rate_marks import draw_guide, draw_line, rate_marks
+from service.render.rate_marks import check_rates, draw_guide, draw_line, rate_marks
 from service.render.svg import (
     CURVE,
     INK,
@@ -109,10 +109,7 @@ def render_operating_characteristic_svg(
     for value, name in ((sample_size, "sample_size"), (allowed_deviations, "allowed_deviations")):
         if isinstance(value, bool) or not isinstance(value, int) or value < 0:
             raise ValueError(f"{name} must be a whole number ≥ 0; got {value!r}")
-    for rate_or_risk, name in ((tolerable_rate, "tolerable_rate"), (expected_rate, "expected_rate"),
-                               (risk_of_overreliance, "risk_of_overreliance"),
-                               (risk_of_underreliance, "risk_of_underreliance")):
-        check_unit(rate_or_risk, name)
+    check_rates(tolerable_rate, expected_rate, risk_of_overreliance, risk_of_underreliance)
 
     from matplotlib.ticker import MultipleLocator
 

@@ -11,13 +11,13 @@ from __future__ import annotations
 from dataclasses import dataclass
 from typing import TYPE_CHECKING
 
-from service.render.svg import EXPECTED, TOLERABLE, percent
+from service.render.svg import EXPECTED, TOLERABLE, check_unit, percent
 
 if TYPE_CHECKING:
     from matplotlib.axes import Axes
     from matplotlib.lines import Line2D
 
-__all__ = ["RateMark", "draw_guide", "draw_line", "rate_marks"]
+__all__ = ["RateMark", "check_rates", "draw_guide", "draw_line", "rate_marks"]
 
 
 @dataclass(frozen=True)
@@ -39,6 +39,19 @@ def _label(kind: str, rate: float, risk_name: str, risk: float | None) -> str:
     if risk is not None:
         label += f", {risk_name} {percent(risk)}"
     return label
+
+
+def check_rates(
+    tolerable_rate: float | None,
+    expected_rate: float | None,
+    risk_of_overreliance: float | None,
+    risk_of_underreliance: float | None,
+) -> None:
+    """Refuse any of the two rates and two risks that is given and not a number from 0 to 1."""
+    for value, name in ((tolerable_rate, "tolerable_rate"), (expected_rate, "expected_rate"),
+                        (risk_of_overreliance, "risk_of_overreliance"),
+                        (risk_of_underreliance, "risk_of_underreliance")):
+        check_unit(value, name)
 
 
 def rate_marks(

@@ -20,7 +20,7 @@ import math
 from collections.abc import Sequence
 from dataclasses import dataclass
 
-from service.render.rate_marks import draw_guide, draw_line, rate_marks
+from service.render.rate_marks import check_rates, draw_guide, draw_line, rate_marks
 from service.render.svg import (
     CURVE,
     INK,
@@ -134,10 +134,7 @@ def render_staged_curve_svg(
     if isinstance(largest, bool) or not isinstance(largest, int) or largest < 1:
         raise ValueError(f"the last stage's size must be a whole number ≥ 1; got {largest!r}")
     curve = _checked(points, largest)
-    for value, name in ((tolerable_rate, "tolerable_rate"), (expected_rate, "expected_rate"),
-                        (risk_of_overreliance, "risk_of_overreliance"),
-                        (risk_of_underreliance, "risk_of_underreliance")):
-        check_unit(value, name)
+    check_rates(tolerable_rate, expected_rate, risk_of_overreliance, risk_of_underreliance)
 
     from matplotlib.ticker import MaxNLocator, MultipleLocator
 
