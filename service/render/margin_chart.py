@@ -7,8 +7,8 @@ a glance. The book value is drawn as a line when it falls within the scale and i
 stated in the heading. The document carries a ``<title>`` and a ``<desc>`` that state the
 same figures in words for screen readers.
 
-The SVG is written by hand (no plotting library): the output is deterministic and every
-text is XML-escaped.
+The SVG is written by hand (no plotting library), in the palette of
+:mod:`service.render.svg`: the output is deterministic and every text is XML-escaped.
 """
 
 from __future__ import annotations
@@ -19,15 +19,14 @@ from dataclasses import dataclass
 from decimal import Decimal
 from html import escape
 
+from service.render.svg import CURVE, EXPECTED, INK, MUTED, TOLERABLE
+
 __all__ = ["MarginBar", "render_margin_svg"]
 
 _WIDTH, _ROW, _LEFT, _RIGHT, _TOP = 640, 34, 150, 30, 70
-_PROJECTED = "#1f3a5f"  # deep slate blue
-_ALLOWANCE = "#9fb3c8"
-_TOLERABLE = "#9b3d2e"  # brick
-_BOOK = "#4a6b3a"  # moss
-_INK = "#2e2e2e"
-_MUTED = "#6b6b6b"
+_PROJECTED = CURVE
+_ALLOWANCE = "#9fb3c8"  # pale slate: the allowance for sampling risk
+_BOOK = EXPECTED
 
 
 @dataclass(frozen=True)
@@ -92,18 +91,18 @@ def render_margin_svg(
         f'font-family="DejaVu Sans, sans-serif" font-size="11">',
         f'<title id="t">{escape(heading)}</title>',
         f'<desc id="d">{escape(" ".join(words))}</desc>',
-        f'<text id="chart-title" x="{_LEFT}" y="24" fill="{_INK}" font-size="13">'
+        f'<text id="chart-title" x="{_LEFT}" y="24" fill="{INK}" font-size="13">'
         f"{escape(heading)}</text>",
     ]
     for row, bar in enumerate(bars):
         y = _TOP + row * _ROW
         name = escape(bar.label)
         parts.append(
-            f'<text x="{_LEFT - 8}" y="{y + 15}" text-anchor="end" fill="{_INK}">{name}</text>'
+            f'<text x="{_LEFT - 8}" y="{y + 15}" text-anchor="end" fill="{INK}">{name}</text>'
         )
         if bar.limit is None:
             parts.append(
-                f'<text id="bar-{name}" x="{_LEFT + 4}" y="{y + 15}" fill="{_MUTED}">'
+                f'<text id="bar-{name}" x="{_LEFT + 4}" y="{y + 15}" fill="{MUTED}">'
                 "not computed</text>"
             )
             continue
@@ -116,17 +115,17 @@ def render_margin_svg(
             f'width="{x(bar.projected) - _LEFT}" height="20" fill="{_PROJECTED}"/>'
         )
         parts.append(
-            f'<text x="{x(bar.limit) + 4}" y="{y + 15}" fill="{_INK}">{_amount(bar.limit)}</text>'
+            f'<text x="{x(bar.limit) + 4}" y="{y + 15}" fill="{INK}">{_amount(bar.limit)}</text>'
         )
     bottom = _TOP + _ROW * len(bars)
     if tolerable_misstatement is not None:
         tx = x(tolerable_misstatement)
         parts.append(
             f'<line id="mark-tolerable" x1="{tx}" y1="{_TOP - 12}" x2="{tx}" y2="{bottom}" '
-            f'stroke="{_TOLERABLE}" stroke-width="1.5" stroke-dasharray="5 3"/>'
+            f'stroke="{TOLERABLE}" stroke-width="1.5" stroke-dasharray="5 3"/>'
         )
         parts.append(
-            f'<text x="{tx}" y="{_TOP - 16}" text-anchor="middle" fill="{_TOLERABLE}">'
+            f'<text x="{tx}" y="{_TOP - 16}" text-anchor="middle" fill="{TOLERABLE}">'
             f"tolerable {_amount(tolerable_misstatement)}</text>"
         )
     if book_in_scale:
@@ -136,11 +135,11 @@ def render_margin_svg(
             f'stroke="{_BOOK}" stroke-width="1.5"/>'
         )
     parts.append(
-        f'<line x1="{_LEFT}" y1="{bottom}" x2="{_WIDTH - _RIGHT}" y2="{bottom}" stroke="{_MUTED}"/>'
+        f'<line x1="{_LEFT}" y1="{bottom}" x2="{_WIDTH - _RIGHT}" y2="{bottom}" stroke="{MUTED}"/>'
     )
     parts.append(
-        f'<text x="{_LEFT}" y="{bottom + 18}" fill="{_MUTED}">0</text>'
-        f'<text x="{_WIDTH - _RIGHT}" y="{bottom + 18}" text-anchor="end" fill="{_MUTED}">'
+        f'<text x="{_LEFT}" y="{bottom + 18}" fill="{MUTED}">0</text>'
+        f'<text x="{_WIDTH - _RIGHT}" y="{bottom + 18}" text-anchor="end" fill="{MUTED}">'
         f"{_amount(top)}</text>"
     )
     parts.append(
@@ -154,7 +153,7 @@ def render_margin_svg(
         for i, line in enumerate(lines)
     )
     parts.append(
-        f'<text id="caption" x="{_LEFT - 120}" y="{bottom + 56}" fill="{_MUTED}" '
+        f'<text id="caption" x="{_LEFT - 120}" y="{bottom + 56}" fill="{MUTED}" '
         f'font-size="9">{spans}</text>'
     )
     parts.append("</svg>")

@@ -2,28 +2,19 @@
 
 from __future__ import annotations
 
-import xml.etree.ElementTree as ET
 from decimal import Decimal
 
 import pytest
 from flask.testing import FlaskClient
 
 from service.render.margin_chart import MarginBar, render_margin_svg
+from tests.unit.render.svg_checks import SVG, by_id, parse
 
-SVG = "{http://www.w3.org/2000/svg}"
 BARS = [
     MarginBar("stringer", Decimal(7000), Decimal(41802)),
     MarginBar("cell", Decimal(7000), Decimal(36957)),
     MarginBar("betting", Decimal(7000), None),
 ]
-
-
-def parse(svg: str) -> ET.Element:
-    return ET.fromstring(svg)  # noqa: S314 - the chart's own output, not outside data
-
-
-def by_id(root: ET.Element) -> dict[str, ET.Element]:
-    return {e.get("id", ""): e for e in root.iter() if e.get("id")}
 
 
 def test_bars_are_to_scale_and_the_tolerable_line_is_placed() -> None:

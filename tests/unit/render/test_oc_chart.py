@@ -6,7 +6,6 @@ import os
 import re
 import subprocess
 import sys
-import xml.etree.ElementTree as ET
 from concurrent.futures import ThreadPoolExecutor
 from pathlib import Path
 
@@ -15,8 +14,8 @@ import pytest
 from scipy import stats
 
 from service.render.oc_chart import render_operating_characteristic_svg
+from tests.unit.render.svg_checks import SVG, by_id, parse, texts, vertices
 
-SVG = "{http://www.w3.org/2000/svg}"
 ROOT = Path(__file__).resolve().parents[3]
 
 # A demo plan: 93 items, reliance with at most 1 deviation.  Its operating characteristic
@@ -42,40 +41,28 @@ def _render(**changes: object) -> str:
     return render_operating_characteristic_svg(points, **arguments)  # type: ignore[arg-type]
 
 
-def _parse(svg: str) -> ET.Element:
-    return ET.fromstring(svg)  # noqa: S314 - the chart's own output, not outside data
-
-
-def _by_id(root: ET.Element) -> dict[str, ET.Element]:
-    return {element.get("id", ""): element for element in root.iter() if element.get("id")}
-
-
-def _texts(element: ET.Element) -> list[str]:
-    return ["".join(node.itertext()).strip() for node in element.iter(f"{SVG}text")]
-
-
 def test_svg_document_with_ids_and_labels() -> None:
-    root = _parse(_render())
+    root = parse(_render())
     assert root.tag == f"{SVG}svg"
-    ids = _by_id(root)
+    ids = by_id(root)
     for gid in ("oc-curve", "mark-tolerable", "mark-expected", "risk-overreliance",
                 "risk-underreliance", "caption", "axis-x-label", "axis-y-label", "plan-title",
                 "legend", "label-tolerable", "label-expected"):
         assert gid in ids, gid
-    all_text = _texts(root)
+    all_text = texts(root)
     assert "True deviation rate" in all_text
     assert "Probability the sample supports reliance" in all_text
-    assert _texts(ids["caption"]) == [
+    assert texts(ids["caption"]) == [
         "Demo plan: 93 items, reliance if at most 1 deviation is found."
     ]
-    assert _texts(ids["label-tolerable"]) == ["Tolerable rate 5%, risk of overreliance 5%"]
-    assert _texts(ids["label-expected"]) == ["Expected rate 1%, risk of underreliance 25%"]
-    assert _texts(ids["plan-title"]) == ["Sample of 93 items, reliance with up to 1 deviation"]
+    assert texts(ids["label-tolerable"]) == ["Tolerable rate 5%, risk of overreliance 5%"]
+    assert texts(ids["label-expected"]) == ["Expected rate 1%, risk of underreliance 25%"]
+    assert texts(ids["plan-title"]) == ["Sample of 93 items, reliance with up to 1 deviation"]
 
 
 def test_curve_has_one_vertex_per_point() -> None:
-    root = _parse(_render())
-    paths = list(_by_id(root)["oc-curve"].iter(f"{SVG}path"))
+    root = parse(_render())
+    paths = list(by_id(root)["oc-curve"].iter(f"{SVG}path"))
     assert len(paths) == 1
     commands = re.findall(r"[ML]", paths[0].get("d", ""))
     assert len(commands) == len(POINTS)
@@ -84,25 +71,23 @@ def test_curve_has_one_vertex_per_point() -> None:
 def test_curve_follows_the_points() -> None:
     # The drawn curve falls from the top of the plot to the bottom, as the binomial
     # probability of at most one deviation does (SVG y grows downwards).
-    root = _parse(_render())
-    d = next(_by_id(root)["oc-curve"].iter(f"{SVG}path")).get("d", "")
-    ys = [float(y) for y in re.findall(r"[ML] [-\d.]+ ([-\d.]+)", d)]
+    ys = [y for _, y in vertices(by_id(parse(_render()))["oc-curve"])]
     assert ys == sorted(ys)
     assert ys[-1] > ys[0]
 
 
 def test_marks_are_left_out_when_not_given() -> None:
-    root = _parse(_render(tolerable_rate=None, expected_rate=None,
-                                 risk_of_overreliance=None, risk_of_underreliance=None))
-    ids = _by_id(root)
+    root = parse(_render(tolerable_rate=None, expected_rate=None,
+                         risk_of_overreliance=None, risk_of_underreliance=None))
+    ids = by_id(root)
     assert "oc-curve" in ids
     for gid in ("mark-tolerable", "mark-expected", "risk-overreliance", "risk-underreliance"):
         assert gid not in ids
 
 
 def test_labels_without_risks() -> None:
-    ids = _by_id(_parse(_render(risk_of_overreliance=None, risk_of_underreliance=None)))
-    assert _texts(ids["label-tolerable"]) == ["Tolerable rate 5%"]
+    ids = by_id(parse(_render(risk_of_overreliance=None, risk_of_underreliance=None)))
+    assert texts(ids["label-tolerable"]) == ["Tolerable rate 5%"]
     assert "risk-overreliance" not in ids
 
 

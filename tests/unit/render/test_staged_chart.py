@@ -2,16 +2,12 @@
 
 from __future__ import annotations
 
-import re
-import xml.etree.ElementTree as ET
-
 import numpy as np
 import pytest
 from scipy import stats
 
 from service.render.staged_chart import StagedChartPoint, render_staged_curve_svg
-
-SVG = "{http://www.w3.org/2000/svg}"
+from tests.unit.render.svg_checks import SVG, by_id, parse, texts, vertices
 
 # A demo two-stage plan: test 66 items, accept with no deviation, fail with 2 or more,
 # else test 69 more and accept with at most 2 in all. Its acceptance probability and
@@ -47,23 +43,6 @@ def _render(**changes: object) -> str:
     return render_staged_curve_svg(points, **arguments)  # type: ignore[arg-type]
 
 
-def _parse(svg: str) -> ET.Element:
-    return ET.fromstring(svg)  # noqa: S314 - the chart's own output, not outside data
-
-
-def _by_id(root: ET.Element) -> dict[str, ET.Element]:
-    return {element.get("id", ""): element for element in root.iter() if element.get("id")}
-
-
-def _texts(element: ET.Element) -> list[str]:
-    return ["".join(node.itertext()).strip() for node in element.iter(f"{SVG}text")]
-
-
-def _vertices(element: ET.Element) -> list[tuple[float, float]]:
-    d = next(element.iter(f"{SVG}path")).get("d", "")
-    return [(float(x), float(y)) for x, y in re.findall(r"[ML] ([-\d.]+) ([-\d.]+)", d)]
-
-
 def _is_affine(values: list[float], drawn: list[float]) -> bool:
     """Whether ``drawn`` is ``a + b × values`` for one a and b (to 0.01 of a pixel)."""
     slope = (drawn[-1] - drawn[0]) / (values[-1] - values[0])
@@ -72,7 +51,7 @@ def _is_affine(values: list[float], drawn: list[float]) -> bool:
 
 
 def test_svg_document_with_title_desc_ids_and_labels() -> None:
-    root = _parse(_render())
+    root = parse(_render())
     assert root.tag == f"{SVG}svg"
     assert [child.tag for child in root][:2] == [f"{SVG}title", f"{SVG}desc"]
     assert root[0].text == (
@@ -80,38 +59,38 @@ def test_svg_document_with_title_desc_ids_and_labels() -> None:
         "stage 2: 135 items, accept ≤ 2, fail ≥ 3"
     )
     assert root[1].text == "Demo description."
-    ids = _by_id(root)
+    ids = by_id(root)
     for gid in ("acceptance-curve", "expected-size-curve", "largest-sample-size",
                 "mark-tolerable", "mark-expected", "mark-tolerable-size", "mark-expected-size",
                 "risk-overreliance", "risk-underreliance", "legend", "label-acceptance",
                 "label-expected-size", "label-tolerable", "label-expected", "axis-x-label",
                 "axis-y-label", "axis-y-size-label", "plan-title", "plan-stages", "caption"):
         assert gid in ids, gid
-    assert _texts(ids["label-tolerable"]) == ["Tolerable rate 5%, risk of overreliance 4.97%"]
-    assert _texts(ids["label-expected"]) == ["Expected rate 1%, risk of underreliance 19.36%"]
-    assert _texts(ids["label-expected-size"]) == ["Expected items tested (at most 135)"]
-    assert _texts(ids["plan-stages"]) == [
+    assert texts(ids["label-tolerable"]) == ["Tolerable rate 5%, risk of overreliance 4.97%"]
+    assert texts(ids["label-expected"]) == ["Expected rate 1%, risk of underreliance 19.36%"]
+    assert texts(ids["label-expected-size"]) == ["Expected items tested (at most 135)"]
+    assert texts(ids["plan-stages"]) == [
         "Stage 1: 66 items, accept ≤ 0, fail ≥ 2; stage 2: 135 items, accept ≤ 2, fail ≥ 3"]
-    assert _texts(ids["caption"]) == [
+    assert texts(ids["caption"]) == [
         "Demo staged plan for Harbour Lane Supplies, purchase approvals."]
 
 
 def test_both_curves_are_the_points_one_vertex_each() -> None:
-    ids = _by_id(_parse(_render()))
+    ids = by_id(parse(_render()))
     rates = [p.rate for p in POINTS]
     for gid, values in (("acceptance-curve", [p.acceptance_probability for p in POINTS]),
                         ("expected-size-curve", [p.expected_sample_size for p in POINTS])):
-        vertices = _vertices(ids[gid])
-        assert len(vertices) == len(POINTS)
-        assert _is_affine(rates, [x for x, _ in vertices])
-        assert _is_affine(values, [y for _, y in vertices])
+        drawn = vertices(ids[gid])
+        assert len(drawn) == len(POINTS)
+        assert _is_affine(rates, [x for x, _ in drawn])
+        assert _is_affine(values, [y for _, y in drawn])
     # SVG y grows downwards: the acceptance probability falls as the rate grows.
-    ys = [y for _, y in _vertices(ids["acceptance-curve"])]
+    ys = [y for _, y in vertices(ids["acceptance-curve"])]
     assert ys == sorted(ys)
 
 
 def test_marks_are_left_out_when_not_given() -> None:
-    ids = _by_id(_parse(_render(tolerable_rate=None, expected_rate=None,
+    ids = by_id(parse(_render(tolerable_rate=None, expected_rate=None,
                                 risk_of_overreliance=None, risk_of_underreliance=None)))
     assert "acceptance-curve" in ids
     for gid in ("mark-tolerable", "mark-expected", "mark-tolerable-size", "mark-expected-size",
@@ -120,16 +99,16 @@ def test_marks_are_left_out_when_not_given() -> None:
 
 
 def test_population_label_in_title_and_chart() -> None:
-    root = _parse(_render(population_label="Harbour Lane Supplies <purchase orders>"))
+    root = parse(_render(population_label="Harbour Lane Supplies <purchase orders>"))
     assert root[0].text is not None
     assert root[0].text.endswith("; population: Harbour Lane Supplies <purchase orders>")
-    assert _texts(_by_id(root)["population-label"]) == [
+    assert texts(by_id(root)["population-label"]) == [
         "Population: Harbour Lane Supplies <purchase orders>"]
 
 
 def test_a_stage_that_never_accepts_is_said_so() -> None:
-    root = _parse(_render(stages=[(40, -1, 2), (135, 2, 3)]))
-    assert _texts(_by_id(root)["plan-stages"])[0].startswith(
+    root = parse(_render(stages=[(40, -1, 2), (135, 2, 3)]))
+    assert texts(by_id(root)["plan-stages"])[0].startswith(
         "Stage 1: 40 items, never accept, fail ≥ 2")
 
 
