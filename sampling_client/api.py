@@ -557,10 +557,7 @@ class SamplingClient:
     ) -> str:
         """POST ``request`` asking for ``accept`` (``text/markdown``, ``text/csv``, ...) and
         return the answer's text exactly as sent (UTF-8 decoded; a JSON answer too)."""
-        response = self._send(
-            "POST", self.path_of(operation), request, accept, timeout, request_id
-        )
-        return self._expect(response, accept).content.decode("utf-8")
+        return self._post_raw(operation, request, accept, timeout, request_id).decode("utf-8")
 
     def call_bytes(
         self,
@@ -573,10 +570,7 @@ class SamplingClient:
     ) -> bytes:
         """POST ``request`` asking for ``accept`` (an XLSX workbook, say) and return the
         answer's bytes exactly."""
-        response = self._send(
-            "POST", self.path_of(operation), request, accept, timeout, request_id
-        )
-        return self._expect(response, accept).content
+        return self._post_raw(operation, request, accept, timeout, request_id)
 
     def call_file(
         self,
@@ -611,9 +605,22 @@ class SamplingClient:
         request_id: str | None = None,
     ) -> bytes:
         """As :meth:`call_file`, asking for ``accept``; the answer's bytes exactly."""
-        body = FileUpload(file, request)
-        response = self._send("POST", self.path_of(operation), body, accept, timeout,
-                              request_id)
+        return self._post_raw(
+            operation, FileUpload(file, request), accept, timeout, request_id
+        )
+
+    def _post_raw(
+        self,
+        operation: str,
+        body: Mapping[str, Any] | FileUpload,
+        accept: str,
+        timeout: Timeout | None,
+        request_id: str | None,
+    ) -> bytes:
+        """POST ``body`` to ``operation`` asking for ``accept``; the answer's bytes exactly."""
+        response = self._send(
+            "POST", self.path_of(operation), body, accept, timeout, request_id
+        )
         return self._expect(response, accept).content
 
     @staticmethod
