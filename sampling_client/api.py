@@ -541,10 +541,7 @@ class SamplingClient:
         ``X-Request-ID`` (the service logs it and repeats it in problem details).
         For the other media types an operation answers, see :meth:`call_text`.
         """
-        return self._json(
-            self._send("POST", self.path_of(operation), request, JSON, timeout, request_id),
-            "POST",
-        )
+        return self._post_json(operation, request, timeout, request_id)
 
     def call_text(
         self,
@@ -588,11 +585,7 @@ class SamplingClient:
         read again from its start when the request is tried again. A file that cannot be
         read raises :class:`OSError` before anything is sent.
         """
-        body = FileUpload(file, request)
-        return self._json(
-            self._send("POST", self.path_of(operation), body, JSON, timeout, request_id),
-            "POST",
-        )
+        return self._post_json(operation, FileUpload(file, request), timeout, request_id)
 
     def call_file_bytes(
         self,
@@ -607,6 +600,19 @@ class SamplingClient:
         """As :meth:`call_file`, asking for ``accept``; the answer's bytes exactly."""
         return self._post_raw(
             operation, FileUpload(file, request), accept, timeout, request_id
+        )
+
+    def _post_json(
+        self,
+        operation: str,
+        body: Mapping[str, Any] | FileUpload,
+        timeout: Timeout | None,
+        request_id: str | None,
+    ) -> dict[str, Any]:
+        """POST ``body`` to ``operation`` and return its JSON answer."""
+        return self._json(
+            self._send("POST", self.path_of(operation), body, JSON, timeout, request_id),
+            "POST",
         )
 
     def _post_raw(
