@@ -218,8 +218,12 @@ def test_the_test_sheet_holds_the_selection(runs: Runs, url: str, work: Path) ->
         "population": {"file": {**FILE, "filters": [
             {"column": "amount", "comparison": ">", "value": 0}]}},
         "sample_size": 20, "seed": SEED})
-    rows = list(openpyxl.load_workbook(work / SHEET, read_only=True)["Tests"]
-                .iter_rows(values_only=True))
+    # A read-only workbook keeps its file open until closed.
+    book = openpyxl.load_workbook(work / SHEET, read_only=True)
+    try:
+        rows = list(book["Tests"].iter_rows(values_only=True))
+    finally:
+        book.close()
     item = rows[0].index("item")
     assert [row[item] for row in rows[1:]] == chosen["items"]
 
