@@ -10,7 +10,6 @@ failure.
 from __future__ import annotations
 
 import os
-import subprocess
 import tempfile
 import threading
 import time
@@ -22,33 +21,21 @@ from pathlib import Path
 import requests
 
 from tests.functional.servers import (
-    HOST,
-    ROOT,
     Server,
-    free_port,
-    gunicorn_command,
+    start_server,
     stop,
-    wait_until_healthy,
 )
 
 
 @contextmanager
 def served() -> Iterator[Server]:
     """The production gunicorn on a free loopback port, stopped (by its pid) on leaving."""
-    port = free_port()
-    env = {**os.environ, "HOST": HOST, "PORT": str(port)}
     with tempfile.TemporaryDirectory(prefix="bench-hostile-") as folder:
-        log_path = Path(folder) / "server.log"
-        with log_path.open("wb") as log:
-            # The helper's fixed gunicorn command line, no shell.
-            process = subprocess.Popen(gunicorn_command(), cwd=ROOT, env=env,  # noqa: S603
-                                       stdout=log, stderr=subprocess.STDOUT)
-        server = Server(url=f"http://{HOST}:{port}", process=process, log_path=log_path)
+        server = start_server(Path(folder), log_name="server.log")
         try:
-            wait_until_healthy(server)
             yield server
         finally:
-            stop(process)
+            stop(server.process)
 
 
 def percentile(values: list[float], share: float) -> float:

@@ -541,10 +541,7 @@ class SamplingClient:
         ``X-Request-ID`` (the service logs it and repeats it in problem details).
         For the other media types an operation answers, see :meth:`call_text`.
         """
-        return self._json(
-            self._send("POST", self.path_of(operation), request, JSON, timeout, request_id),
-            "POST",
-        )
+        return self._post_json(operation, request, timeout, request_id)
 
     def call_text(
         self,
@@ -557,10 +554,7 @@ class SamplingClient:
     ) -> str:
         """POST ``request`` asking for ``accept`` (``text/markdown``, ``text/csv``, ...) and
         return the answer's text exactly as sent (UTF-8 decoded; a JSON answer too)."""
-        response = self._send(
-            "POST", self.path_of(operation), request, accept, timeout, request_id
-        )
-        return self._expect(response, accept).content.decode("utf-8")
+        return self._post_raw(operation, request, accept, timeout, request_id).decode("utf-8")
 
     def call_bytes(
         self,
@@ -573,10 +567,7 @@ class SamplingClient:
     ) -> bytes:
         """POST ``request`` asking for ``accept`` (an XLSX workbook, say) and return the
         answer's bytes exactly."""
-        response = self._send(
-            "POST", self.path_of(operation), request, accept, timeout, request_id
-        )
-        return self._expect(response, accept).content
+        return self._post_raw(operation, request, accept, timeout, request_id)
 
     def call_file(
         self,
@@ -594,11 +585,7 @@ class SamplingClient:
         read again from its start when the request is tried again. A file that cannot be
         read raises :class:`OSError` before anything is sent.
         """
-        body = FileUpload(file, request)
-        return self._json(
-            self._send("POST", self.path_of(operation), body, JSON, timeout, request_id),
-            "POST",
-        )
+        return self._post_json(operation, FileUpload(file, request), timeout, request_id)
 
     def call_file_bytes(
         self,
@@ -611,9 +598,35 @@ class SamplingClient:
         request_id: str | None = None,
     ) -> bytes:
         """As :meth:`call_file`, asking for ``accept``; the answer's bytes exactly."""
-        body = FileUpload(file, request)
-        response = self._send("POST", self.path_of(operation), body, accept, timeout,
-                              request_id)
+        return self._post_raw(
+            operation, FileUpload(file, request), accept, timeout, request_id
+        )
+
+    def _post_json(
+        self,
+        operation: str,
+        body: Mapping[str, Any] | FileUpload,
+        timeout: Timeout | None,
+        request_id: str | None,
+    ) -> dict[str, Any]:
+        """POST ``body`` to ``operation`` and return its JSON answer."""
+        return self._json(
+            self._send("POST", self.path_of(operation), body, JSON, timeout, request_id),
+            "POST",
+        )
+
+    def _post_raw(
+        self,
+        operation: str,
+        body: Mapping[str, Any] | FileUpload,
+        accept: str,
+        timeout: Timeout | None,
+        request_id: str | None,
+    ) -> bytes:
+        """POST ``body`` to ``operation`` asking for ``accept``; the answer's bytes exactly."""
+        response = self._send(
+            "POST", self.path_of(operation), body, accept, timeout, request_id
+        )
         return self._expect(response, accept).content
 
     @staticmethod

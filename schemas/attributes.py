@@ -18,9 +18,11 @@ from schemas.common import (
     StrictSchema,
     check_rates_in_order,
     conclusion_field,
+    curve_link_field,
     flatten_population,
     summary_field,
 )
+from schemas.curves import CURVE_PATH
 from schemas.fields import (
     Rate,
     choice_field,
@@ -230,32 +232,12 @@ class SampleSizePlanSchema(ResultSchema):
             "characteristic of this plan.",
         },
     )
-    links = fields.Method(
-        "_links",
-        required=True,
-        metadata={
-            "type": "object",
-            "properties": {
-                "curve": {
-                    "type": "string",
-                    "description": "Path of the operating characteristic endpoint.",
-                    "example": "/v1/plans/curve",
-                }
-            },
-            "required": ["curve"],
-            "additionalProperties": False,
-        },
-    )
+    links = curve_link_field(CURVE_PATH, "Path of the operating characteristic endpoint.")
 
     def _curve_request(self, plan: Any) -> dict[str, Any]:
         from schemas.curves import curve_request_body
 
         return curve_request_body(plan)
-
-    def _links(self, plan: Any) -> dict[str, str]:
-        from schemas.curves import CURVE_PATH
-
-        return {"curve": CURVE_PATH}
 
 
 class EvaluationRequest(StrictSchema):

@@ -97,6 +97,23 @@ class ResultSchema(Schema):
         return {k: v for k, v in data.items() if not (k in keys and v is None)}
 
 
+def curve_link_field(path: str, description: str) -> fields.Function:
+    """``links``: an object whose one member ``curve`` is ``path``, the endpoint that draws
+    the curve of the plan answered."""
+    return fields.Function(
+        lambda plan: {"curve": path},
+        required=True,
+        metadata={
+            "type": "object",
+            "properties": {
+                "curve": {"type": "string", "description": description, "example": path}
+            },
+            "required": ["curve"],
+            "additionalProperties": False,
+        },
+    )
+
+
 def check_rates_in_order(data: dict[str, Any], errors: dict[str, list[str]]) -> None:
     """Add an error under ``expected_rate`` when it is not below ``tolerable_rate``."""
     tolerable, expected = data.get("tolerable_rate"), data.get("expected_rate")

@@ -17,6 +17,7 @@ from schemas.common import (
     PopulationSchema,
     ResultSchema,
     StrictSchema,
+    check_rates_in_order,
     flatten_population,
     summary_field,
 )
@@ -107,11 +108,7 @@ class CurveRequest(StrictSchema):
             errors["allowed_deviations"] = [
                 f"allowed_deviations {k} must not exceed sample_size {n}"
             ]
-        tolerable, expected = data.get("tolerable_rate"), data.get("expected_rate")
-        if tolerable is not None and expected is not None and expected >= tolerable:
-            errors["expected_rate"] = [
-                f"expected_rate {expected!r} must be below tolerable_rate {tolerable!r}"
-            ]
+        check_rates_in_order(data, errors)
         if errors:
             raise ValidationError(errors)
 

@@ -13,6 +13,7 @@ from schemas.common import (
     StrictSchema,
     check_rates_in_order,
     conclusion_field,
+    curve_link_field,
     flatten_population,
     rates_in_order,
     summary_field,
@@ -190,22 +191,7 @@ class StagedPlanSchema(ResultSchema):
             "Accept: image/svg+xml, as a chart).",
         },
     )
-    links = fields.Function(
-        lambda plan: {"curve": STAGED_CURVE_PATH},
-        required=True,
-        metadata={
-            "type": "object",
-            "properties": {
-                "curve": {
-                    "type": "string",
-                    "description": "Path of the staged plan's curve endpoint.",
-                    "example": STAGED_CURVE_PATH,
-                }
-            },
-            "required": ["curve"],
-            "additionalProperties": False,
-        },
-    )
+    links = curve_link_field(STAGED_CURVE_PATH, "Path of the staged plan's curve endpoint.")
 
 
 class StagedEvaluationRequest(StrictSchema):

@@ -4,7 +4,7 @@
 -- request posts one of them, drawn at random from a generator seeded by the thread's
 -- number, so a rerun sends the same sequence. A file of one line repeats that body.
 --
--- done() prints one line "LOAD_RESULT {json}" in the layout of bench/load/drive.lua.
+-- done() prints one line "LOAD_RESULT {json}" (bench/load/load_result.lua).
 
 local threads = {}
 local requests_raw = {}
@@ -34,13 +34,6 @@ function request()
    return requests_raw[math.random(#requests_raw)]
 end
 
-function done(summary, latency, requests)
-   local errors = summary.errors
-   io.write(string.format(
-      "\nLOAD_RESULT {\"requests\": %d, \"duration_us\": %d, \"bytes\": %d, " ..
-      "\"connect\": %d, \"read\": %d, \"write\": %d, \"timeout\": %d, \"status\": %d, " ..
-      "\"p50_us\": %d, \"p99_us\": %d, \"max_us\": %d}\n",
-      summary.requests, summary.duration, summary.bytes,
-      errors.connect, errors.read, errors.write, errors.timeout, errors.status,
-      latency:percentile(50), latency:percentile(99), latency.max))
-end
+-- done(): the LOAD_RESULT line, written once for both load scripts.
+local here = debug.getinfo(1, "S").source:sub(2):match("^(.*)/") or "."
+dofile(here .. "/../load/load_result.lua")

@@ -58,13 +58,6 @@ function request()
    end
 end
 
-function done(summary, latency, requests)
-   local errors = summary.errors
-   io.write(string.format(
-      "\nLOAD_RESULT {\"requests\": %d, \"duration_us\": %d, \"bytes\": %d, " ..
-      "\"connect\": %d, \"read\": %d, \"write\": %d, \"timeout\": %d, \"status\": %d, " ..
-      "\"p50_us\": %d, \"p99_us\": %d, \"max_us\": %d}\n",
-      summary.requests, summary.duration, summary.bytes,
-      errors.connect, errors.read, errors.write, errors.timeout, errors.status,
-      latency:percentile(50), latency:percentile(99), latency.max))
-end
+-- done(): the LOAD_RESULT line, written once for both load scripts.
+local here = debug.getinfo(1, "S").source:sub(2):match("^(.*)/") or "."
+dofile(here .. "/load_result.lua")

@@ -23,7 +23,6 @@ import argparse
 import os
 import platform
 import resource
-import subprocess
 import sys
 import tempfile
 import time
@@ -41,12 +40,8 @@ import worker_kill  # noqa: E402
 import wrk_runs  # noqa: E402
 
 from tests.functional.servers import (  # noqa: E402
-    HOST,
-    Server,
-    free_port,
-    gunicorn_command,
+    start_server,
     stop,
-    wait_until_healthy,
 )
 
 SHARE_GOAL_PERCENT = 80
@@ -96,26 +91,6 @@ def cpu_model() -> str:
         if line.startswith("model name"):
             return line.split(":", 1)[1].strip()
     return platform.processor() or "unknown"
-
-
-def start_server(log_dir: Path, workers: int | None) -> Server:
-    """The production gunicorn on a free loopback port; WEB_CONCURRENCY only if asked."""
-    port = free_port()
-    env = {**os.environ, "HOST": HOST, "PORT": str(port)}
-    if workers is not None:
-        env["WEB_CONCURRENCY"] = str(workers)
-    log_path = log_dir / "server.log"
-    with log_path.open("wb") as log:
-        # The helper's fixed gunicorn command line, no shell.
-        process = subprocess.Popen(gunicorn_command(), cwd=ROOT, env=env,  # noqa: S603
-                                   stdout=log, stderr=subprocess.STDOUT)
-    server = Server(url=f"http://{HOST}:{port}", process=process, log_path=log_path)
-    try:
-        wait_until_healthy(server)
-    except BaseException:
-        stop(process)
-        raise
-    return server
 
 
 def _loads(averages: tuple[float, float, float]) -> str:
@@ -286,7 +261,12 @@ def main(argv: list[str]) -> int:
     settings = wrk_runs.LoadSettings(options.seconds, options.timeout_seconds, options.threads)
     version = wrk_runs.wrk_version()
     load_before = os.getloadavg()
-    server = start_server(Path(tempfile.mkdtemp(prefix="sampling-load-")), options.workers)
+    # WEB_CONCURRENCY only if asked: the production default otherwise.
+    server = start_server(
+        Path(tempfile.mkdtemp(prefix="sampling-load-")),
+        {} if options.workers is None else {"WEB_CONCURRENCY": str(options.workers)},
+        log_name="server.log",
+    )
     results: list[wrk_runs.RunResult] = []
     killed = None
     try:

@@ -17,7 +17,7 @@ from service.sampling.curves import (
     curve_summary,
     operating_characteristic,
 )
-from service.sampling.wording import CAUTION, percent
+from service.sampling.wording import CAUTION, percent, plan_setting_parts
 from service.settings import Settings
 
 SVG = "image/svg+xml"
@@ -37,12 +37,9 @@ def _caption(curve: OperatingCharacteristic) -> str:
     noun = "deviation" if k == 1 else "deviations"
     allowance = "no deviation" if k == 0 else f"up to {k:,} {noun}"
     parts = [f"{curve.sample_size:,} items", allowance, f"{curve.method} model"]
-    if curve.population_size is not None:
-        parts.append(f"population {curve.population_size:,}")
-    if curve.tolerable_rate is not None:
-        parts.append(f"tolerable {percent(curve.tolerable_rate)}")
-    if curve.expected_rate is not None:
-        parts.append(f"expected {percent(curve.expected_rate)}")
+    parts += plan_setting_parts(
+        curve.population_size, curve.tolerable_rate, curve.expected_rate
+    )
     return f"Plan: {', '.join(parts)}. {CAUTION}"
 
 

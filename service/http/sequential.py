@@ -40,7 +40,7 @@ from service.sampling.sequential.staged import (
 )
 from service.sampling.sequential.strata import StratifiedEvaluation, evaluate_strata
 from service.sampling.sequential.wording import staged_curve_summary
-from service.sampling.wording import CAUTION, percent
+from service.sampling.wording import CAUTION, plan_setting_parts
 from service.settings import Settings
 
 SVG = "image/svg+xml"
@@ -61,16 +61,14 @@ def _curve(inputs: dict[str, Any], settings: Settings) -> StagedCurve:
 def _staged_caption(curve: StagedCurve) -> str:
     """The plan in one short sentence, then the caution sentence."""
     parts = [f"{len(curve.stages)} stages", f"{curve.method} model"]
-    if curve.population_size is not None:
-        parts.append(f"population {curve.population_size:,}")
-    if curve.tolerable_rate is not None:
-        parts.append(f"tolerable {percent(curve.tolerable_rate)}")
-    if curve.expected_rate is not None:
-        parts.append(f"expected {percent(curve.expected_rate)}")
-        if curve.expected_sample_size_at_expected_rate is not None:
-            parts.append(
-                f"{curve.expected_sample_size_at_expected_rate:,.1f} items expected there"
-            )
+    parts += plan_setting_parts(
+        curve.population_size, curve.tolerable_rate, curve.expected_rate
+    )
+    if (
+        curve.expected_rate is not None
+        and curve.expected_sample_size_at_expected_rate is not None
+    ):
+        parts.append(f"{curve.expected_sample_size_at_expected_rate:,.1f} items expected there")
     return f"Staged plan: {', '.join(parts)}. {CAUTION}"
 
 

@@ -180,6 +180,18 @@ def _check_population(population_size: int | None) -> None:
 # --- sizing -----------------------------------------------------------------
 
 
+def _bisect_smallest(holds: Callable[[int], bool], lo: int, hi: int) -> int:
+    """Smallest n in [lo, hi] with ``holds(n)``, by bisection, for ``holds`` monotone
+    and true at ``hi``."""
+    while lo < hi:
+        mid = (lo + hi) // 2
+        if holds(mid):
+            hi = mid
+        else:
+            lo = mid + 1
+    return lo
+
+
 def _smallest_satisfying(holds: Callable[[int], bool], lo: int, hi: int) -> int:
     """Smallest n in [lo, hi] with ``holds(n)``, for ``holds`` monotone and true at ``hi``.
 
@@ -192,13 +204,7 @@ def _smallest_satisfying(holds: Callable[[int], bool], lo: int, hi: int) -> int:
         lo += step + 1
         step *= 2
     hi = min(hi, lo + step)
-    while lo < hi:
-        mid = (lo + hi) // 2
-        if holds(mid):
-            hi = mid
-        else:
-            lo = mid + 1
-    return lo
+    return _bisect_smallest(holds, lo, hi)
 
 
 def _smallest_satisfying_below(
@@ -216,13 +222,7 @@ def _smallest_satisfying_below(
         hi -= step
         step *= 2
     lo = max(lo, hi - step + 1)
-    while lo < hi:
-        mid = (lo + hi) // 2
-        if holds(mid):
-            hi = mid
-        else:
-            lo = mid + 1
-    return lo
+    return _bisect_smallest(holds, lo, hi)
 
 
 def _largest_qualifying(qualifies: Callable[[int], bool], lo: int, hi: int, guess: int) -> int:

@@ -48,6 +48,25 @@ NEXT_STEPS = (
 AU-C 530): the steps that follow from the standards, in plain words."""
 
 
+def plan_setting_parts(
+    population_size: int | None, tolerable_rate: float | None, expected_rate: float | None
+) -> list[str]:
+    """The population size and the tolerable and expected rates that are given, each as a
+    short phrase for a chart caption.
+
+    >>> plan_setting_parts(5000, 0.05, None)
+    ['population 5,000', 'tolerable 5%']
+    """
+    parts = []
+    if population_size is not None:
+        parts.append(f"population {population_size:,}")
+    if tolerable_rate is not None:
+        parts.append(f"tolerable {percent(tolerable_rate)}")
+    if expected_rate is not None:
+        parts.append(f"expected {percent(expected_rate)}")
+    return parts
+
+
 def _tolerable_count(rate: float, size: int | None, count: int | None) -> str:
     """ "5% of 12 items is 1 deviant item" for a small population, else ""."""
     if size is None or count is None or size > SMALL_POPULATION:

@@ -107,6 +107,31 @@ def stop(process: subprocess.Popen[bytes], seconds: float = STOP_SECONDS) -> Non
         process.wait(timeout=seconds)
 
 
+def start_server(
+    log_dir: Path, env: Mapping[str, str] | None = None, log_name: str = "server-{port}.log"
+) -> Server:
+    """gunicorn with the production config on a free port, once it answers; ``env`` adds or
+    overrides variables.
+
+    The server's own output goes to ``log_dir/log_name`` (``{port}`` replaced). A server that
+    exits or does not answer in time is stopped and :class:`ServerFailed` raised.
+    """
+    port = free_port()
+    full_env = {**os.environ, "HOST": HOST, "PORT": str(port), **(env or {})}
+    log_path = log_dir / log_name.format(port=port)
+    with log_path.open("wb") as log:
+        process = subprocess.Popen(
+            gunicorn_command(), cwd=ROOT, env=full_env, stdout=log, stderr=subprocess.STDOUT
+        )
+    server = Server(url=f"http://{HOST}:{port}", process=process, log_path=log_path)
+    try:
+        wait_until_healthy(server)
+    except BaseException:
+        stop(process)
+        raise
+    return server
+
+
 @contextmanager
 def running_server(
     log_dir: Path, env: Mapping[str, str] | None = None, workers: int = 2
@@ -116,20 +141,11 @@ def running_server(
     The server's own output (access and service logs) goes to ``log_dir/server-PORT.log``.
     A server that exits or does not answer in time fails the test, with the end of its log.
     """
-    port = free_port()
-    full_env = {**os.environ, "HOST": HOST, "PORT": str(port),
-                "WEB_CONCURRENCY": str(workers), **(env or {})}
-    log_path = log_dir / f"server-{port}.log"
-    with log_path.open("wb") as log:
-        process = subprocess.Popen(
-            gunicorn_command(), cwd=ROOT, env=full_env, stdout=log, stderr=subprocess.STDOUT
-        )
-        server = Server(url=f"http://{HOST}:{port}", process=process, log_path=log_path)
-        try:
-            try:
-                wait_until_healthy(server)
-            except ServerFailed as failure:
-                pytest.fail(str(failure))
-            yield server
-        finally:
-            stop(process)
+    try:
+        server = start_server(log_dir, {"WEB_CONCURRENCY": str(workers), **(env or {})})
+    except ServerFailed as failure:
+        pytest.fail(str(failure))
+    try:
+        yield server
+    finally:
+        stop(server.process)

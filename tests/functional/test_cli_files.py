@@ -33,6 +33,7 @@ import pytest
 import requests
 
 from tests.functional.servers import ROOT, running_server
+from tests.sheet_results import fill_attribute_results
 
 pytestmark = pytest.mark.functional
 
@@ -129,15 +130,7 @@ def _finish(command: str, process: subprocess.Popen[bytes]
 def _complete_the_sheet(work: Path) -> None:
     """What the README's reviewer does: every item passed both attributes, except draw 7,
     a deviation for "three-way match"."""
-    book = openpyxl.load_workbook(work / SHEET)
-    tests = book["Tests"]
-    header = [cell.value for cell in tests[1]]
-    column = {name: header.index(name) + 1 for name in header}
-    for row in range(2, tests.max_row + 1):
-        draw = tests.cell(row, column["draw"]).value
-        tests.cell(row, column[f"{ATTRIBUTES[0]}: result"], "passed")
-        tests.cell(row, column[f"{ATTRIBUTES[1]}: result"], "deviation" if draw == 7 else "passed")
-    book.save(work / COMPLETED)
+    fill_attribute_results(work / SHEET, work / COMPLETED, ATTRIBUTES, deviation_draw=7)
 
 
 # Two commands checked against the same requests sent directly.
@@ -225,8 +218,12 @@ def test_the_test_sheet_holds_the_selection(runs: Runs, url: str, work: Path) ->
         "population": {"file": {**FILE, "filters": [
             {"column": "amount", "comparison": ">", "value": 0}]}},
         "sample_size": 20, "seed": SEED})
-    rows = list(openpyxl.load_workbook(work / SHEET, read_only=True)["Tests"]
-                .iter_rows(values_only=True))
+    # A read-only workbook keeps its file open until closed.
+    book = openpyxl.load_workbook(work / SHEET, read_only=True)
+    try:
+        rows = list(book["Tests"].iter_rows(values_only=True))
+    finally:
+        book.close()
     item = rows[0].index("item")
     assert [row[item] for row in rows[1:]] == chosen["items"]
 

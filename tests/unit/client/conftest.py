@@ -3,10 +3,13 @@
 from __future__ import annotations
 
 from collections.abc import Iterator
+from typing import Any
 
 import pytest
 import requests
 
+from sampling_client import cli
+from sampling_client.api import SamplingClient
 from service import create_app
 from service.settings import Settings
 from tests.unit.client.fakes import AppAdapter
@@ -23,3 +26,15 @@ def app_session(adapter: AppAdapter) -> Iterator[requests.Session]:
     session.mount("http://", adapter)
     yield session
     session.close()
+
+
+@pytest.fixture
+def through_app(monkeypatch: pytest.MonkeyPatch,
+                app_session: requests.Session) -> requests.Session:
+    """Every client the command makes sends through the app in process."""
+
+    def make(*args: Any, **kwargs: Any) -> SamplingClient:
+        return SamplingClient(*args, session=app_session, **kwargs)
+
+    monkeypatch.setattr(cli, "SamplingClient", make)
+    return app_session

@@ -28,18 +28,6 @@ ROOT = Path(__file__).resolve().parents[3]
 EXAMPLE = ROOT / "examples" / "month-end-controls.csv"
 
 
-@pytest.fixture
-def through_app(monkeypatch: pytest.MonkeyPatch,
-                app_session: requests.Session) -> requests.Session:
-    """Every client the command makes sends through the app in process."""
-
-    def make(*args: Any, **kwargs: Any) -> SamplingClient:
-        return SamplingClient(*args, session=app_session, **kwargs)
-
-    monkeypatch.setattr(cli, "SamplingClient", make)
-    return app_session
-
-
 def scripted(monkeypatch: pytest.MonkeyPatch, *script: Any) -> ScriptedSession:
     session = ScriptedSession(list(script))
 

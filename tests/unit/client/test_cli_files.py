@@ -20,6 +20,7 @@ import requests
 
 from sampling_client import FileUpload, SamplingClient, cli, multipart
 from sampling_client.api import XLSX
+from tests.sheet_results import fill_attribute_results
 from tests.unit.client.fakes import AppAdapter, ScriptedSession
 
 ROOT = Path(__file__).resolve().parents[3]
@@ -30,18 +31,6 @@ ATTRIBUTES = ("approved before release", "three-way match")
 @pytest.fixture
 def capsys(capsysbinary: pytest.CaptureFixture[bytes]) -> pytest.CaptureFixture[bytes]:
     return capsysbinary
-
-
-@pytest.fixture
-def through_app(monkeypatch: pytest.MonkeyPatch,
-                app_session: requests.Session) -> requests.Session:
-    """Every client the command makes sends through the app in process."""
-
-    def make(*args: Any, **kwargs: Any) -> SamplingClient:
-        return SamplingClient(*args, session=app_session, **kwargs)
-
-    monkeypatch.setattr(cli, "SamplingClient", make)
-    return app_session
 
 
 def run(capsys: pytest.CaptureFixture[bytes], *argv: str) -> tuple[int, str, str]:
@@ -206,17 +195,8 @@ def _completed(tmp_path: Path, capsys: pytest.CaptureFixture[bytes], deviation_d
                          "--attributes", ATTRIBUTES[0], "--attributes", ATTRIBUTES[1],
                          "--xlsx", "--output", str(sheet))
     assert status == 0, err
-    book = openpyxl.load_workbook(sheet)
-    tests = book["Tests"]
-    header = [cell.value for cell in tests[1]]
-    column = {name: header.index(name) + 1 for name in header}
-    for row in range(2, tests.max_row + 1):
-        draw = tests.cell(row, column["draw"]).value
-        tests.cell(row, column[f"{ATTRIBUTES[0]}: result"], "passed")
-        tests.cell(row, column[f"{ATTRIBUTES[1]}: result"],
-                   "deviation" if draw == deviation_draw else "passed")
     done = tmp_path / "completed.xlsx"
-    book.save(done)
+    fill_attribute_results(sheet, done, ATTRIBUTES, deviation_draw)
     return done
 
 

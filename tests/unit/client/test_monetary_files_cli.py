@@ -5,14 +5,11 @@ from __future__ import annotations
 
 import json
 from pathlib import Path
-from typing import Any
 
 import openpyxl
 import pytest
-import requests
 
 from sampling_client import cli
-from sampling_client.api import SamplingClient
 
 ROOT = Path(__file__).resolve().parents[3]
 LEDGER = ROOT / "examples" / "kestrel-receivables-ledger.csv"
@@ -23,14 +20,7 @@ SELECT = ["monetary-selection", "--file", str(LEDGER), "--id-column", "invoice",
           "--seed", "kestrel-valley-ar-2026-12"]
 
 
-@pytest.fixture(autouse=True)
-def through_app(monkeypatch: pytest.MonkeyPatch,
-                app_session: requests.Session) -> requests.Session:
-    def make(*args: Any, **kwargs: Any) -> SamplingClient:
-        return SamplingClient(*args, session=app_session, **kwargs)
-
-    monkeypatch.setattr(cli, "SamplingClient", make)
-    return app_session
+pytestmark = pytest.mark.usefixtures("through_app")
 
 
 def test_a_ledger_selects_as_its_items(capsys: pytest.CaptureFixture[str]) -> None:
