@@ -406,7 +406,7 @@ OPERATIONS = [
             response=MonetarySheetEvaluationSchema,
             run=_evaluate_sheet,
             tag="monetary-unit sampling",
-            renderers={XLSX: render_evaluated_monetary_sheet},
+            renderers={XLSX: render_evaluated_monetary_sheet, SVG: render_margin},
             ticket=TicketLayout(
                 answer=(
                     "selection_fingerprint",

@@ -35,6 +35,7 @@ NARROW = 360
 XLSX = "application/vnd.openxmlformats-officedocument.spreadsheetml.sheet"
 POPULATION_CSV = ROOT / "examples" / "harbour-lane-purchase-orders.csv"
 RECEIVABLES_CSV = ROOT / "examples" / "kestrel-receivables.csv"
+LEDGER_CSV = ROOT / "examples" / "kestrel-receivables-ledger.csv"
 KEY = "harbour-lane-page-7c41"
 
 
@@ -432,7 +433,9 @@ def test_monetary_plan_selection_and_evaluation(
 
     fill(browser, {"mev-size": "93", "mev-method": "cell", "mev-misstatements":
                    "KV-1187, 3120.00, 2496.00\nKV-2043, 880.40, 440.20\nKV-3310, 1500.00, 1650.00"})
-    evaluation = press(browser, "form[data-operation='/v1/monetary/evaluation']", "Evaluate")
+    evaluation = press(
+        browser, "form[data-operation='/v1/monetary/evaluation']:not([data-multipart])",
+        "Evaluate")
     expected_evaluation = api(server, "/v1/monetary/evaluation", {
         "book_value": "2500000.00", "sample_size": 93, "selection_method": "cell",
         "confidence": 0.95, "tolerable_misstatement": "125000.00", "misstatements": [
@@ -447,6 +450,55 @@ def test_monetary_plan_selection_and_evaluation(
         "const img = arguments[0].querySelector('img.chart');"
         "return img && img.complete && img.naturalWidth > 0;", evaluation), "the limits chart")
     shot(browser, screenshots, "monetary")
+
+
+def test_monetary_test_sheet_from_a_ledger_file_and_back(
+    browser: Any, server: Server, downloads: Path, tmp_path: Path, screenshots: Path
+) -> None:
+    selection_form = "form[data-operation='/v1/monetary/selection']"
+    sheet_form = "form[data-operation='/v1/monetary/evaluation'][data-multipart]"
+    open_view(browser, server, "monetary")
+    browser.find_element(
+        "css selector", f"{selection_form} input[name='population-kind'][value='file']").click()
+    fill(browser, {"mus-ledger": str(LEDGER_CSV), "mus-ledger-id": "invoice",
+                   "mus-ledger-amount": "balance", "mus-select-size": "8",
+                   "mus-seed": "kestrel-valley-ar-2026-12"})
+    request = {"population": {"file": {"id_column": "invoice", "amount_column": "balance"}},
+               "sample_size": 8, "seed": "kestrel-valley-ar-2026-12", "method": "fixed_interval"}
+    selection = press(browser, selection_form, "Select")
+    expected = api_upload(server, "/v1/monetary/selection", LEDGER_CSV, request)
+    assert value_shown(selection, "Selection fingerprint") == expected["selection_fingerprint"]
+
+    started = time.time()
+    press(browser, selection_form, "Download test sheet (XLSX)")
+    book = load_workbook(downloaded(downloads, "monetary-test-sheet.xlsx", started))
+    tests = book["Tests"]
+    at = {cell.value: cell.column for cell in tests[1]}
+    for row in range(2, tests.max_row + 1):
+        tests.cell(row, at["audited amount"], tests.cell(row, at["book amount"]).value)
+    # The first item was found 500.00 short.
+    tests.cell(2, at["audited amount"], float(tests.cell(2, at["book amount"]).value) - 500)
+    completed = tmp_path / "kestrel-completed.xlsx"
+    book.save(completed)
+
+    fill(browser, {"mus-sheet-file": str(completed), "mus-sheet-tolerable": "20000.00"})
+    evaluation = press(browser, sheet_form, "Evaluate the sheet")
+    expected_evaluation = api_upload(server, "/v1/monetary/evaluation", completed, {
+        "tolerable_misstatement": "20000.00", "confidence": 0.95})
+    assert expected_evaluation["overstatement"]["known_misstatement"] == "500.00"
+    assert value_shown(evaluation, "Net most likely misstatement") == (
+        expected_evaluation["net_most_likely_misstatement"])
+    assert evaluation.find_element("css selector", ".summary").text == (
+        expected_evaluation["summary"])
+    wait_for(lambda: browser.execute_script(
+        "const img = arguments[0].querySelector('img.chart');"
+        "return img && img.complete && img.naturalWidth > 0;", evaluation), "the limits chart")
+    shot(browser, screenshots, "monetary-sheet")
+
+    started = time.time()
+    press(browser, sheet_form, "Download the sheet with its evaluation")
+    evaluated = load_workbook(downloaded(downloads, "evaluated-monetary-test-sheet.xlsx", started))
+    assert {"Tests", "Evaluation"} <= set(evaluated.sheetnames)
 
 
 def test_any_operation_from_the_contract(browser: Any, server: Server, screenshots: Path) -> None:

@@ -438,13 +438,13 @@
     } else {
       const answer = await response.json();
       showDocument(result, answer);
-      await addCharts(form, result, path, body, answer);
+      await addCharts(form, result, path, body, answer, file);
     }
     const heading = result.querySelector(".result-heading");
     if (heading) heading.focus();
   }
 
-  async function addCharts(form, result, path, body, answer) {
+  async function addCharts(form, result, path, body, answer, file) {
     if (!form) return;
     if (form.dataset.curve && answer.curve_request && answer.links && answer.links.curve) {
       const response = await call(answer.links.curve, answer.curve_request, SVG);
@@ -454,7 +454,8 @@
       }
     }
     if (form.dataset.chart) {
-      const response = await call(path, body, SVG);
+      // The chart of an uploaded sheet is drawn from the same sheet, sent again.
+      const response = await call(path, body, SVG, file);
       if (response.ok) {
         await showChart(result, response, "The misstatement limits against the tolerable misstatement.");
       }

@@ -332,3 +332,25 @@ def test_the_evaluation_as_markdown_carries_the_caution(api: FlaskClient, blank:
     fingerprint = _evaluate(api, _completed(blank)).json["selection_fingerprint"]
     assert fingerprint in text
     assert CAUTION in text
+
+
+def test_the_chart_of_a_completed_sheet_is_the_chart_of_its_json_evaluation(
+    api: FlaskClient, blank: bytes, selection: dict[str, Any]
+) -> None:
+    # The web page draws the limits of an uploaded sheet by sending it again for SVG; the
+    # chart must be the one the same misstatements give as JSON.
+    audited, found = _audited(blank)
+    request = {"confidence": 0.9, "tolerable_misstatement": "250000"}
+    svg = {"Accept": "image/svg+xml"}
+    by_sheet = _evaluate(api, _completed(blank, audited), request, headers=svg)
+    assert by_sheet.status_code == 200, by_sheet.get_data(as_text=True)
+    assert by_sheet.mimetype == "image/svg+xml"
+    by_json = api.post("/v1/monetary/evaluation", headers=svg, json={
+        "book_value": selection["sampled_value"],
+        "sample_size": selection["units_drawn"],
+        "selection_method": "cell",
+        **request,
+        "misstatements": found,
+    })
+    assert by_json.status_code == 200
+    assert by_sheet.get_data() == by_json.get_data()
