@@ -61,7 +61,7 @@ def median_seconds(fn, repeat):
 
 
 def _fresh(t, e, c, population):
-    attributes._planned.cache_clear()
+    attributes.sizing._planned.cache_clear()
     return size_sample(t, e, c, population)
 
 

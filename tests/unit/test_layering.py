@@ -105,8 +105,8 @@ def test_the_client_is_actually_read() -> None:
 def test_the_core_is_actually_read() -> None:
     # Guards the guard: the walk sees the core's real imports.
     names = imported_modules(
-        (ROOT / "service/sampling/attributes.py").read_text(encoding="utf-8"),
-        "service.sampling.attributes",
+        (ROOT / "service/sampling/attributes/sizing.py").read_text(encoding="utf-8"),
+        "service.sampling.attributes.sizing",
     )
     assert "scipy" in names
     assert "service.sampling.errors" in names

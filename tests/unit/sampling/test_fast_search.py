@@ -14,12 +14,11 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
 from service.sampling import hypergeometric
-from service.sampling.attributes import (
+from service.sampling.attributes import evaluate_sample, size_sample
+from service.sampling.attributes.searches import (
     _largest_qualifying,
     _smallest_qualifying,
     _smallest_satisfying_below,
-    evaluate_sample,
-    size_sample,
 )
 from service.sampling.errors import SamplingError
 from service.sampling.rates import ceil_product, exact_rate
