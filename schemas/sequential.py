@@ -111,6 +111,18 @@ class StageSchema(StrictSchema):
         return Stage(**data)
 
 
+def _stages(description: str) -> fields.List:
+    """The stages of a staged plan sent back to the service (evaluation, curve)."""
+    return fields.List(
+        fields.Nested(StageSchema),
+        required=True,
+        validate=validate.Length(
+            min=1, max=MAX_STAGES, error="must hold from {min} to {max} stages"
+        ),
+        metadata={"description": description},
+    )
+
+
 class StageOut(Schema):
     cumulative_sample_size = fields.Integer(required=True)
     accept_if_at_most = fields.Integer(required=True)
@@ -198,14 +210,7 @@ class StagedEvaluationRequest(StrictSchema):
     """A finished staged test: the plan as run, where it stopped and what it found."""
 
     population = fields.Nested(PopulationSchema)
-    stages = fields.List(
-        fields.Nested(StageSchema),
-        required=True,
-        validate=validate.Length(
-            min=1, max=MAX_STAGES, error="must hold from {min} to {max} stages"
-        ),
-        metadata={"description": "The plan as run (the stages of /v1/plans/staged)."},
-    )
+    stages = _stages("The plan as run (the stages of /v1/plans/staged).")
     stage_reached = count_field(
         "Stage (from 1) at which the test stopped.", minimum=1, example=2, required=True
     )
@@ -289,14 +294,7 @@ class StagedCurveRequest(StrictSchema):
     """A staged plan whose curve is asked for (the stages of /v1/plans/staged)."""
 
     population = fields.Nested(PopulationSchema)
-    stages = fields.List(
-        fields.Nested(StageSchema),
-        required=True,
-        validate=validate.Length(
-            min=1, max=MAX_STAGES, error="must hold from {min} to {max} stages"
-        ),
-        metadata={"description": "The plan's stages, as /v1/plans/staged returns them."},
-    )
+    stages = _stages("The plan's stages, as /v1/plans/staged returns them.")
     method = _method()
     tolerable_rate = tolerable_rate_field(
         "When given, the risk of overreliance at this rate is reported."
