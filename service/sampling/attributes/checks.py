@@ -23,9 +23,6 @@ class _TooManyDeviations(Exception):
     """Internal signal: the plan search passed MAX_ALLOWED_DEVIATIONS."""
 
 
-# --- validation -------------------------------------------------------------
-
-
 def _items(count: int) -> str:
     return f"{count:,} item" + ("" if count == 1 else "s")
 

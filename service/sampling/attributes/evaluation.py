@@ -34,9 +34,6 @@ except ImportError:  # pragma: no cover - a scipy that moved it
     _beta_ppf = stats.beta.ppf
 
 
-# --- evaluation -------------------------------------------------------------
-
-
 # The bounds below take the risk ``alpha`` (one tail), computed exactly from the written
 # confidence and rounded once, and use the inverse of the tail that holds it, so that a
 # confidence of 99.9999% does not reach them as the rounded double 1 − 0.999999.

@@ -6,8 +6,6 @@ from __future__ import annotations
 
 from collections.abc import Callable
 
-# --- sizing -----------------------------------------------------------------
-
 
 def _bisect_smallest(holds: Callable[[int], bool], lo: int, hi: int) -> int:
     """Smallest n in [lo, hi] with ``holds(n)``, by bisection, for ``holds`` monotone

@@ -14,8 +14,6 @@ from scipy import stats
 from service.sampling.estimation.lattice import _ceil_times, _floor_times
 from service.sampling.estimation.limits import _DIRECT, FloatArray, IntArray
 
-# --------------------------------------------------------------------------- binomial
-
 
 def _binomial_miss(n: npt.ArrayLike, below: npt.ArrayLike, above: npt.ArrayLike,
                    p: npt.ArrayLike) -> FloatArray:

@@ -46,8 +46,6 @@ from service.sampling.estimation.limits import (
 from service.sampling.ties import exact_tails
 from service.sampling.ties.band import RELATIVE_BAND, near
 
-# --------------------------------------------------------------------------- exact miss probability
-
 
 def _miss(n: int, rate: Fraction | None, margin: Fraction, population: int | None) -> float:
     sizes = np.array([n], dtype=np.int64)

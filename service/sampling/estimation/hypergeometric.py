@@ -15,8 +15,6 @@ from service.sampling.estimation.binomial import _largest
 from service.sampling.estimation.lattice import _floor_times
 from service.sampling.estimation.limits import _TAIL_TOLERANCE, FloatArray, IntArray
 
-# --------------------------------------------------------------------------- hypergeometric
-
 
 def _hypergeometric_pmf(k: FloatArray, population: int, deviations: FloatArray,
                         n: FloatArray) -> FloatArray:

@@ -15,8 +15,6 @@ from service.sampling.estimation.lattice import _population_deviations
 from service.sampling.estimation.limits import MAX_POPULATION_SIZE
 from service.sampling.rates import WrittenDecimal, exact_rate
 
-# --------------------------------------------------------------------------- inputs
-
 
 @dataclass(frozen=True)
 class _Problem:
@@ -107,9 +105,6 @@ def _sample_size(value: object, population: int | None) -> int:
             "sample_size", f"{value} is above the population size {population}"
         )
     return value
-
-
-# --------------------------------------------------------------------------- the methods
 
 
 def _ceil_positive(value: Fraction) -> int:

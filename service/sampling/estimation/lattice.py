@@ -10,8 +10,6 @@ import numpy as np
 
 from service.sampling.estimation.limits import IntArray
 
-# ------------------------------------------------------------------------ exact integer arithmetic
-
 
 def _floor_times(m: IntArray, q: Fraction) -> IntArray:
     """``floor(m·q)`` element by element, exactly, for integers ``m`` and rational ``q``.

@@ -6,8 +6,6 @@ from dataclasses import dataclass
 
 from service.sampling.estimation.limits import Guarantee
 
-# --------------------------------------------------------------------------- results
-
 
 @dataclass(frozen=True)
 class EstimationRow:

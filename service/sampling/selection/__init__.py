@@ -79,9 +79,6 @@ __all__ = [
 ]
 
 
-# --------------------------------------------------------------------------- public functions
-
-
 def generate_seed() -> str:
     """Return a fresh seed: 32 lowercase hexadecimal characters (128 bits) from :mod:`secrets`.
 

@@ -7,8 +7,6 @@ from collections.abc import Iterable
 from service.sampling.errors import ComputationTooLarge, InvalidInput
 from service.sampling.selection.limits import _SHOWN, MAX_NUMBER, MAX_SEED_LENGTH
 
-# --------------------------------------------------------------------------- validation
-
 
 def _some(values: Iterable[object]) -> str:
     """Name the first few values and count the rest."""

@@ -12,7 +12,6 @@ import numpy.typing as npt
 
 from service.sampling.errors import InvalidInput
 
-# --------------------------------------------------------------------------- identifier order
 # The canonical order of identifiers is the byte order of their UTF-8 encodings (Notes, step 1).
 # Python's sorted() compares string objects scattered over the heap one pair at a time; for a
 # million identifiers that takes seconds. The functions below sort the encoded bytes with numpy

@@ -27,8 +27,6 @@ from service.sampling.selection.populations import (
     RangePopulation,
 )
 
-# --------------------------------------------------------------------------- preparation
-
 
 @dataclass(frozen=True, slots=True)
 class _Prepared:

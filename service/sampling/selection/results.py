@@ -4,8 +4,6 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
-# --------------------------------------------------------------------------- result
-
 
 @dataclass(frozen=True, slots=True)
 class Selection:

@@ -57,9 +57,6 @@ def _draw(
     )
 
 
-# --------------------------------------------------------------------------- stream and draws
-
-
 def word_stream(key: bytes) -> Iterator[int]:
     """Yield the 64-bit words of the keyed counter stream (Notes of :func:`select`, step 2).
 
