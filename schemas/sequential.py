@@ -111,7 +111,7 @@ class StageSchema(StrictSchema):
         return Stage(**data)
 
 
-def _stages(description: str) -> fields.List:
+def _stages(description: str) -> fields.List[Any]:
     """The stages of a staged plan sent back to the service (evaluation, curve)."""
     return fields.List(
         fields.Nested(StageSchema),
