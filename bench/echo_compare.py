@@ -67,7 +67,7 @@ from tests.functional.servers import (  # noqa: E402
 
 SCRIPT = HERE / "echo" / "drive_lines.lua"
 BODIES = HERE / "load" / "bodies"
-GRID_BODIES = 4000
+GRID_BODIES = 20_000
 SEED = 20261202
 LABEL = "Northwind Trading purchase orders over 10,000, Q3 2026"
 SHARE_REPEATED = 0.8

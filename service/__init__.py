@@ -28,7 +28,7 @@ def create_app(settings: Settings | None = None) -> Flask:
     from flask import Flask
 
     from service import webpage
-    from service.http import RESOURCES, meta
+    from service.http import RESOURCES, all_operations, direct, meta
     from service.settings import Settings
     from service.web import access, context, cors, metrics, problems
     from service.web.openapi import build_yaml
@@ -52,5 +52,7 @@ def create_app(settings: Settings | None = None) -> Flask:
     app.register_blueprint(webpage.bp)
     for module in RESOURCES:
         app.register_blueprint(module.bp)
+    # The operations' usual requests are answered ahead of Flask (service.http.direct).
+    app.wsgi_app = direct.serve(app.wsgi_app, all_operations(), settings)  # type: ignore[method-assign,assignment]
     app.config["READY"] = True
     return app

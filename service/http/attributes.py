@@ -137,6 +137,7 @@ def _count_lists(payload: Any, settings: Settings) -> None:
 OPERATIONS = [
     Operation(
         name="sample-size",
+        repeatable=True,
         path="/v1/sample-size",
         summary="Sample size for a test of controls",
         description=(
@@ -173,6 +174,7 @@ OPERATIONS = [
     ),
     Operation(
         name="evaluation",
+        repeatable=True,
         path="/v1/evaluation",
         summary="Evaluate the deviations found in a test of controls",
         description=(

@@ -36,6 +36,7 @@ def _estimation_method(document: Mapping[str, Any]) -> str:
 OPERATIONS = [
     Operation(
         name="estimation-sample-size",
+        repeatable=True,
         path="/v1/estimation/sample-size",
         summary="Sample sizes to estimate a deviation rate within a margin",
         description=(

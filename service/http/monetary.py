@@ -287,6 +287,7 @@ _SELECTION_TICKET = TicketLayout(
 OPERATIONS = [
     Operation(
         name="monetary-sample-size",
+        repeatable=True,
         path="/v1/monetary/sample-size",
         summary="Sample size for monetary-unit sampling",
         description=(
@@ -364,6 +365,7 @@ OPERATIONS = [
     ),
     Operation(
         name="monetary-evaluation",
+        repeatable=True,
         path="/v1/monetary/evaluation",
         takes_item_lists=True,
         precheck=_check_lists,

@@ -81,6 +81,9 @@ class Operation:
     # The payload carries other operations' requests (a batch): the text check for lone
     # surrogates is left to the precheck and to each carried operation.
     carries_requests: bool = False
+    # The JSON answer depends on the body alone: no generated seed, clock or file enters
+    # it, so an answer may be kept and given again for the same body (service.http.direct).
+    repeatable: bool = False
 
     @cached_property
     def request_schema(self) -> Schema:
@@ -133,7 +136,8 @@ def _instance(schema: type[Schema]) -> Schema:
     return _SCHEMAS[schema]
 
 
-def _is_json(mimetype: str) -> bool:
+def is_json(mimetype: str) -> bool:
+    """Whether ``mimetype`` is JSON: application/json or an application/…+json type."""
     return mimetype == "application/json" or (
         mimetype.startswith("application/") and mimetype.endswith("+json")
     )
@@ -141,7 +145,7 @@ def _is_json(mimetype: str) -> bool:
 
 def read_json_body(accepts_file: bool = False) -> Any:
     """The request body as strict JSON, or a Problem (415, 400, 413)."""
-    if not _is_json(request.mimetype):
+    if not is_json(request.mimetype):
         got = request.mimetype or "no Content-Type"
         also = f" or {uploads.MULTIPART} (a file and a request part)" if accepts_file else ""
         raise Problem(

@@ -18,6 +18,7 @@ def _periodic(inputs: dict[str, Any], settings: Settings) -> PeriodicPlan:
 OPERATIONS = [
     Operation(
         name="plan-periodic",
+        repeatable=True,
         path=PERIODIC_PATH,
         summary="What the sample sizes of a periodic control prove",
         description=(

@@ -105,6 +105,7 @@ def _svg(document: dict[str, Any], curve: OperatingCharacteristic) -> str:
 OPERATIONS = [
     Operation(
         name="plan-curve",
+        repeatable=True,
         path=CURVE_PATH,
         summary="Operating characteristic of a test-of-controls plan",
         description=(

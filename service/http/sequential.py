@@ -143,6 +143,7 @@ def _staged_method(document: Mapping[str, Any]) -> str:
 OPERATIONS = [
     Operation(
         name="staged-plan",
+        repeatable=True,
         path="/v1/plans/staged",
         summary="Staged (stop-or-go) plan for a test of controls",
         description=(
@@ -171,6 +172,7 @@ OPERATIONS = [
     ),
     Operation(
         name="staged-evaluation",
+        repeatable=True,
         path="/v1/plans/staged/evaluation",
         summary="Evaluate a finished staged test of controls",
         description=(
@@ -200,6 +202,7 @@ OPERATIONS = [
 OPERATIONS.append(
     Operation(
         name="staged-curve",
+        repeatable=True,
         path=STAGED_CURVE_PATH,
         summary="Operating characteristic of a staged plan",
         description=(
@@ -226,6 +229,7 @@ OPERATIONS.append(
 OPERATIONS.append(
     Operation(
         name="strata-evaluation",
+        repeatable=True,
         path="/v1/evaluation/strata",
         summary="Evaluate a test of controls sampled in strata",
         description=(
@@ -251,6 +255,7 @@ OPERATIONS.append(
 OPERATIONS.append(
     Operation(
         name="sequence-evaluation",
+        repeatable=True,
         path="/v1/evaluation/sequence",
         summary="Anytime-valid evaluation of an open-ended test of controls",
         description=(

@@ -45,11 +45,32 @@ def _is_preflight() -> bool:
 
 
 def _presented_key() -> str | None:
-    scheme, _, token = request.headers.get("Authorization", "").partition(" ")
+    return presented_key(request.headers.get("Authorization", ""))
+
+
+def presented_key(authorization: str) -> str | None:
+    """The bearer token of an ``Authorization`` header value, or None when there is none."""
+    scheme, _, token = authorization.partition(" ")
     token = token.strip()
     if scheme.lower() != "bearer" or not token:
         return None
     return token
+
+
+def key_problem(key: str | None, digests: frozenset[bytes]) -> Problem | None:
+    """The 401 for a missing or unknown ``key``, or None when it is accepted."""
+    if key is None:
+        return Problem(
+            401, "Unauthorized",
+            "this service requires an API key: send Authorization: Bearer <key>",
+            UNAUTHORIZED, headers=_challenge(None),
+        )
+    if not key_matches(key, digests):
+        return Problem(
+            401, "Unauthorized", "the API key sent is not accepted by this service",
+            UNAUTHORIZED, headers=_challenge("invalid_token"),
+        )
+    return None
 
 
 def key_matches(key: str, digests: frozenset[bytes]) -> bool:
@@ -82,15 +103,6 @@ def register(app: Flask, digests: frozenset[bytes]) -> None:
             # every path, so that it does not tell which exist; CORS headers are added
             # afterwards for the configured origins only.
             return Response(status=204)
-        if key is None:
-            raise Problem(
-                401, "Unauthorized",
-                "this service requires an API key: send Authorization: Bearer <key>",
-                UNAUTHORIZED, headers=_challenge(None),
-            )
-        if not key_matches(key, digests):
-            raise Problem(
-                401, "Unauthorized", "the API key sent is not accepted by this service",
-                UNAUTHORIZED, headers=_challenge("invalid_token"),
-            )
+        if (refused := key_problem(key, digests)) is not None:
+            raise refused
         return None

@@ -31,6 +31,9 @@ import sys
 import time
 import traceback
 import uuid
+from collections.abc import Iterator
+from contextlib import contextmanager
+from contextvars import ContextVar
 from datetime import UTC, datetime
 
 from flask import Flask, Response, g, has_request_context, request
@@ -54,26 +57,115 @@ REQUEST_FIELDS = ("request_id", "method", "path", "status", "duration_ms")
 access_logger = logging.getLogger("service.web.access")
 
 
+# The id of the request a thread is answering outside Flask's request context (the
+# operations served straight from WSGI, service.http.direct).
+_DIRECT_ID: ContextVar[str | None] = ContextVar("direct_request_id", default=None)
+
+
 def request_id() -> str | None:
     """The current request's id (chosen once per request), or None outside a request."""
     if not has_request_context():
-        return None
+        return _DIRECT_ID.get()
     current: str | None = g.get("request_id")
     if current is None:
-        sent = request.headers.get(REQUEST_ID_HEADER, "")
-        current = sent if REQUEST_ID_PATTERN.fullmatch(sent) else uuid.uuid4().hex
+        current = choose_request_id(request.headers.get(REQUEST_ID_HEADER, ""))
         g.request_id = current
     return current
+
+
+def choose_request_id(sent: str) -> str:
+    """The id a request sent, when usable; otherwise a new one."""
+    return sent if REQUEST_ID_PATTERN.fullmatch(sent) else uuid.uuid4().hex
+
+
+@contextmanager
+def direct_request(current_id: str) -> Iterator[None]:
+    """Make ``current_id`` the request id of this thread's work, for a request answered
+    without Flask's request context (problem bodies and log lines read it)."""
+    token = _DIRECT_ID.set(current_id)
+    try:
+        yield
+    finally:
+        _DIRECT_ID.reset(token)
+
+
+def answer_headers(path: str, mimetype: str, current_id: str) -> list[tuple[str, str]]:
+    """The request id, security and cache headers of every answer to ``path``."""
+    page = is_page_path(path)
+    if page:
+        policy = PAGE_CSP
+    elif mimetype == "image/svg+xml":
+        policy = SVG_CSP
+    else:
+        policy = CSP
+    cacheable = page or path in _CACHEABLE
+    return [
+        (REQUEST_ID_HEADER, current_id),
+        ("X-Content-Type-Options", "nosniff"),
+        ("Referrer-Policy", "no-referrer"),
+        ("Content-Security-Policy", policy),
+        ("Cache-Control", "no-cache" if cacheable else "no-store"),
+    ]
+
+
+def log_request(
+    current_id: str, method: str, path: str, status: int, duration_ms: float | None
+) -> None:
+    """The one log line of a request.
+
+    The record is made directly rather than through ``Logger.info``: that would also walk
+    the stack to find the caller, which the line does not show.
+    """
+    if not access_logger.isEnabledFor(logging.INFO):
+        return
+    fields = {
+        "request_id": current_id, "method": method, "path": path, "status": status,
+        "duration_ms": duration_ms,
+    }
+    access_logger.handle(
+        access_logger.makeRecord(
+            access_logger.name, logging.INFO, "", 0, "request", (), None, extra=fields
+        )
+    )
+
+
+# ASCII only: every control character (C0, DEL, C1, U+2028, U+2029) and anything else
+# outside ASCII is escaped, so a value can neither split nor forge a line. One encoder for
+# every line: json.dumps with options would build a new one each time.
+_LINE_ENCODER = json.JSONEncoder(ensure_ascii=True, default=str)
+
+
+class _Clock:
+    """``time`` of the log lines: UTC, ISO 8601, milliseconds; the part up to the
+    seconds is formatted once a second."""
+
+    def __init__(self) -> None:
+        # One tuple, replaced whole, so that threads never see a second with another's text.
+        self._last: tuple[int, str] = (-1, "")
+
+    def __call__(self, created: float) -> str:
+        second = int(created)
+        last_second, prefix = self._last
+        if second != last_second:
+            prefix = datetime.fromtimestamp(second, UTC).strftime("%Y-%m-%dT%H:%M:%S")
+            self._last = (second, prefix)
+        # Microseconds rounded as datetime.fromtimestamp rounds them, then cut to milliseconds.
+        micros = round((created - second) * 1_000_000)
+        if micros >= 1_000_000:
+            return datetime.fromtimestamp(created, UTC).isoformat(timespec="milliseconds")
+        return f"{prefix}.{micros // 1000:03d}+00:00"
 
 
 class JsonFormatter(logging.Formatter):
     """One JSON object per record, on one line."""
 
+    def __init__(self) -> None:
+        super().__init__()
+        self._clock = _Clock()
+
     def format(self, record: logging.LogRecord) -> str:
         line: dict[str, object] = {
-            "time": datetime.fromtimestamp(record.created, UTC).isoformat(
-                timespec="milliseconds"
-            ),
+            "time": self._clock(record.created),
             "level": record.levelname,
             "message": record.getMessage(),
         }
@@ -86,9 +178,7 @@ class JsonFormatter(logging.Formatter):
         if record.exc_info and record.exc_info[0] is not None:
             line["exception"] = record.exc_info[0].__name__
             line["stack"] = "".join(traceback.format_tb(record.exc_info[2])).rstrip()
-        # ASCII only: every control character (C0, DEL, C1, U+2028, U+2029) and anything
-        # else outside ASCII is escaped, so a value can neither split nor forge a line.
-        return json.dumps(line, ensure_ascii=True, default=str)
+        return _LINE_ENCODER.encode(line)
 
 
 class _StderrHandler(logging.Handler):
@@ -122,30 +212,11 @@ def _start() -> None:
 def _finish(response: Response) -> Response:
     current = request_id() or uuid.uuid4().hex
     headers = response.headers
-    headers[REQUEST_ID_HEADER] = current
-    headers["X-Content-Type-Options"] = "nosniff"
-    headers["Referrer-Policy"] = "no-referrer"
-    page = is_page_path(request.path)
-    if page:
-        headers["Content-Security-Policy"] = PAGE_CSP
-    elif response.mimetype == "image/svg+xml":
-        headers["Content-Security-Policy"] = SVG_CSP
-    else:
-        headers["Content-Security-Policy"] = CSP
-    cacheable = page or request.path in _CACHEABLE
-    headers["Cache-Control"] = "no-cache" if cacheable else "no-store"
+    for name, value in answer_headers(request.path, response.mimetype or "", current):
+        headers[name] = value
     started = g.get("started")
     duration = None if started is None else round((time.perf_counter() - started) * 1000, 3)
-    access_logger.info(
-        "request",
-        extra={
-            "request_id": current,
-            "method": request.method,
-            "path": request.path,
-            "status": response.status_code,
-            "duration_ms": duration,
-        },
-    )
+    log_request(current, request.method, request.path, response.status_code, duration)
     return response
 
 

@@ -11,6 +11,8 @@ service uses none; API keys travel in the ``Authorization`` header, which is all
 
 from __future__ import annotations
 
+from dataclasses import dataclass
+
 from flask import Flask, Response, request
 
 from service.web.context import REQUEST_ID_HEADER
@@ -20,24 +22,44 @@ ALLOWED_HEADERS = f"Accept, Authorization, Content-Type, {REQUEST_ID_HEADER}"
 PREFLIGHT_MAX_AGE_SECONDS = "600"
 
 
+@dataclass(frozen=True)
+class CorsPolicy:
+    """Which origins may read answers; empty: none (no CORS header is ever sent)."""
+
+    origins: tuple[str, ...]
+
+    @property
+    def enabled(self) -> bool:
+        return bool(self.origins)
+
+    def headers(self, origin: str | None, method: str, preflight: bool) -> list[tuple[str, str]]:
+        """The CORS headers of an answer to a request from ``origin`` (``Vary`` aside)."""
+        any_origin = self.origins == ("*",)
+        if origin is None or not (any_origin or origin in self.origins):
+            return []
+        headers = [
+            ("Access-Control-Allow-Origin", "*" if any_origin else origin),
+            ("Access-Control-Expose-Headers", REQUEST_ID_HEADER),
+        ]
+        if method == "OPTIONS" and preflight:
+            headers += [
+                ("Access-Control-Allow-Methods", ALLOWED_METHODS),
+                ("Access-Control-Allow-Headers", ALLOWED_HEADERS),
+                ("Access-Control-Max-Age", PREFLIGHT_MAX_AGE_SECONDS),
+            ]
+        return headers
+
+
 def register(app: Flask, origins: tuple[str, ...]) -> None:
     """Answer cross-origin requests from ``origins`` on ``app``."""
-    if not origins:
+    policy = CorsPolicy(origins)
+    if not policy.enabled:
         return
-    any_origin = origins == ("*",)
-    allowed = frozenset(origins)
 
     @app.after_request
     def _cors(response: Response) -> Response:
-        origin = request.headers.get("Origin")
         response.vary.add("Origin")
-        if origin is None or not (any_origin or origin in allowed):
-            return response
-        headers = response.headers
-        headers["Access-Control-Allow-Origin"] = "*" if any_origin else origin
-        headers["Access-Control-Expose-Headers"] = REQUEST_ID_HEADER
-        if request.method == "OPTIONS" and "Access-Control-Request-Method" in request.headers:
-            headers["Access-Control-Allow-Methods"] = ALLOWED_METHODS
-            headers["Access-Control-Allow-Headers"] = ALLOWED_HEADERS
-            headers["Access-Control-Max-Age"] = PREFLIGHT_MAX_AGE_SECONDS
+        preflight = "Access-Control-Request-Method" in request.headers
+        for name, value in policy.headers(request.headers.get("Origin"), request.method, preflight):
+            response.headers[name] = value
         return response

@@ -147,11 +147,15 @@ def _start() -> None:
 def _record(response: Response) -> Response:
     started = g.get("metrics_started")
     if started is not None:
-        endpoint, method = _endpoint(), request.method
-        measured = instruments()
-        measured.requests.labels(endpoint, method, str(response.status_code)).inc()
-        measured.duration.labels(endpoint, method).observe(time.perf_counter() - started)
+        observe(_endpoint(), request.method, response.status_code, time.perf_counter() - started)
     return response
+
+
+def observe(endpoint: str, method: str, status: int, seconds: float) -> None:
+    """Count one answered request and its duration."""
+    measured = instruments()
+    measured.requests.labels(endpoint, method, str(status)).inc()
+    measured.duration.labels(endpoint, method).observe(seconds)
 
 
 def _finish(_: BaseException | None) -> None:

@@ -48,7 +48,10 @@ class Problem(Exception):
         self.errors = dict(errors) if errors else None
         self.headers = dict(headers or {})
 
-    def body(self, instance: str | None = None) -> dict[str, Any]:
+    def body(
+        self, instance: str | None = None, current_id: str | None = None
+    ) -> dict[str, Any]:
+        """The problem details; ``current_id`` defaults to the Flask request's id."""
         payload: dict[str, Any] = {
             "type": self.type,
             "title": self.title,
@@ -59,7 +62,7 @@ class Problem(Exception):
             payload["instance"] = instance
         if self.errors is not None:
             payload["errors"] = self.errors
-        current = request_id()
+        current = current_id if current_id is not None else request_id()
         if current is not None:
             payload["request_id"] = current
         return payload
@@ -150,7 +153,7 @@ def _body_limit() -> str:
 
 # The socket's read timeout passed while the body was read (service.web.gunicorn_worker); werkzeug
 # reports it as a client disconnection, or it surfaces as the timeout itself.
-_SLOW_BODY = Problem(
+SLOW_BODY = Problem(
     408, "Request Timeout", "the request body stopped arriving; send it whole, without pauses"
 )
 
@@ -165,12 +168,12 @@ def register(app: Flask) -> None:
     @app.errorhandler(HTTPException)
     def _http(exc: HTTPException) -> Response:
         if isinstance(exc, ClientDisconnected) and isinstance(exc.__context__, TimeoutError):
-            return problem_response(_SLOW_BODY)
+            return problem_response(SLOW_BODY)
         return problem_response(_from_http_exception(exc))
 
     @app.errorhandler(TimeoutError)
     def _slow_body(exc: TimeoutError) -> Response:
-        return problem_response(_SLOW_BODY)
+        return problem_response(SLOW_BODY)
 
     @app.errorhandler(Exception)
     def _unexpected(exc: Exception) -> Response:

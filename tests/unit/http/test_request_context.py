@@ -7,6 +7,7 @@ import json
 import logging
 import re
 from collections.abc import Iterator
+from datetime import UTC, datetime
 from typing import Any
 
 import pytest
@@ -134,6 +135,21 @@ def test_one_json_log_line_per_request_without_the_body(
     assert lines[1]["status"] == 422
     text = log_lines.getvalue()
     assert label not in text and "secret-query" not in text and "tolerable_rate" not in text
+
+
+@pytest.mark.parametrize(
+    "created",
+    [0.0, 1764694800.0005, 1764694800.998999, 1764694800.9999996, 1764694801.5,
+     2000000000.123456, 1764694799.9995],
+)
+def test_log_time_is_utc_iso_8601_to_the_millisecond(created: float) -> None:
+    # The same text datetime.isoformat(timespec="milliseconds") gives (Python's own clock).
+    formatter = JsonFormatter()
+    for _ in range(2):  # the second time from the part kept for the second
+        record = logging.LogRecord("service", logging.INFO, "", 0, "request", (), None)
+        record.created = created
+        expected = datetime.fromtimestamp(created, UTC).isoformat(timespec="milliseconds")
+        assert json.loads(formatter.format(record))["time"] == expected
 
 
 def test_selection_items_are_never_logged(client: FlaskClient, log_lines: io.StringIO) -> None:
