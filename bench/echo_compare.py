@@ -9,13 +9,16 @@ and answering it back). Then, for several rounds, drives them in turn with wrk
   repeated body (the README's Northwind Trading test of 4,200 purchase orders);
 - the same three with bodies drawn at random from a grid of realistic inputs (tolerable
   and expected rates, confidence, population sizes from 200 to 250,000 items, samples of
-  20 to 250 items with up to four deviations), several thousand distinct bodies, so that
-  the per-worker memo of 1,024 plans can answer only a small share of them.
+  20 to 250 items with up to four deviations), 20,000 distinct bodies for each, so that
+  the memos of a worker (1,024 plans and limits, 512 answers) can answer at most about
+  one request in twenty.
 
 Because the machine may be shared, each service run is compared with the echo run of the
 same round and body kind; the table gives the median over rounds of requests per second,
-of that ratio, of the server CPU per request (master and workers, from /proc/<pid>/stat)
-and of the 99th-percentile latency, with the load average before and after.
+of that ratio, of the server CPU per request (master and workers, from /proc/<pid>/stat),
+of the echo's CPU per request over the service's (steadier than the requests per second
+on a shared machine, whose speed moves from second to second) and of the
+99th-percentile latency, with the load average before and after.
 
 With ``--baseline DIR`` (a checkout of another revision, for example made with
 ``git worktree add /tmp/baseline main``) a third server runs that revision's service
@@ -27,7 +30,7 @@ change is measured against what it replaces in the same conditions;
 Goals: sizing and evaluation at 0.8 × the echo's requests per second or more with the
 repeated body, 0.6 × or more with random bodies.
 
-Usage: ``.venv/bin/python bench/echo_compare.py [--workers N] [--rounds R] [--seconds S]
+Usage: ``.venv/bin/python bench/echo_compare.py [--workers N] [--rounds R (7)] [--seconds S (3)]
 [--clients C] [--baseline DIR]`` (wrk must be installed: ``apt-get install -y wrk``).
 """
 
@@ -183,8 +186,8 @@ def _options() -> argparse.Namespace:
     parser = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
     parser.add_argument("--workers", type=int, default=os.cpu_count() or 1,
                         help="gunicorn workers of both servers (default: the cores)")
-    parser.add_argument("--rounds", type=int, default=3)
-    parser.add_argument("--seconds", type=int, default=5, help="seconds per wrk run")
+    parser.add_argument("--rounds", type=int, default=7)
+    parser.add_argument("--seconds", type=int, default=3, help="seconds per wrk run")
     parser.add_argument("--clients", type=int, default=8, help="wrk connections")
     parser.add_argument("--threads", type=int, default=2, help="wrk threads")
     parser.add_argument("--baseline", type=Path, default=None,
@@ -273,8 +276,9 @@ def main() -> None:
           f"load average (1, 5, 15 min) before {_load(load_before)}, after "
           f"{_load(load_after)}\n")
     print("| endpoint | bodies | req/s (median) | × echo, same round (median) | goal | "
-          "server CPU ms/request | p99 ms | errors |")
-    print("|---|---|---|---|---|---|---|---|")
+          "server CPU ms/request | echo's CPU ÷ this | p99 ms | errors |")
+    print("|---|---|---|---|---|---|---|---|---|")
+    echo_cpu: dict[str, float] = {}
     for target in targets:
         runs = results[target.name, target.bodies]
         rps = statistics.median(result.rps for result, _ in runs)
@@ -283,6 +287,7 @@ def main() -> None:
         errors = sum(result.errors for result, _ in runs)
         if target.server == "echo":
             share, goal = "1", "—"
+            echo_cpu[target.bodies] = cpu
         else:
             values = ratios[target.name, target.bodies]
             share = f"{statistics.median(values):.2f} ({', '.join(f'{v:.2f}' for v in values)})"
@@ -291,7 +296,7 @@ def main() -> None:
             if target.server == "baseline":
                 goal = "(before)"
         print(f"| {target.name} | {target.bodies} | {rps:.0f} | {share} | {goal} | "
-              f"{cpu:.2f} | {p99:.1f} | {errors} |")
+              f"{cpu:.2f} | {echo_cpu[target.bodies] / cpu:.2f} | {p99:.1f} | {errors} |")
 
 
 def _load(values: tuple[float, float, float]) -> str:

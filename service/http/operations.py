@@ -8,7 +8,8 @@ response schema. An operation that ``accepts_file`` also takes a ``multipart/for
 upload (:mod:`service.http.uploads`): its ``request`` part is loaded as the body would be,
 and the core call gets the file's temporary path as ``inputs["upload"]``. The OpenAPI
 document (:mod:`service.web.openapi`) is generated from the same declarations, so the contract
-and the behaviour cannot drift.
+and the behaviour cannot drift. The usual JSON requests are answered ahead of these views,
+with the same steps, by :mod:`service.http.direct`.
 """
 
 from __future__ import annotations
@@ -23,7 +24,7 @@ from flask import Blueprint, Response, current_app, request
 from marshmallow import Schema, ValidationError
 from werkzeug.exceptions import RequestEntityTooLarge
 
-from service.http import costs, markdown, uploads
+from service.http import costs, dumping, markdown, uploads
 from service.http.markdown import MARKDOWN, TicketLayout
 from service.sampling.errors import SamplingError
 from service.settings import Settings
@@ -230,7 +231,7 @@ def run(
         result = operation.run(inputs, settings)
     except SamplingError as exc:
         raise from_sampling_error(exc) from None
-    document: dict[str, Any] = operation.schema_for(result).dump(result)
+    document: dict[str, Any] = dumping.dumper(operation.schema_for(result))(result)
     return document, result
 
 

@@ -15,7 +15,7 @@ GUNICORN_TIMEOUT         30                       seconds before a silent worker
 GUNICORN_HEADER_TIMEOUT  10                       seconds to receive a request's head (408)
 GUNICORN_READ_TIMEOUT    30                       seconds a body may pause between bytes
 GUNICORN_GRACEFUL_TIMEOUT 30                      seconds in-flight requests get after SIGTERM
-GUNICORN_MAX_REQUESTS    2000                     requests before a worker is recycled (+10 %
+GUNICORN_MAX_REQUESTS    20000                    requests before a worker is recycled (+10 %
                                                   random jitter, so workers do not all restart
                                                   at once)
 GUNICORN_ACCESS_LOG      unset                    1 adds gunicorn's own access line to the
@@ -27,6 +27,13 @@ Workers: one per core. The work is CPU-bound and holds the interpreter lock, so 
 workers than cores only add context switches and cache misses: on a 2-core machine,
 2 × cores + 1 workers cost more server CPU per request than 2 workers for the same
 throughput (``bench/echo_compare.py``, figures in BENCHMARKS.md).
+
+Recycling: a worker is replaced after about 20,000 requests, as a guard against a leak,
+not because one is known: a worker's memory levels off at about 110 MB once its bounded
+memos are full (some 15,000 requests). Each replacement costs about 90 ms of CPU and the
+memos' contents; at 2,000 requests it cost the random-body benchmark about 0.1 ms a
+request (BENCHMARKS.md). The master freezes its objects before forking (``pre_fork``),
+so that a new worker's first garbage collection does not copy the preloaded app's pages.
 
 Worker model: the threaded worker of :mod:`service.web.gunicorn_worker` (gunicorn's
 ``gthread`` with a deadline on reading a request's head and problem+json for the errors
@@ -96,7 +103,7 @@ worker_connections = 1000
 timeout = _int("GUNICORN_TIMEOUT", 30)
 graceful_timeout = _int("GUNICORN_GRACEFUL_TIMEOUT", 30)
 keepalive = 5
-max_requests = _int("GUNICORN_MAX_REQUESTS", 2000)
+max_requests = _int("GUNICORN_MAX_REQUESTS", 20000)
 max_requests_jitter = max(1, max_requests // 10)
 # Refuse oversized request lines and headers early; bodies are capped by the app.
 limit_request_line = 8190

@@ -50,6 +50,14 @@ def _unique_keys(pairs: list[tuple[str, Any]]) -> dict[str, Any]:
     return result
 
 
+# One decoder and one encoder for every call: json.loads and json.dumps with options build
+# a new one each time. Neither keeps state between calls.
+_DECODER = json.JSONDecoder(
+    parse_constant=_refuse_constant, parse_float=_finite_float, object_pairs_hook=_unique_keys
+)
+_ENCODER = json.JSONEncoder(allow_nan=False, ensure_ascii=False)
+
+
 def loads(data: bytes) -> Any:
     """Parse ``data`` (UTF-8) as strict JSON."""
     try:
@@ -59,12 +67,7 @@ def loads(data: bytes) -> Any:
     if not text.strip():
         raise JSONDecodeProblem("the body is empty; send a JSON object")
     try:
-        return json.loads(
-            text,
-            parse_constant=_refuse_constant,
-            parse_float=_finite_float,
-            object_pairs_hook=_unique_keys,
-        )
+        return _DECODER.decode(text)
     except JSONDecodeProblem:
         raise
     except json.JSONDecodeError as exc:
@@ -81,6 +84,8 @@ def loads(data: bytes) -> Any:
 
 def dumps(obj: Any, **kwargs: Any) -> str:
     """Serialise ``obj`` as JSON; NaN and Infinity raise instead of being written."""
+    if not kwargs:
+        return _ENCODER.encode(obj)
     return json.dumps(obj, allow_nan=False, ensure_ascii=False, **kwargs)
 
 

@@ -29,6 +29,7 @@ import time
 from dataclasses import dataclass
 from functools import cache
 from pathlib import Path
+from typing import Any
 
 from flask import Blueprint, Flask, Response, g, request
 from prometheus_client import (
@@ -151,11 +152,24 @@ def _record(response: Response) -> Response:
     return response
 
 
+# The labelled series of each (endpoint, method, status) seen, looked up once: endpoints are
+# route patterns (or one name for unmatched paths), so the set is small and bounded.
+_SERIES: dict[tuple[str, str, int], tuple[Any, Any]] = {}
+
+
 def observe(endpoint: str, method: str, status: int, seconds: float) -> None:
     """Count one answered request and its duration."""
-    measured = instruments()
-    measured.requests.labels(endpoint, method, str(status)).inc()
-    measured.duration.labels(endpoint, method).observe(seconds)
+    series = _SERIES.get((endpoint, method, status))
+    if series is None:
+        measured = instruments()
+        series = (
+            measured.requests.labels(endpoint, method, str(status)),
+            measured.duration.labels(endpoint, method),
+        )
+        _SERIES[(endpoint, method, status)] = series
+    count, duration = series
+    count.inc()
+    duration.observe(seconds)
 
 
 def _finish(_: BaseException | None) -> None:

@@ -134,7 +134,7 @@ def test_gunicorn_defaults(tmp_path: Path) -> None:
     assert (values["threads"], values["timeout"], values["graceful_timeout"]) == (128, 30, 30)
     assert values["worker_class"] == "service.web.gunicorn_worker.ServiceWorker"
     assert values["logger_class"] == "service.web.gunicorn_worker.ServiceLogger"
-    assert (values["max_requests"], values["max_requests_jitter"]) == (2000, 200)
+    assert (values["max_requests"], values["max_requests_jitter"]) == (20000, 2000)
 
 
 def test_without_a_metrics_folder_a_new_one_is_made_and_exported(tmp_path: Path) -> None:
