@@ -81,6 +81,10 @@ PROBLEMS = [
                  id="expected-not-below-tolerable"),
     pytest.param({"json": {"tolerable_rate": 0.05}, "content_type": "application/problem+json"},
                  "200", id="json-suffix-type"),
+    pytest.param({"data": "", "content_type": "application/json", "content_length": 0}, "400",
+                 id="empty-body"),
+    pytest.param({"data": b"\xff{}", "content_type": "application/json"}, "400",
+                 id="not-utf-8"),
 ]
 
 
@@ -89,6 +93,28 @@ def test_problems_are_the_flask_views_problems(request_args: dict[str, Any], sta
     flask_app, direct = _both(Settings())
     answered, _ = _same_answer(flask_app, direct, path="/v1/sample-size", **request_args)
     assert answered.startswith(status)
+
+
+def test_an_unexpected_error_is_a_500_problem_logged_with_the_request_id(
+    monkeypatch: pytest.MonkeyPatch, caplog: pytest.LogCaptureFixture
+) -> None:
+    from service.http import operations
+
+    def broken(*args: Any, **kwargs: Any) -> Any:
+        raise RuntimeError("internal detail")
+
+    flask_app, direct = _both(Settings())
+    monkeypatch.setattr(operations, "run", broken)
+    with caplog.at_level("ERROR", logger="service.web.problems"):
+        status, body = _same_answer(
+            flask_app, direct, path="/v1/sample-size", json={"tolerable_rate": 0.05}
+        )
+    assert status.startswith("500")
+    problem = json.loads(body)
+    assert problem["request_id"] == "direct-1" and "internal detail" not in body.decode()
+    errors = [record for record in caplog.records if record.levelname == "ERROR"]
+    assert len(errors) == 2  # one from each way
+    assert all(record.exc_info and record.exc_info[0] is RuntimeError for record in errors)
 
 
 def test_too_much_work_is_refused_alike() -> None:
