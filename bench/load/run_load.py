@@ -223,7 +223,7 @@ def report(session: Session) -> str:
         f"Machine: {cores} cores (`nproc`), {cpu_model()}, Python {platform.python_version()}, "
         f"{session.wrk_version}; load average (1, 5, 15 min) {_loads(session.load_before)} "
         f"before the run, {_loads(session.load_after)} after. "
-        f"Server: gunicorn, production config, {session.workers} sync workers"
+        f"Server: gunicorn, production config, {session.workers} threaded workers"
         + (" (--workers)" if options.workers is not None else " (its default for the cores)")
         + f". wrk: {options.threads} threads, {options.seconds} s per run, "
         f"timeout {options.timeout_seconds} s. wrk and the server share the {cores} cores, "

@@ -1,9 +1,9 @@
 """Fault figures: SIGKILL one gunicorn worker in the middle of a wrk run, count what failed.
 
-With sync workers (one thread each) a worker holds at most one connection, so a kill
-should cost at most the one request that worker was answering; the master forks a
-replacement and the other workers keep taking connections from the shared listening
-socket. The run shows how many of the requests actually failed.
+With the threaded workers a worker holds the connections it has accepted (kept alive
+between requests), so a kill costs the requests in flight on them and the connections
+themselves; the master forks a replacement and the other workers keep taking connections
+from the shared listening socket. The run shows how many of the requests actually failed.
 """
 
 from __future__ import annotations
