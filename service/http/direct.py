@@ -131,7 +131,7 @@ class DirectOperations:
             media_type is None
             or coding not in ("", "identity")
             or not _is_json(environ.get("CONTENT_TYPE", ""))
-            or not declared.isdigit()
+            or not (declared.isascii() and declared.isdigit())
             or int(declared) > self._limit(operation)
         ):
             return self.flask(environ, start_response)

@@ -39,10 +39,13 @@ def _call(wsgi: Any, **request: Any) -> tuple[str, Headers, bytes]:
     request.setdefault("method", "POST")
     headers = {"X-Request-ID": "direct-1", **request.pop("headers", {})}
     unknown_length = request.pop("unknown_length", False)
+    length_text = request.pop("length_text", None)
     environ = EnvironBuilder(headers=headers, **request).get_environ()
     if unknown_length:
         # As a chunked body arrives: no Content-Length.
         del environ["CONTENT_LENGTH"]
+    if length_text is not None:
+        environ["CONTENT_LENGTH"] = length_text
     body, status, answer_headers = run_wsgi_app(wsgi, environ, buffered=True)
     return status, Headers(answer_headers), b"".join(body)
 
@@ -174,6 +177,9 @@ DEFERRED = [
     pytest.param({"data": {"request": json.dumps({"tolerable_rate": 0.05})}},
                  id="multipart"),
     pytest.param({"unknown_length": True}, id="no-content-length"),
+    # A digit to str.isdigit, not to int(): a server that passed it on must not see a 500.
+    pytest.param({"length_text": "\u00b2"}, id="superscript-length"),
+    pytest.param({"length_text": "+24"}, id="signed-length"),
     pytest.param({"json": {"tolerable_rate": 0.05, "population": {"label": "x" * 2000}}},
                  id="over-the-body-limit"),
 ]
