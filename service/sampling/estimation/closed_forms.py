@@ -90,6 +90,10 @@ def _size_chebyshev(problem: _Problem) -> _Sized:
     if problem.population is None:
         return _Sized(_ceil_positive(spread / scale), False)
     total = problem.population
+    if spread == 0:
+        # Every item alike (the population's rate is 0 or 1, as in a population of one):
+        # the sample rate is the population's at any size.
+        return _Sized(1, True)
     size = _ceil_positive(spread * total / (scale * (total - 1) + spread))
     return _Sized(_cap(size, problem), True)
 

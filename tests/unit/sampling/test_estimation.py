@@ -609,3 +609,19 @@ def test_exact_miss_probability_rejects_bad_sizes() -> None:
     with pytest.raises(InvalidInput) as caught:
         exact_miss_probability(10, 0.5, 0.6)
     assert caught.value.field == "margin"
+
+
+@pytest.mark.parametrize("confidence", [0.5, 0.9, 0.99])
+@pytest.mark.parametrize("rate", [0.05, None])
+def test_a_population_of_one_item_needs_that_item_by_every_method(
+    confidence: float, rate: float | None
+) -> None:
+    # Sampling the one item gives the population's rate exactly, so one item is enough
+    # (Cochran's correction n0 / (1 + (n0 - 1)/N) is 1 at N = 1 for any n0). The Chebyshev
+    # and exact forms divided 0 by 0 here (found by the contract fuzzer).
+    plan = size_for_estimation(
+        margin=0.01, anticipated_rate=rate, confidence=confidence, population_size=1
+    )
+    assert [(row.method, row.sample_size) for row in plan.rows] == [
+        (method, 1) for method in ("exact", "wilson", "normal", "chebyshev", "hoeffding")
+    ]
