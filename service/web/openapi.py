@@ -341,13 +341,19 @@ def _service_get(
 def _answer_component(spec: APISpec, operation: Any) -> str:
     """A component naming every answer of an operation that has variants or a file form
     (its answers for a JSON request and for a multipart one), as ``oneOf``."""
-    refs = []
+    names: list[str] = []
     forms = [] if operation.file_form is None else [operation.file_form.response]
     for schema in (operation.response, *operation.variants.values(), *forms):
         name = _schema_name(schema)
         if name not in spec.components.schemas:
             spec.components.schema(name, schema=schema)
-        refs.append({"$ref": f"#/components/schemas/{name}"})
+        if name not in names:
+            names.append(name)
+    if len(names) == 1:
+        # Both forms answer with the same schema: a oneOf of it twice would match every
+        # answer twice, which oneOf forbids.
+        return names[0]
+    refs = [{"$ref": f"#/components/schemas/{name}"} for name in names]
     name = "".join(part.title() for part in operation.name.split("-")) + "Answer"
     spec.components.schema(
         name, {"oneOf": refs, "description": f"The answers of {operation.path}."}

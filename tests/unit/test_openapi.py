@@ -191,3 +191,24 @@ def test_schema_check_rejects_a_response_that_breaks_the_contract(
     for document in broken:
         with pytest.raises(jsonschema.ValidationError):
             validator.validate(document)
+
+
+def _one_ofs(node: Any) -> list[list[Any]]:
+    found = []
+    if isinstance(node, dict):
+        if "oneOf" in node:
+            found.append(node["oneOf"])
+        for value in node.values():
+            found.extend(_one_ofs(value))
+    elif isinstance(node, list):
+        for value in node:
+            found.extend(_one_ofs(value))
+    return found
+
+
+def test_no_one_of_names_the_same_schema_twice(spec: dict[str, Any]) -> None:
+    # An answer valid under a schema listed twice is valid under two branches, which
+    # oneOf forbids (JSON Schema 2020-12, 10.2.1.3): every answer would break the contract.
+    for branches in _one_ofs(spec):
+        texts = [json.dumps(branch, sort_keys=True) for branch in branches]
+        assert len(texts) == len(set(texts)), texts
