@@ -33,6 +33,23 @@ def capsys(capsysbinary: pytest.CaptureFixture[bytes]) -> pytest.CaptureFixture[
     return capsysbinary
 
 
+def _rows(workbook: Any, sheet: str) -> list[tuple[Any, ...]]:
+    """A sheet's rows; a read-only workbook keeps its file open until closed."""
+    book = openpyxl.load_workbook(workbook, read_only=True)
+    try:
+        return list(book[sheet].iter_rows(values_only=True))
+    finally:
+        book.close()
+
+
+def _sheet_names(workbook: Any) -> list[str]:
+    book = openpyxl.load_workbook(workbook, read_only=True)
+    try:
+        return list(book.sheetnames)
+    finally:
+        book.close()
+
+
 def run(capsys: pytest.CaptureFixture[bytes], *argv: str) -> tuple[int, str, str]:
     status = cli.main(list(argv))
     out, err = capsys.readouterr()
@@ -161,8 +178,7 @@ def test_selection_as_a_test_sheet_to_a_file(
     status, out, err = run(capsys, *base, "--attributes", ATTRIBUTES[0], "--attributes",
                            ATTRIBUTES[1], "--accept", "xlsx", "--output", str(target))
     assert (status, out) == (0, ""), err
-    tests = openpyxl.load_workbook(target, read_only=True)["Tests"]
-    rows = list(tests.iter_rows(values_only=True))
+    rows = _rows(target, "Tests")
     header = list(rows[0])
     assert f"{ATTRIBUTES[1]}: result" in header
     assert [row[header.index("item")] for row in rows[1:]] == chosen["items"]
@@ -229,7 +245,7 @@ def test_the_evaluated_workbook_comes_back(
     status, _, err = run(capsys, "evaluation", "--test-sheet", str(done), "--not-tested",
                          "count_as_deviation", "--xlsx", "--output", str(target))
     assert status == 0, err
-    assert "Evaluation" in openpyxl.load_workbook(target, read_only=True).sheetnames
+    assert "Evaluation" in _sheet_names(target)
 
 
 def test_a_tampered_sheet_is_refused_naming_the_flag(
@@ -366,7 +382,7 @@ def test_the_client_returns_the_workbook_bytes(
         XLSX, ORDERS, population={"file": {"id_column": "doc_no"}}, sample_size=4, seed="hl",
         attributes=list(ATTRIBUTES))
     assert data.startswith(b"PK")
-    assert "Tests" in openpyxl.load_workbook(io.BytesIO(data), read_only=True).sheetnames
+    assert "Tests" in _sheet_names(io.BytesIO(data))
 
 
 def test_the_stratified_table_lists_each_stratums_items(
