@@ -14,8 +14,8 @@ FUZZ_EXAMPLES ?= 500
 $(BIN)/activate:
 	$(PYTHON) -m venv $(VENV)
 
-# Reinstalled whenever pyproject.toml changes.
-$(VENV)/.installed: pyproject.toml | $(BIN)/activate
+# Reinstalled whenever pyproject.toml, setup.py or the compiled tails' source change.
+$(VENV)/.installed: pyproject.toml setup.py service/sampling/_hypergeometric_tails.c | $(BIN)/activate
 	$(BIN)/python -m pip install --quiet --upgrade pip
 	$(BIN)/python -m pip install --quiet -e '.[dev]'
 	touch $@

@@ -328,6 +328,19 @@ def test_the_build_context_leaves_out_what_the_image_does_not_need() -> None:
         assert left_out_of_context(path), f"{path} would be sent to the docker build"
 
 
+def test_the_build_stage_can_compile_the_hypergeometric_tails() -> None:
+    # setup.py builds service/sampling/_hypergeometric_tails.c; without setup.py in the
+    # build, or a compiler in its stage, the image would quietly run the slower Python tails.
+    build = stages()[0]
+    copied = {source for origin, sources in copies(build) if origin is None
+              for source in sources}
+    assert "setup.py" in copied
+    assert "service" in copied
+    assert any(re.search(r"apt-get install .*\bgcc\b", command) for command in build.all("RUN"))
+    assert left_out_of_context("service/sampling/_hypergeometric_tails.cpython-311.so")
+    assert not left_out_of_context("service/sampling/_hypergeometric_tails.c")
+
+
 def test_the_final_stage_takes_only_the_built_environment() -> None:
     names = [stage.name for stage in stages()[:-1]]
     for origin, sources in copies(final_stage()):

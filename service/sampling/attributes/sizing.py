@@ -5,6 +5,7 @@ warnings and a bounded memo of plans."""
 
 from __future__ import annotations
 
+import math
 from collections.abc import Callable
 from dataclasses import dataclass
 from fractions import Fraction
@@ -108,16 +109,65 @@ def _plan_search(
         chunk = min(4 * chunk, 4096)
 
 
+def _binomial_holds(rate: float, alpha: float, k: int, n: int) -> bool:
+    """``P(X ≤ k) ≤ alpha`` for X ~ Binomial(n, rate), in doubles."""
+    return bool(k < n and special.betaincc(k + 1, n - k, rate) <= alpha)
+
+
+#: Deviations tried by :func:`_binomial_plan_by_inversion` before the scan decides.
+_INVERTED_DEVIATIONS = 16
+
+
+def _binomial_plan_by_inversion(
+    rate: float, expected: Fraction, alpha: float, max_n: int
+) -> tuple[int, int] | None:
+    """The binomial plan at ``rate`` from the inverse of the binomial distribution in ``n``.
+
+    For each number of deviations ``k`` the tail ``P(X ≤ k)`` falls as ``n`` grows, and
+    ``scipy.special.bdtrin(k, alpha, rate)`` is the real ``n`` where it crosses ``alpha``
+    (cdflib's inversion); its ceiling is the smallest sample allowing ``k`` deviations,
+    to the inversion's accuracy. The plan is the first ``k`` whose block of sizes
+    ``{n : ceil(e n) = k}`` reaches that size: one inversion for each ``k`` up to
+    :data:`_INVERTED_DEVIATIONS`, then one tail at the size found. None when that tail
+    does not hold, or the plan allows more deviations, and the scan of
+    :func:`_binomial_plan_guess` decides.
+    """
+    for k in range(1, _INVERTED_DEVIATIONS + 1) if expected else (0,):
+        crossing = float(special.bdtrin(k, alpha, rate))
+        if not math.isfinite(crossing):
+            return None
+        n = max(math.ceil(crossing), k + 1)
+        if expected:
+            n = max(n, floor_quotient(k - 1, expected) + 1)
+        if n > max_n:
+            return None
+        if not expected or n <= floor_quotient(k, expected):
+            return (n, k) if _binomial_holds(rate, alpha, k, n) else None
+    return None
+
+
 def _binomial_plan_guess(
     rate: float, expected: Fraction, alpha: float, max_n: int, max_deviations: int
 ) -> tuple[int, int] | None:
     """The binomial plan at ``rate``, decided in doubles (no exact decision near a tie):
     a starting point for the exact hypergeometric search, not an answer. None when it
     would allow more than ``max_deviations`` deviations or need more than ``max_n`` items.
+    Found by :func:`_binomial_plan_by_inversion` where it can, else by
+    :func:`_binomial_plan_scan`.
     """
+    found = _binomial_plan_by_inversion(rate, expected, alpha, max_n)
+    if found is not None and found[1] <= max_deviations:
+        return found
+    return _binomial_plan_scan(rate, expected, alpha, max_n, max_deviations)
 
-    def holds(k: int, n: int) -> bool:
-        return bool(k < n and special.betaincc(k + 1, n - k, rate) <= alpha)
+
+def _binomial_plan_scan(
+    rate: float, expected: Fraction, alpha: float, max_n: int, max_deviations: int
+) -> tuple[int, int] | None:
+    """:func:`_binomial_plan_guess` by a scan of the blocks of sizes allowing 1, 2, …
+    deviations, each tested at its largest size, then a bisection in the first that holds.
+    """
+    holds = partial(_binomial_holds, rate, alpha)
 
     if expected == 0:
         if not holds(0, max_n):
@@ -187,8 +237,11 @@ def _plan_below_binomial(
         block_high = np.array([floor_quotient(k, expected) for k in range(1, k_b)],
                               dtype=np.int64)
         ns = np.maximum(block_high, ks)
+        # One scalar tail each: a short loop of them costs less than one vectorised call.
+        tails = np.array([tail(int(k), int(n)) for k, n in zip(ks, ns, strict=True)],
+                         dtype=np.float64)
         feasible = (block_low <= block_high) & at_most_each(
-            "hypergeometric", ks, ns, tail(ks, ns), tolerable, population_size, alpha
+            "hypergeometric", ks, ns, tails, tolerable, population_size, alpha
         )
         hits = np.flatnonzero(feasible)
         if hits.size:

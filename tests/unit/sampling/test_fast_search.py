@@ -157,3 +157,41 @@ def test_large_population_plans_are_the_first_sample_size_that_holds(
     plan = size_sample(t, e, c, size)
     assert _scanned_plan("hypergeometric", t, e, c, size, plan.sample_size) == (
         plan.sample_size, plan.allowed_deviations)
+
+
+def _binomial_plan_by_scipy(rate: float, e: Fraction, alpha: float,
+                            limit: int) -> tuple[int, int] | None:
+    """The first n whose binomial tail at ``rate``, allowing ceil(e n) deviations, is at
+    most ``alpha``: scipy.stats.binom.cdf in doubles, as the starting guess is decided."""
+    import numpy as np
+    from scipy import stats
+
+    ns = np.arange(1, limit + 1)
+    ks = np.array([ceil_product(e, int(n)) for n in ns])
+    holds = np.flatnonzero((ks < ns) & (stats.binom.cdf(ks, ns, rate) <= alpha))
+    return (int(ns[holds[0]]), int(ks[holds[0]])) if holds.size else None
+
+
+@settings(max_examples=120, derandomize=True, deadline=None, database=None)
+@given(
+    st.sampled_from([0.02, 0.03, 0.05, 0.07, 0.1, 0.2, 0.013]),
+    st.sampled_from([0.0, 0.0025, 0.005, 0.01, 0.0175, 0.04]),
+    st.sampled_from([0.01, 0.05, 0.1, 0.2, 0.001]),
+)
+def test_the_binomial_starting_plan_by_inversion_is_the_scanned_one(
+    rate: float, e: float, alpha: float
+) -> None:
+    """The starting plan of the hypergeometric search, from scipy.special.bdtrin, is the
+    plan the scan of blocks finds and the one a scan of scipy.stats.binom.cdf finds, or
+    else the inversion declines and the scan decides."""
+    from service.sampling.attributes import sizing
+
+    if e >= rate:
+        return
+    expected_rate = exact_rate(e)
+    inverted = sizing._binomial_plan_by_inversion(rate, expected_rate, alpha, 5000)
+    scanned = sizing._binomial_plan_scan(rate, expected_rate, alpha, 5000, 5000)
+    assert sizing._binomial_plan_guess(rate, expected_rate, alpha, 5000, 5000) == scanned
+    assert scanned == _binomial_plan_by_scipy(rate, expected_rate, alpha, 5000)
+    if inverted is not None:
+        assert inverted == scanned
