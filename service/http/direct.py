@@ -207,7 +207,9 @@ class DirectOperations:
                 payload = jsonio.loads(data)
             except jsonio.JSONDecodeProblem as exc:
                 raise Problem(400, "Malformed body", str(exc), MALFORMED_BODY) from None
-            document, result = operations.run(operation, payload, settings)
+            document, result = operations.run(
+                operation, payload, settings, escaped=b"\\u" in data
+            )
             body = operation.render(media_type, payload, document, result)
         answer = body.encode("utf-8") if isinstance(body, str) else body
         if kept:

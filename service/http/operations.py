@@ -24,7 +24,7 @@ from flask import Blueprint, Response, current_app, request
 from marshmallow import Schema, ValidationError
 from werkzeug.exceptions import RequestEntityTooLarge
 
-from service.http import costs, dumping, markdown, uploads
+from service.http import costs, dumping, loading, markdown, uploads
 from service.http.markdown import MARKDOWN, TicketLayout
 from service.sampling.errors import SamplingError
 from service.settings import Settings
@@ -204,22 +204,30 @@ def run(
     settings: Settings,
     upload: Path | None = None,
     upload_name: str = "",
+    *,
+    escaped: bool = True,
 ) -> tuple[dict[str, Any], Any]:
     """Validate ``payload`` and run the operation: the response document and the core result.
 
     ``upload`` is the uploaded file's temporary path and ``upload_name`` the name the
     client gave it, passed on as ``inputs["upload"]`` and ``inputs["upload_name"]`` to an
-    operation that accepts files.
+    operation that accepts files. ``escaped`` False says that the JSON text held no
+    ``\\u`` escape, the only way a body read as UTF-8 can spell a lone surrogate, so
+    the payload is not searched for one.
     """
     if operation.precheck is not None:
         try:
             operation.precheck(payload, settings)
         except SamplingError as exc:
             raise from_sampling_error(exc) from None
-    if not operation.carries_requests and (unencodable := jsonio.lone_surrogates(payload)):
+    if (
+        escaped
+        and not operation.carries_requests
+        and (unencodable := jsonio.lone_surrogates(payload))
+    ):
         raise invalid_input(unencodable)
     try:
-        inputs = operation.request_schema.load(payload)
+        inputs = loading.loader(operation.request_schema)(payload)
     except ValidationError as exc:
         raise from_validation_error(exc) from None
     if operation.accepts_file:

@@ -19,6 +19,7 @@ from __future__ import annotations
 
 from decimal import Decimal
 from fractions import Fraction
+from functools import lru_cache
 
 #: Most significant digits a written rate may carry; longer ones are refused, not rounded.
 MAX_SIGNIFICANT_DIGITS = 30
@@ -69,8 +70,20 @@ def exact_rate(rate: float) -> Fraction:
     """
     written = getattr(rate, "decimal", None)
     if isinstance(written, Decimal):
-        return Fraction(written)
-    return Fraction(repr(float(rate)))
+        return _decimal_fraction(written)
+    return _float_fraction(float(rate))
+
+
+# A request carries a few rates from a short list (95 %, 5 %, …): their fractions are
+# kept rather than parsed again. Equal decimals (0.05, 0.050) have one fraction.
+@lru_cache(maxsize=1024)
+def _decimal_fraction(written: Decimal) -> Fraction:
+    return Fraction(written)
+
+
+@lru_cache(maxsize=1024)
+def _float_fraction(rate: float) -> Fraction:
+    return Fraction(repr(rate))
 
 
 def ceil_product(rate: Fraction, count: int) -> int:

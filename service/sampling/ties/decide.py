@@ -74,11 +74,13 @@ def hypergeometric_above(
     >>> hypergeometric_above(0, 10, 1, 9, Fraction(1, 10), 0.10000000000000002, upper=False)
     False
     """
-    if not near(value, float(risk)):
-        return value > float(risk)
+    # the correctly rounded quotient, as float(risk) gives it, without its generic method
+    risk_float = risk.numerator / risk.denominator
+    if not near(value, risk_float):
+        return value > risk_float
     found = _hypergeometric_sign(k, population, deviant, n, risk, upper=upper)
     if found is None:
-        return value > float(risk)
+        return value > risk_float
     return found[0] > 0
 
 
@@ -102,7 +104,7 @@ def at_most(
     """
     if value is None:
         value = float(MODELS[model].lower_tail(k, n, rate, population_size))
-    risk_float = float(risk)
+    risk_float = risk.numerator / risk.denominator
     if not near(value, risk_float):
         return Decision(value <= risk_float, value, exact=False)
     found = _exact_sign(model, k, n, rate, population_size, risk)

@@ -73,6 +73,8 @@ def test_each_operation_answers_as_its_flask_view(operation: Any, accept: str) -
     assert status.startswith("200")
 
 
+_LABELLED = '{"tolerable_rate": 0.05, "population": {"size": 4200, "label": %s}}'
+
 PROBLEMS = [
     pytest.param({"json": {"tolerable_rate": 5}}, "422", id="invalid-input"),
     pytest.param({"data": "{", "content_type": "application/json"}, "400", id="malformed"),
@@ -80,6 +82,14 @@ PROBLEMS = [
                  id="duplicate-key"),
     pytest.param({"json": {"tolerable_rate": 0.05, "population": {"label": "x\ud800"}}},
                  "422", id="lone-surrogate"),
+    # A lone surrogate can only be spelled by a \u escape, in either case; the same
+    # code points as UTF-8 bytes are not UTF-8.
+    pytest.param({"data": _LABELLED % '"x\\uDFFF"', "content_type": "application/json"},
+                 "422", id="lone-surrogate-upper-case"),
+    pytest.param({"data": _LABELLED % '"\\ud83d\\ude00"', "content_type": "application/json"},
+                 "200", id="surrogate-pair"),
+    pytest.param({"data": (_LABELLED % '"@"').encode().replace(b"@", b"\xed\xa0\x80"),
+                  "content_type": "application/json"}, "400", id="surrogate-bytes"),
     pytest.param({"json": {"tolerable_rate": 0.05, "expected_rate": 0.05}}, "422",
                  id="expected-not-below-tolerable"),
     pytest.param({"json": {"tolerable_rate": 0.05}, "content_type": "application/problem+json"},
