@@ -26,19 +26,11 @@ from marshmallow import Schema, fields, missing
 from marshmallow.decorators import POST_DUMP, PRE_DUMP
 
 from schemas.common import ResultSchema
+from service.http.per_schema import PerSchema
 
 Dumper = Callable[[Any], Any]
 
-_DUMPERS: dict[int, tuple[Schema, Dumper]] = {}
 
-
-def dumper(schema: Schema) -> Dumper:
-    """The function that dumps results as ``schema.dump`` does (made once per instance)."""
-    kept = _DUMPERS.get(id(schema))
-    if kept is None or kept[0] is not schema:
-        kept = (schema, _compile(schema))
-        _DUMPERS[id(schema)] = kept
-    return kept[1]
 
 
 def _only_absent_hook(schema: Schema) -> bool | None:
@@ -132,3 +124,7 @@ def _compile(schema: Schema) -> Dumper:
         return document
 
     return dump
+
+
+#: The function that dumps results as ``schema.dump`` does (made once per instance).
+dumper = PerSchema(_compile)

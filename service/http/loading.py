@@ -28,22 +28,15 @@ from typing import Any
 from marshmallow import RAISE, Schema, ValidationError, fields, missing
 from marshmallow.decorators import POST_LOAD, PRE_LOAD, VALIDATES, VALIDATES_SCHEMA
 
-Loader = Callable[[Any], Any]
+from service.http.per_schema import PerSchema
 
-_LOADERS: dict[int, tuple[Schema, Loader]] = {}
+Loader = Callable[[Any], Any]
 
 
 class _Declined(Exception):
     """The document is one for ``schema.load`` itself."""
 
 
-def loader(schema: Schema) -> Loader:
-    """The function that loads documents as ``schema.load`` does (made once per instance)."""
-    kept = _LOADERS.get(id(schema))
-    if kept is None or kept[0] is not schema:
-        kept = (schema, _compile(schema))
-        _LOADERS[id(schema)] = kept
-    return kept[1]
 
 
 def _compile(schema: Schema) -> Loader:
@@ -131,3 +124,7 @@ def _fast(schema: Schema) -> Callable[[Any], Any] | None:
         return result
 
     return load
+
+
+#: The function that loads documents as ``schema.load`` does (made once per instance).
+loader = PerSchema(_compile)
