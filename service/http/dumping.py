@@ -31,8 +31,6 @@ from service.http.per_schema import PerSchema
 Dumper = Callable[[Any], Any]
 
 
-
-
 def _only_absent_hook(schema: Schema) -> bool | None:
     """True when the schema's one dump hook is ResultSchema's, False when it has none,
     None when it has others."""

@@ -37,8 +37,6 @@ class _Declined(Exception):
     """The document is one for ``schema.load`` itself."""
 
 
-
-
 def _compile(schema: Schema) -> Loader:
     fast = _fast(schema)
     if fast is None:

@@ -3,7 +3,7 @@
 from collections.abc import Sequence
 
 def lower(k: int, N: int, M: int, n: int, /) -> tuple[float, float] | None:  # noqa: N803
-    """``(P(X ≤ k), P(X > k))`` as ``hypergeometric._lower_python`` computes them, or None
+    """``(P(X ≤ k), P(X > k))`` as ``hypergeometric._lower_one`` computes them, or None
     where only the Python code can (outside the support or the domain, a tail longer than
     the scalar loop, an integer ratio beyond 2^53)."""
 

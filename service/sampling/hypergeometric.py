@@ -267,14 +267,6 @@ def _lower_one(k: int, total: int, marked: int, drawn: int) -> tuple[float, floa
         return 0.0, 1.0
     if k >= high:
         return 1.0, 0.0
-    if _compiled_lower is not None and (tails := _compiled_lower(k, total, marked, drawn)):
-        return tails
-    return _lower_python(k, low, high, total, marked, drawn)
-
-
-def _lower_python(k: int, low: int, high: int, total: int, marked: int,
-                  drawn: int) -> tuple[float, float]:
-    """:func:`_lower_one` for ``low ≤ k < high``, in Python alone."""
     # below the mode by more than one: (k + 1)(N + 2) < (M + 1)(n + 1), in exact integers
     if (k + 1) * (total + 2) < (marked + 1) * (drawn + 1):
         below = min(1.0, _tail_one(k, False, k - low, total, marked, drawn))
@@ -406,6 +398,8 @@ def _tails_array(k: FloatArray, total: FloatArray, marked: FloatArray,
 
 
 def _scalar(value: Counts) -> int | None:
+    if type(value) is int:  # the usual case, decided before the slower isinstance
+        return value
     if isinstance(value, int | np.integer):
         return int(value)
     return None
@@ -499,17 +493,16 @@ def pmf(x: Counts, N: Counts, M: Counts, n: Counts) -> float | FloatArray:  # no
 
 def _tails(k: Counts, total: Counts, marked: Counts, drawn: Counts,
            upper: bool) -> float | FloatArray:
-    if (
-        _compiled_lower is not None
-        and type(k) is int and type(total) is int and type(marked) is int and type(drawn) is int
-        and (tails := _compiled_lower(k, total, marked, drawn)) is not None
-    ):
-        # inside the domain and the support, decided at once (_lower_one gives the same)
-        return tails[1 if upper else 0]
     values = (_scalar(k), _scalar(total), _scalar(marked), _scalar(drawn))
     if values[0] is not None and values[1] is not None and values[2] is not None and (
         values[3] is not None
     ):
+        # The compiled tails answer inside the domain and the support, with the bits
+        # _lower_one gives; everything else is _lower_one's.
+        if _compiled_lower is not None and (
+            tails := _compiled_lower(values[0], values[1], values[2], values[3])
+        ):
+            return tails[1 if upper else 0]
         if not _valid_one(values[1], values[2], values[3]):
             return math.nan
         return _lower_one(values[0], values[1], values[2], values[3])[1 if upper else 0]

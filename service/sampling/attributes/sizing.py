@@ -129,8 +129,8 @@ def _binomial_plan_by_inversion(
     to the inversion's accuracy. The plan is the first ``k`` whose block of sizes
     ``{n : ceil(e n) = k}`` reaches that size: one inversion for each ``k`` up to
     :data:`_INVERTED_DEVIATIONS`, then one tail at the size found. None when that tail
-    does not hold, or the plan allows more deviations, and the scan of
-    :func:`_binomial_plan_guess` decides.
+    does not hold, or the plan allows more deviations, and :func:`_binomial_plan_scan`
+    decides.
     """
     for k in range(1, _INVERTED_DEVIATIONS + 1) if expected else (0,):
         crossing = float(special.bdtrin(k, alpha, rate))

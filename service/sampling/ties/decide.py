@@ -34,6 +34,12 @@ class Decision:
     exact: bool
 
 
+def _double(risk: Fraction) -> float:
+    """``float(risk)``: the correctly rounded quotient, without Fraction's generic method
+    (these checks run several times a request)."""
+    return risk.numerator / risk.denominator
+
+
 def _exact_sign(
     model: str, k: int, n: int, rate: Fraction, population_size: int | None, risk: Fraction
 ) -> tuple[int, float] | None:
@@ -74,8 +80,7 @@ def hypergeometric_above(
     >>> hypergeometric_above(0, 10, 1, 9, Fraction(1, 10), 0.10000000000000002, upper=False)
     False
     """
-    # the correctly rounded quotient, as float(risk) gives it, without its generic method
-    risk_float = risk.numerator / risk.denominator
+    risk_float = _double(risk)
     if not near(value, risk_float):
         return value > risk_float
     found = _hypergeometric_sign(k, population, deviant, n, risk, upper=upper)
@@ -104,7 +109,7 @@ def at_most(
     """
     if value is None:
         value = float(MODELS[model].lower_tail(k, n, rate, population_size))
-    risk_float = risk.numerator / risk.denominator
+    risk_float = _double(risk)
     if not near(value, risk_float):
         return Decision(value <= risk_float, value, exact=False)
     found = _exact_sign(model, k, n, rate, population_size, risk)

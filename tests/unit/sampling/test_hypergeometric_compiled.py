@@ -1,7 +1,7 @@
 """The compiled scalar tails give the bits the Python code gives, or decline.
 
 ``service/sampling/_hypergeometric_tails.c`` repeats the operations of
-``hypergeometric._lower_python``; the accuracy of those bits is checked against exact
+``hypergeometric._lower_one``; the accuracy of those bits is checked against exact
 fractions and scipy.stats in ``test_hypergeometric.py``, which runs through the compiled
 module. Here the two are compared with each other: wherever the compiled module answers,
 its answer must be the Python answer to the last bit.
@@ -39,8 +39,7 @@ def _support(total: int, marked: int, drawn: int) -> tuple[int, int]:
 
 
 def _python(k: int, total: int, marked: int, drawn: int) -> tuple[float, float]:
-    low, high = _support(total, marked, drawn)
-    return hypergeometric._lower_python(k, low, high, total, marked, drawn)
+    return hypergeometric._lower_one(k, total, marked, drawn)
 
 
 def _cases(count: int, seed: int) -> list[tuple[int, int, int, int]]:
